@@ -1,0 +1,88 @@
+"""derive: exact symbolic derivations for linear circuits, written up as design-calculation
+records.
+
+Notebook use::
+
+    import derive
+    rec = derive.derive_text(open("worked/bridge.eqv").read(), "bridge.eqv")
+    rec.results[0].quantities["vth"].expr      # a sympy expression
+    print(rec.to_json())
+
+The same functions back the command line (``derive record``, ``derive code``,
+``derive check``).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Optional
+
+from .errors import DeriveError, NotAvailableYet, SheetError, TooLarge
+
+__version__ = "0.1.0"
+
+
+@dataclass
+class Record:
+    """A derived sheet: the circuit and one result per request."""
+    circuit: object
+    results: list
+
+    def to_json(self) -> str:
+        from .export_json import record_json
+        return record_json(self.circuit, self.results)
+
+    def to_dict(self) -> dict:
+        from .export_json import record_dict
+        return record_dict(self.circuit, self.results)
+
+    def to_markdown(self, template_dir: Optional[str] = None) -> str:
+        from .export_markdown import record_markdown
+        return record_markdown(self, template_dir)
+
+
+def parse(text: str, filename: str = "<sheet>"):
+    """Parse sheet text into the sheet model (:class:`derive.model.Sheet`)."""
+    from .parser import parse_sheet
+    return parse_sheet(text, filename)
+
+
+def circuit_of(text: str, filename: str = "<sheet>"):
+    """Parse and build the validated, flattened circuit."""
+    from .circuit import build_circuit
+    try:
+        return build_circuit(parse(text, filename))
+    except SheetError as e:
+        raise e.with_context(text, filename)
+
+
+def derive_text(text: str, filename: str = "<sheet>", symbolic: Optional[list] = None,
+                max_terms: float = 2e6) -> Record:
+    """Derive every request of a sheet given as text.
+
+    >>> rec = derive_text('''voltage source V between a and gnd = 10 V
+    ... resistor R1 between a and b = 1 kohm
+    ... resistor R2 between b and gnd = 4 kohm
+    ... port out between b and gnd
+    ... find thevenin at out''')
+    >>> q = rec.results[0].quantities
+    >>> q["vth"].expr, q["vth"].value
+    (R2*V/(R1 + R2), 8.0)
+    >>> q["rth"].expr, q["rth"].value
+    (R1*R2/(R1 + R2), 800.0)
+    """
+    from .analysis import Options, analyse
+    c = circuit_of(text, filename)
+    try:
+        results = analyse(c, Options(symbolic=symbolic, max_terms=max_terms))
+    except SheetError as e:
+        raise e.with_context(text, filename)
+    return Record(c, results)
+
+
+def derive_file(path: str, **kw) -> Record:
+    with open(path, encoding="utf-8") as f:
+        return derive_text(f.read(), path, **kw)
+
+
+__all__ = ["DeriveError", "SheetError", "NotAvailableYet", "TooLarge", "Record", "parse",
+           "circuit_of", "derive_text", "derive_file", "__version__"]

@@ -1,0 +1,185 @@
+"""Exact results as a short sequence of named intermediate quantities (node elimination).
+
+When the expanded rational function would be too large (a 4x4 resistor grid has 100 352
+spanning trees), a quantity ``c^T A^-1 b`` is found by eliminating the unknowns of the
+bordered system ``[[A, b], [c^T, 0]]`` one at a time (Gaussian elimination, pivots chosen
+to keep the fill low). Every updated matrix entry gets a name, ``q1 = Y22 - Y21*Y12/Y11``,
+the way a hand derivation introduces ``Rp = R2 || R3``; the result is the last entry.
+Each entry uses only names defined before it, so the sequence evaluates in order.
+"""
+from __future__ import annotations
+
+import random
+
+import sympy
+
+from . import edge
+
+
+def _entry_expr(system, p):
+    """A ring polynomial entry as a sympy expression in circuit symbols (1/R for recips)."""
+    vals = []
+    for v in system.vars:
+        if v.kind == "recip":
+            vals.append(1 / v.expr)
+        elif v.kind == "src":
+            vals.append(v.expr)
+        else:
+            vals.append(v.expr)
+    out = []
+    for exps, c in p.to_dict().items():
+        f = [sympy.Rational(int(c.p), int(c.q))]
+        f += [x ** e for x, e in zip(vals, exps) if e]
+        out.append(sympy.Mul(*f))
+    return sympy.Add(*out)
+
+
+def _probe_point(syms):
+    rnd = random.Random(7)
+    return {s: sympy.Rational(rnd.randint(11, 97), rnd.randint(3, 17)) for s in syms}
+
+
+def eliminate(entries: dict, n: int, reserved: set, prefix="q"):
+    """Eliminate unknowns 0..n-1 of the (n+1)x(n+1) sparse system ``entries``.
+
+    Returns (sequence, final) with the last diagonal entry named; ``sequence`` is a list of
+    (Symbol, expr). Pivots are chosen by Markowitz cost among entries that are nonzero at a
+    probe point (so no pivot is identically zero).
+    """
+    rows: dict = {}
+    cols: dict = {}
+    for (i, j), v in entries.items():
+        if v != 0:
+            rows.setdefault(i, {})[j] = v
+            cols.setdefault(j, set()).add(i)
+    syms = set()
+    for v in entries.values():
+        syms |= v.free_symbols
+    point = _probe_point(syms)
+    seq = []
+    names = [0]
+    taken = {str(s) for s in syms} | set(reserved)
+
+    numval_sym: dict = {}
+
+    def name(expr):
+        if expr.is_Atom or (expr.is_Mul and len(expr.args) == 2 and expr.args[0].is_Number
+                             and expr.args[1].is_Atom) or len(str(expr)) <= 12:
+            return expr
+        names[0] += 1
+        while f"{prefix}{names[0]}" in taken:
+            names[0] += 1
+        s = sympy.Symbol(f"{prefix}{names[0]}")
+        seq.append((s, expr))
+        value = expr.xreplace(numval_sym).xreplace(point)
+        numval_sym[s] = sympy.nsimplify(value) if value.is_number and not value.is_Rational else value
+        return s
+
+    remaining = set(range(n))
+    while remaining:
+        best = None
+        for r in remaining:
+            row = rows.get(r, {})
+            for c, v in row.items():
+                if c not in remaining:
+                    continue
+                val = v.xreplace(numval_sym).xreplace(point)
+                if val == 0:
+                    continue
+                cost = (len(row) - 1) * (len(cols.get(c, ())) - 1)
+                key = (cost, len(str(v)))
+                if best is None or key < best[0]:
+                    best = (key, r, c)
+        if best is None:
+            raise ZeroDivisionError("singular system")
+        _, r, c = best
+        p = rows[r][c]
+        prow = {j: v for j, v in rows[r].items() if j != c}
+        pcol = [i for i in cols.get(c, ()) if i != r]
+        for i in pcol:
+            f = rows[i].pop(c)
+            for j, x in prow.items():
+                old = rows[i].get(j, sympy.Integer(0))
+                new = old - f * x / p
+                if new == 0:
+                    rows[i].pop(j, None)
+                    cols.get(j, set()).discard(i)
+                else:
+                    rows[i][j] = name(new)
+                    cols.setdefault(j, set()).add(i)
+        for j in list(rows[r]):
+            cols.get(j, set()).discard(r)
+        del rows[r]
+        cols.pop(c, None)
+        remaining.discard(r)
+    final = rows.get(n, {}).get(n, sympy.Integer(0))
+    return seq, final
+
+
+def bordered_entries(system, col: dict, row: dict):
+    ent = {}
+    for i, r in enumerate(system.A.rows):
+        for j, v in r.items():
+            ent[(i, j)] = _entry_expr(system, v)
+    n = system.n
+    for i, v in col.items():
+        ent[(i, n)] = _entry_expr(system, v) if not isinstance(v, int) else sympy.Integer(v)
+    for j, v in row.items():
+        ent[(n, j)] = _entry_expr(system, v) if not isinstance(v, int) else sympy.Integer(v)
+    return ent
+
+
+def quantity_sequence(ctx, req, name):
+    """(sequence, final expression, value at nominal) for a port/branch quantity."""
+    from .forms import system_of
+    system = system_of(ctx)
+    base = {"rn": "rth", "resistance": "rth", "impedance": "rth", "voltage": "vth"}.get(name, name)
+    port = ctx.port(req.port) if req.port else None
+    reserved = set(ctx.circuit.symbols)
+    sign = -1
+    if base in ("vth", "gain", "isc"):
+        u = system.port_vector(*port)
+        b = system.rhs(only=req.source if base == "gain" else None)
+        seq, final = eliminate(bordered_entries(system, b, u), system.n, reserved)
+        final = -final
+        if base == "isc":
+            seq2, f2 = eliminate(bordered_entries(system, u, u), system.n,
+                                 reserved | {str(s) for s, _ in seq}, prefix="p")
+            seq = seq + seq2
+            final = final / (-f2)
+    elif base == "rth":
+        u = system.port_vector(*port)
+        seq, final = eliminate(bordered_entries(system, u, u), system.n, reserved)
+        final = -final
+    elif base == "current":
+        f = system.through(req.element)
+        b = system.rhs()
+        seq, final = eliminate(bordered_entries(system, b, f.coef), system.n, reserved)
+        final = _entry_expr(system, f.const) - final if not isinstance(f.const, int) else -final
+    else:
+        raise KeyError(name)
+    return seq, final, evaluate(seq, final, ctx.nominal)
+
+
+def evaluate(seq, final, nominal):
+    """Value of a sequence's result at nominal values (None if a symbol has none)."""
+    env = dict(nominal)
+    for s, e in seq:
+        v = e.xreplace(env)
+        if v.free_symbols:
+            return None
+        env[s] = sympy.Float(complex(sympy.N(v, 20)).real, 20) if sympy.im(sympy.N(v)) == 0 \
+            else sympy.N(v, 20)
+    v = final.xreplace(env)
+    if v.free_symbols:
+        return None
+    c = complex(sympy.N(v, 17))
+    return c.real if c.imag == 0 else c
+
+
+def inline(seq, final):
+    """The sequence substituted back into one expression (for short sequences)."""
+    e = final
+    for s, x in reversed(seq):
+        e = e.xreplace({s: x})
+    return e
