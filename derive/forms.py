@@ -120,16 +120,37 @@ def compact(ctx, req, q):
     if req.quantity != "current":
         sp = reduce.port_form(ctx, req, q.name)
         if sp is not None:
-            if q.expr is None or sympy.count_ops(sp) < sympy.count_ops(q.expr):
-                q.expr = sp
+            defs, final = sp
+            nested = sequence.inline(defs, final) if _inline_size(defs, final) <= INLINE_LIMIT \
+                else None
+            if nested is not None and (q.expr is None or len(str(nested)) < len(str(q.expr))):
+                q.expr, q.form = nested, "series-parallel"
+            elif q.expr is None:
                 q.form = "series-parallel"
-            if q.value is None and q.ratio is None:
-                q.value = reduce.value_of(ctx, sp)
+            if q.expr is None or (defs and len(defs) > 1 and q.form == "series-parallel"):
+                q.sequence, q.in_sequence = defs, final
+            if q.ratio is None:
+                q.value = sequence.evaluate(defs, final, ctx.nominal)
             return
     if q.expr is None:
         seq, final, value = sequence.quantity_sequence(ctx, req, q.name)
         q.sequence, q.in_sequence, q.form = seq, final, "sequence"
         q.value = value
-        total = sum(len(str(e)) for _, e in seq)
-        if total <= 2000:
+        if _inline_size(seq, final) <= 2000:
             q.expr = sequence.inline(seq, final)
+
+
+INLINE_LIMIT = 20000
+
+
+def _inline_size(defs, final) -> int:
+    """Length of the expression with every name substituted back (without building it)."""
+    size = {}
+    for s, e in defs:
+        txt = len(str(e))
+        size[s] = txt + sum((size[x] - len(str(x))) * str(e).count(str(x))
+                            for x in e.free_symbols if x in size)
+        if size[s] > 10 * INLINE_LIMIT:
+            size[s] = 10 * INLINE_LIMIT
+    return len(str(final)) + sum((size[x] - len(str(x))) * str(final).count(str(x))
+                                 for x in final.free_symbols if x in size)

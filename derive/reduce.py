@@ -96,15 +96,46 @@ def series(x: Branch, y: Branch, mid, name) -> Branch:
     return Branch(name, x.a, y.b, x.E + y.E, x.Z + y.Z, members=x.members + y.members)
 
 
-def reduce_to_port(branches, plus, minus):
+class Namer:
+    """Names for the intermediate quantities of a reduction (``Zeq1``, ``Veq1``, ...),
+    avoiding the circuit's own symbols; ``defs`` lists (Symbol, expression) in order."""
+
+    def __init__(self, reserved=()):
+        self.reserved = set(reserved)
+        self.count = 0
+        self.defs = []
+
+    def branch_name(self):
+        self.count += 1
+        return f"{self.count}"
+
+    def name(self, kind, tag, expr):
+        if expr.is_Atom or (expr.is_Mul and len(expr.args) == 2 and expr.args[0].is_Number
+                             and expr.args[1].is_Atom):
+            return expr
+        base = f"{kind}eq{tag}"
+        while base in self.reserved:
+            base += "_"
+        sym = sympy.Symbol(base)
+        self.defs.append((sym, expr))
+        return sym
+
+    def named(self, b: "Branch") -> "Branch":
+        b.Z = b.Z if b.Z is sympy.oo else self.name("Z", b.name, b.Z)
+        b.E = self.name("V", b.name, b.E)
+        if b.K is not None:
+            b.K = self.name("I", b.name, b.K)
+        return b
+
+
+def reduce_to_port(branches, plus, minus, namer: Namer | None = None):
     """(branch between plus and minus, moves) or (None, moves) if not reducible."""
     live = list(branches)
     moves = []
-    count = [0]
+    namer = namer or Namer()
 
     def new_name():
-        count[0] += 1
-        return f"Z{count[0]}"
+        return namer.branch_name()
 
     changed = True
     while changed:
@@ -115,7 +146,7 @@ def reduce_to_port(branches, plus, minus):
             k = frozenset((b.a, b.b))
             if k in pairs:
                 x = pairs[k]
-                nb = parallel(x, b, new_name())
+                nb = namer.named(parallel(x, b, new_name()))
                 live = [z for z in live if z is not x and z is not b] + [nb]
                 moves.append({"move": "parallel", "parts": [x, b], "result": nb})
                 changed = True
@@ -137,7 +168,7 @@ def reduce_to_port(branches, plus, minus):
                 break
             if len(bs) == 2:
                 x, y = bs
-                nb = series(x, y, n, new_name())
+                nb = namer.named(series(x, y, n, new_name()))
                 live = [z for z in live if z is not x and z is not y] + [nb]
                 moves.append({"move": "series", "parts": [x, y], "result": nb, "node": n})
                 changed = True
@@ -146,6 +177,27 @@ def reduce_to_port(branches, plus, minus):
         b = live[0] if live[0].a == plus else live[0].flipped()
         return b, moves
     return None, moves
+
+
+def zeroed(branches):
+    """Independent sources set to zero: voltage sources become shorts (their nodes merge),
+    current sources open (removed)."""
+    parent = {}
+
+    def find(x):
+        while parent.get(x, x) != x:
+            x = parent[x]
+        return x
+
+    for b in branches:
+        if b.E != 0 and b.Z == 0 and not b.ideal_current:
+            parent[find(b.a)] = find(b.b)
+    out = []
+    for b in branches:
+        if b.ideal_current or (b.Z == 0 and b.E != 0):
+            continue
+        out.append(Branch(b.name, find(b.a), find(b.b), sympy.Integer(0), b.Z, None, b.members))
+    return out, find
 
 
 def source_values(circuit, subs=None, only=None, none=False):
@@ -158,35 +210,72 @@ def source_values(circuit, subs=None, only=None, none=False):
 
 
 def port_form(ctx, req, name):
-    """Nested closed form of a port quantity, or None where the network does not reduce."""
-    key = ("sp", req.port)
-    if key not in ctx.cache:
-        subs = ctx.numeric_subs()
-        bs = branches_of(ctx.circuit, subs)
-        res = None
-        if bs is not None and req.port is not None:
-            plus, minus = ctx.port(req.port)
-            res = reduce_to_port(bs, plus, minus)
-        ctx.cache[key] = res
-    res = ctx.cache[key]
-    if res is None or res[0] is None:
-        return None
-    b = res[0]
-    if b.ideal_current:
+    """(definitions, result) of a port quantity by reduction, or None where the network
+    does not reduce. ``definitions`` are the named intermediate quantities in order."""
+    base = {"rn": "rth", "resistance": "rth", "impedance": "rth", "voltage": "vth"}.get(name, name)
+    if req.port is None:
         return None
     subs = ctx.numeric_subs()
-    base = {"rn": "rth", "resistance": "rth", "impedance": "rth", "voltage": "vth"}.get(name, name)
     if base == "rth":
-        return b.Z
+        res = reduction(ctx, req.port, zero=True)
+        if res is None or res[0] is None or res[0].ideal_current:
+            return None
+        return tidy(res[2], res[0].Z, {})
+    res = reduction(ctx, req.port, zero=False)
+    if res is None or res[0] is None or res[0].ideal_current:
+        return None
+    b, defs = res[0], res[2]
     if base == "vth":
-        return b.E.xreplace(source_values(ctx.circuit, subs))
+        return tidy(defs, b.E, source_values(ctx.circuit, subs))
     if base == "gain":
-        return b.E.xreplace(source_values(ctx.circuit, subs, only=req.source))
+        return tidy(defs, b.E, source_values(ctx.circuit, subs, only=req.source))
     if base == "isc":
         if b.Z == 0:
             return None
-        return (b.E / b.Z).xreplace(source_values(ctx.circuit, subs))
+        return tidy(defs, b.E / b.Z, source_values(ctx.circuit, subs))
     return None
+
+
+def tidy(defs, final, values):
+    """Substitute source values into a definition list; fold definitions that become
+    trivial, drop the ones the result does not need."""
+    env = dict(values)
+    kept = []
+    for sym, e in defs:
+        e = e.xreplace(env)
+        if e.is_Atom or (e.is_Mul and len(e.args) == 2 and e.args[0].is_Number and e.args[1].is_Atom):
+            env[sym] = e
+        else:
+            kept.append((sym, e))
+    final = final.xreplace(env)
+    need = set(final.free_symbols)
+    out = []
+    for sym, e in reversed(kept):
+        if sym in need:
+            out.append((sym, e))
+            need |= e.free_symbols
+    return list(reversed(out)), final
+
+
+def reduction(ctx, port, zero: bool):
+    """Cached (branch, moves) of the network seen from ``port`` (sources zeroed with
+    ``zero``), or None where it has parts that are not two-terminal."""
+    key = ("sp", port, zero)
+    if key not in ctx.cache:
+        bs = branches_of(ctx.circuit, ctx.numeric_subs())
+        res = None
+        if bs is not None:
+            plus, minus = ctx.port(port)
+            if zero:
+                bs, find = zeroed(bs)
+                plus, minus = find(plus), find(minus)
+                if plus == minus:
+                    res = (Branch("short", plus, minus, sympy.Integer(0), sympy.Integer(0)), [], [])
+            if res is None:
+                namer = Namer(ctx.circuit.symbols)
+                res = reduce_to_port(bs, plus, minus, namer) + (namer.defs,)
+        ctx.cache[key] = res
+    return ctx.cache[key]
 
 
 def value_of(ctx, expr):

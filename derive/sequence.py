@@ -76,12 +76,13 @@ def eliminate(entries: dict, n: int, reserved: set, prefix="q"):
         return s
 
     remaining = set(range(n))
+    rem_cols = set(range(n))
     while remaining:
         best = None
         for r in remaining:
             row = rows.get(r, {})
             for c, v in row.items():
-                if c not in remaining:
+                if c not in rem_cols:
                     continue
                 val = v.xreplace(numval_sym).xreplace(point)
                 if val == 0:
@@ -112,6 +113,7 @@ def eliminate(entries: dict, n: int, reserved: set, prefix="q"):
         del rows[r]
         cols.pop(c, None)
         remaining.discard(r)
+        rem_cols.discard(c)
     final = rows.get(n, {}).get(n, sympy.Integer(0))
     return seq, final
 
