@@ -106,3 +106,17 @@ def analyse(circuit: Circuit, options: Options | None = None) -> list:
                                   req.loc.col)
         results.append(fn(ctx, req))
     return results
+
+
+def _load_handlers():
+    """Import the modules that register further handlers (each optional until built)."""
+    import importlib
+    for mod in ("sensitivity", "tolerance", "inversion", "claims", "sections"):
+        try:
+            importlib.import_module(f"{__package__}.{mod}")
+        except ModuleNotFoundError as e:
+            if e.name != f"{__package__}.{mod}":
+                raise
+
+
+_load_handlers()
