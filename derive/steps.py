@@ -10,7 +10,7 @@ symbol (and ``s``) at several points. Exporters only render steps.
 >>> R1, R2 = sympy.symbols('R1 R2')
 >>> st = Step("Combine R1 and R2 in parallel.",
 ...           [Equation(sympy.Symbol('Rp'), R1*R2/(R1 + R2), R1/(1 + R1/R2))], ["R1", "R2"])
->>> st.verify(); st.verified
+>>> st.verify()
 True
 """
 from __future__ import annotations
