@@ -50,7 +50,8 @@ def result_json(r) -> dict:
     if r.quantities:
         d["quantities"] = {n: quantity_json(q) for n, q in r.quantities.items()}
     for k, v in r.extra.items():
-        d[k] = v
+        if k != "figures":          # Figure objects are for the renderers, not JSON
+            d[k] = v
     if r.steps:
         d["steps"] = [s if isinstance(s, dict) else s.to_json() for s in r.steps]
     return d

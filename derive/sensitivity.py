@@ -1,0 +1,302 @@
+"""Sensitivities of a result to its parts: dQ/dx and S = (x/Q)·dQ/dx, exact and at nominal.
+
+``find sensitivity of Q ...`` (Q any scalar quantity: vth, rth, isc, rn, resistance,
+impedance, voltage, current, gain; ``thevenin``/``norton`` give both members). For every
+symbol x with a nominal value the derivative and the normalized sensitivity are derived in
+closed form (simplified: the shorter of the factored and the plain form) and evaluated
+exactly at nominal values; entries are ranked by |S| at nominal.
+
+Where Q exists only as a sequence of named intermediates, the derivative is carried through
+the sequence in forward mode (chain rule, one new named entry ``dq3_dRa`` per intermediate
+that depends on x), so the derivative is itself a sequence.
+
+JSON (in ``RequestResult.extra``):
+
+- ``"sensitivities"``: ``{x: {"expr", "normalized", "value", "derivative_value", "rank"}}``
+  for the request's quantity; for ``thevenin``/``norton`` for the first member (vth, isc);
+  sequence-only derivatives carry ``"sequence"``/``"in_sequence"`` instead of ``"expr"``.
+- ``"sensitivity_of"``: the name of the quantity under ``"sensitivities"``.
+- ``"sensitivities_by_quantity"``: ``{name: {x: ...}}`` for every member (always present).
+- ``"figures"``: ranked bar charts (:class:`derive.steps.Figure`, not JSON).
+
+Sensitivities are always taken with every symbol symbolic (a ``numeric`` line or
+``--symbolic`` does not hide a part from its sensitivity).
+
+>>> import sympy
+>>> V, R1, R2 = sympy.symbols('V R1 R2')
+>>> f = Form([], V*R2/(R1 + R2))
+>>> d, _ = derivative(f, R1)
+>>> d.final
+-R2*V/(R1 + R2)**2
+>>> tidy(R1*d.final/f.final)
+-R1/(R1 + R2)
+"""
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+from typing import Optional
+
+import sympy
+
+from . import forms
+from .analysis import Context, RequestResult, handler
+from .circuit import S as LAPLACE_S
+from .errors import SheetError
+from .printing import to_text
+from .steps import Equation, Step
+
+TIDY_OPS = 600          # factor only expressions up to this many operations
+
+
+@dataclass
+class Form:
+    """A result as named intermediates ``defs`` [(Symbol, expr)] and a final expression."""
+    defs: list
+    final: sympy.Expr
+
+    def base_symbols(self) -> set:
+        names = {q for q, _ in self.defs}
+        out = set(self.final.free_symbols)
+        for _, e in self.defs:
+            out |= e.free_symbols
+        return out - names
+
+    def value(self, point: dict):
+        """Exact value at ``point`` (Symbol -> Rational); None if a symbol is missing."""
+        env = dict(point)
+        for q, e in self.defs:
+            env[q] = e.xreplace(env)
+        v = self.final.xreplace(env)
+        return v if not v.free_symbols else None
+
+
+def form_of(q) -> Form:
+    if q.expr is not None:
+        return Form([], q.expr)
+    return Form(list(q.sequence), q.in_sequence)
+
+
+def tidy(e: sympy.Expr) -> sympy.Expr:
+    """The shorter of ``e`` and its factored form (factored only when small)."""
+    if e.is_Atom or sympy.count_ops(e) > TIDY_OPS:
+        return e
+    f = sympy.factor(sympy.cancel(sympy.together(e)))
+    return f if len(str(f)) <= len(str(e)) else e
+
+
+def _fresh(base: str, taken: set) -> sympy.Symbol:
+    name, k = base, 1
+    while name in taken:
+        k += 1
+        name = f"{base}_{k}"
+    taken.add(name)
+    return sympy.Symbol(name)
+
+
+def derivative(form: Form, x: sympy.Symbol, taken: Optional[set] = None):
+    """(dQ/dx as a Form, the unsimplified derivative of a single expression or None).
+
+    Single expressions are differentiated and tidied; sequences in forward mode: every
+    intermediate that depends on x gets a derivative entry after the original entries.
+    """
+    if not form.defs:
+        raw = sympy.diff(form.final, x)
+        return Form([], tidy(raw)), raw
+    taken = set(taken or ()) | {str(q) for q, _ in form.defs} | {str(s) for s in form.base_symbols()}
+    d: dict = {}
+    new = []
+
+    def chain(e):
+        out = sympy.diff(e, x)
+        for y in e.free_symbols:
+            if d.get(y, 0) != 0:
+                out += sympy.diff(e, y) * d[y]
+        return out
+
+    for q, e in form.defs:
+        de = chain(e)
+        if de == 0 or de.is_Atom:
+            d[q] = de
+            continue
+        de = tidy(de) if sympy.count_ops(de) < 60 else de
+        name = _fresh(f"d{q}_d{x}", taken)
+        new.append((name, de))
+        d[q] = name
+    final = chain(form.final)
+    return Form(list(form.defs) + new, tidy(final) if sympy.count_ops(final) < 60 else final), None
+
+
+@dataclass
+class Sens:
+    symbol: sympy.Symbol
+    deriv: Form
+    normalized: sympy.Expr          # over the base symbols, or over the sequence names
+    d_value: object = None          # exact dQ/dx at nominal (sympy number) or None
+    s_value: object = None          # exact S at nominal, or None (Q = 0 or no nominal)
+    raw: Optional[sympy.Expr] = None
+
+
+@dataclass
+class Analysed:
+    """One quantity with its sensitivities (shared with :mod:`derive.tolerance`)."""
+    q: object                       # analysis.QuantityResult
+    form: Form
+    nominal_value: object           # exact, or None
+    sens: list = field(default_factory=list)   # Sens, ranked by |S|
+
+
+def full_context(ctx: Context) -> Context:
+    """A context with every symbol symbolic (so no part is substituted away)."""
+    if not ctx.numeric_subs():
+        return ctx
+    if "sens_ctx" not in ctx.cache:
+        opts = dataclasses.replace(ctx.options, symbolic=list(ctx.circuit.symbols))
+        ctx.cache["sens_ctx"] = Context(ctx.circuit, opts)
+    return ctx.cache["sens_ctx"]
+
+
+def _check_scalar(req):
+    if req.quantity in ("model", "twoport"):
+        raise SheetError(f"sensitivity/tolerance of '{req.quantity}' is not offered: ask for one "
+                         "scalar quantity (vth, rth, isc, rn, resistance, impedance, voltage, "
+                         "current, gain)", req.loc.line, req.loc.col)
+
+
+def analysed(ctx: Context, req) -> list:
+    """Every member of the request's quantity with its ranked sensitivities (cached)."""
+    _check_scalar(req)
+    key = ("sensitivity", req.quantity, req.port, req.element, req.source)
+    if key in ctx.cache:
+        return ctx.cache[key]
+    fctx = full_context(ctx)
+    nominal = ctx.nominal
+    out = []
+    for q in forms.port_quantities(fctx, req):
+        form = form_of(q)
+        if LAPLACE_S in form.base_symbols():
+            raise SheetError(f"{q.name} depends on the Laplace variable s: sensitivities and "
+                             "tolerances of frequency-dependent results are not available yet "
+                             "(a later feature); ask for a resistive result or make the "
+                             "reactive parts numeric", req.loc.line, req.loc.col)
+        out.append(_analyse(ctx, q, form, nominal))
+    ctx.cache[key] = out
+    return out
+
+
+def _analyse(ctx, q, form: Form, nominal: dict) -> Analysed:
+    q0 = form.value(nominal)
+    a = Analysed(q, form, q0)
+    syms = [sympy.Symbol(k) for k, v in ctx.circuit.symbols.items() if v.nominal is not None]
+    base = form.base_symbols()
+    taken = set(ctx.circuit.symbols)
+    for x in syms:
+        if x not in base:
+            a.sens.append(Sens(x, Form([], sympy.Integer(0)), sympy.Integer(0),
+                               sympy.Integer(0), sympy.Integer(0)))
+            continue
+        d, raw = derivative(form, x, taken)
+        taken |= {str(n) for n, _ in d.defs}
+        if not form.defs:
+            norm = tidy(x * d.final / form.final)
+        else:
+            norm = x * d.final / form.final
+        dv = d.value(nominal)
+        sv = None
+        if dv is not None and q0 is not None and q0 != 0:
+            sv = nominal[x] * dv / q0
+        a.sens.append(Sens(x, d, norm, dv, sv, raw))
+    a.sens.sort(key=lambda s: -abs(float(s.s_value)) if s.s_value is not None
+                else (-abs(float(s.d_value)) if s.d_value is not None else 0.0))
+    return a
+
+
+def _f(v):
+    if v is None:
+        return None
+    c = complex(v)
+    return c.real if c.imag == 0 else None
+
+
+def sens_json(a: Analysed) -> dict:
+    out = {}
+    nseq = len(a.form.defs)
+    for rank, s in enumerate(a.sens, 1):
+        e: dict = {}
+        if s.deriv.defs:
+            e["sequence"] = [[str(n), to_text(x)] for n, x in s.deriv.defs[nseq:]]
+            e["in_sequence"] = to_text(s.deriv.final)
+        else:
+            e["expr"] = to_text(s.deriv.final)
+        e["normalized"] = to_text(s.normalized)
+        e["value"] = _f(s.s_value)
+        e["derivative_value"] = _f(s.d_value)
+        e["rank"] = rank
+        out[str(s.symbol)] = e
+    return out
+
+
+def _steps(a: Analysed) -> list:
+    name = a.q.name
+    Q = sympy.Symbol(name)
+    steps = []
+    if a.form.defs:
+        txt = (f"{name} is available as a sequence of {len(a.form.defs)} named intermediates; "
+               "each derivative is carried through the sequence by the chain rule (forward "
+               "mode), so it is a sequence too.")
+    else:
+        txt = f"Differentiate {name} = {to_text(a.form.final)} with respect to each part."
+    eqs = []
+    for s in a.sens:
+        if s.raw is None:
+            continue
+        dsym = sympy.Symbol(f"d{name}/d{s.symbol}")
+        eqs.append(Equation(dsym, s.deriv.final, check=s.raw))
+        eqs.append(Equation(sympy.Symbol(f"S_{s.symbol}"), s.normalized,
+                            check=s.symbol * s.raw / a.form.final))
+    st = Step(txt, eqs, [str(s.symbol) for s in a.sens], kind="sensitivity")
+    st.verify()
+    steps.append(st)
+    rows = [["symbol", f"d{name}/dx at nominal", "S = (x/Q) dQ/dx", "rank"]]
+    for k, s in enumerate(a.sens, 1):
+        rows.append([str(s.symbol), _g(s.d_value), _g(s.s_value), str(k)])
+    top = a.sens[0] if a.sens else None
+    summ = (f"At nominal values {name} = {_g(a.nominal_value)}; the parts ranked by |S| "
+            f"(a 1 % rise of x changes {name} by about S %)."
+            + (f" Largest: {top.symbol} (S = {_g(top.s_value)})." if top is not None else ""))
+    if a.nominal_value == 0:
+        summ += f" {name} is 0 at nominal, so normalized sensitivities are undefined there."
+    st2 = Step(summ, [], [], kind="value", table=rows)
+    st2.verify()
+    steps.append(st2)
+    return steps
+
+
+def _g(v) -> str:
+    f = _f(v)
+    return "n/a" if f is None else f"{f:.6g}"
+
+
+def _slug(text: str) -> str:
+    return "".join(c if c.isalnum() else "-" for c in text).strip("-").lower()
+
+
+@handler("sensitivity")
+def sensitivity(ctx: Context, req) -> RequestResult:
+    res = RequestResult(req)
+    items = analysed(ctx, req)
+    by = {a.q.name: sens_json(a) for a in items}
+    res.extra["sensitivity_of"] = items[0].q.name
+    res.extra["sensitivities"] = by[items[0].q.name]
+    res.extra["sensitivities_by_quantity"] = by
+    figs = []
+    for a in items:
+        res.steps.extend(_steps(a))
+        from . import plots
+        figs.append(plots.sensitivity_figure(
+            f"{_slug(req.text)}-{a.q.name}",
+            f"Normalized sensitivities of {a.q.name} ({req.text}), ranked by magnitude.",
+            [str(s.symbol) for s in a.sens], [_f(s.s_value) for s in a.sens]))
+    res.extra["figures"] = figs
+    return res
+
