@@ -71,7 +71,7 @@ class System:
     ... port out between b and gnd'''))
     >>> sys = System(c)
     >>> sys.n, [v.kind for v in sys.vars]
-    (3, ['recip', 'recip', 'src'])
+    (3, ['src', 'recip', 'recip'])
     """
 
     def __init__(self, circuit: Circuit, subs: dict | None = None):

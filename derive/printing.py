@@ -8,7 +8,7 @@ only, so any reader can parse it back with a small expression grammar.
 >>> to_text(a*b/(a + b))
 'R_load*div1_Rt/(R_load + div1_Rt)'
 >>> to_latex(a*b/(a + b))
-'\\\\frac{R_{\\\\mathrm{load}} R_{\\\\mathrm{t}}^{\\\\mathrm{div1}}}{R_{\\\\mathrm{load}} + R_{\\\\mathrm{t}}^{\\\\mathrm{div1}}}'
+'\\\\frac{R_{\\\\mathrm{load}} {R_{\\\\mathrm{t}}}^{\\\\mathrm{div1}}}{R_{\\\\mathrm{load}} + {R_{\\\\mathrm{t}}}^{\\\\mathrm{div1}}}'
 """
 from __future__ import annotations
 
@@ -32,7 +32,7 @@ class _TextPrinter(StrPrinter):
 
 def to_text(expr) -> str:
     """The JSON record's ``expr`` string."""
-    return _TextPrinter({"order": "none"}).doprint(expr)
+    return _TextPrinter().doprint(expr)
 
 
 _SPLIT = re.compile(r"^([A-Za-z]+)_?([A-Za-z0-9]*)$")

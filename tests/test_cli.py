@@ -1,0 +1,75 @@
+"""The command line, through its thin main (in process) and once as a real process."""
+from __future__ import annotations
+
+import io
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+from derive.cli import main
+
+ROOT = Path(__file__).resolve().parent.parent
+DIVIDER = """title "Divider"
+voltage source V between a and gnd = 10 V
+resistor R1 between a and b = 1 kohm ±1%
+resistor R2 between b and gnd = 4 kohm
+port out between b and gnd
+find thevenin at out
+"""
+
+
+def test_record_json_on_stdout(tmp_path, capsys):
+    p = tmp_path / "d.eqv"
+    p.write_text(DIVIDER)
+    assert main(["record", str(p), "--format", "json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["title"] == "Divider"
+    assert d["symbols"]["R1"] == {"nominal": 1000.0, "unit": "ohm", "tolerance": 0.01}
+    r = d["results"][0]
+    assert r["request"] == "find thevenin at out"
+    assert r["quantities"]["vth"]["expr"] == "R2*V/(R1 + R2)"
+    assert r["quantities"]["vth"]["value"] == 8.0
+    assert r["quantities"]["rth"]["unit"] == "ohm"
+
+
+def test_output_format_follows_extension(tmp_path, capsys):
+    p = tmp_path / "d.eqv"
+    p.write_text(DIVIDER)
+    out = tmp_path / "rec.json"
+    assert main(["record", str(p), "-o", str(out)]) == 0
+    assert json.loads(out.read_text())["results"][0]["quantities"]["rth"]["value"] == 800.0
+    md = tmp_path / "rec.md"
+    assert main(["record", str(p), "-o", str(md)]) == 0
+    assert md.read_text().startswith("# Divider")
+
+
+def test_stdin_sheet(monkeypatch, capsys):
+    monkeypatch.setattr(sys, "stdin", io.TextIOWrapper(io.BytesIO(DIVIDER.encode())))
+    assert main(["record", "-", "--format", "json"]) == 0
+    assert "R1*R2/(R1 + R2)" in capsys.readouterr().out
+
+
+def test_symbolic_option(tmp_path, capsys):
+    p = tmp_path / "d.eqv"
+    p.write_text(DIVIDER)
+    assert main(["record", str(p), "--format", "json", "--symbolic", "R2"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["results"][0]["quantities"]["vth"]["expr"] == "10*R2/(R2 + 1000)"
+
+
+def test_missing_file_is_exit_2(tmp_path, capsys):
+    assert main(["record", str(tmp_path / "none.eqv")]) == 2
+    assert "error: cannot read the sheet" in capsys.readouterr().err
+
+
+def test_real_process_and_module_entry(tmp_path):
+    p = tmp_path / "d.eqv"
+    p.write_text(DIVIDER.replace("between a and b", "between a and"))
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    r = subprocess.run([sys.executable, "-m", "derive", "record", str(p)], capture_output=True,
+                       text=True, env=env, cwd=tmp_path)
+    assert r.returncode == 2
+    assert r.stderr.startswith(f"{p}:3:")
+    assert "Traceback" not in r.stderr
