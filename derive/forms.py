@@ -56,9 +56,12 @@ def port_quantities(ctx, req) -> list:
         ratio = exact_ratio(ctx, req, name) if expandable(ctx) else None
         q = QuantityResult(name, None, None, unit, ratio=ratio)
         if ratio is not None:
-            q.expr = edge.to_sympy(ratio)
             q.value = edge.value_at(ratio, ctx.nominal)
+            if ratio.terms() <= READABLE_TERMS:
+                q.expr = edge.to_sympy(ratio)
         compact(ctx, req, q)
+        if q.expr is None and ratio is not None and ratio.terms() <= LARGEST_EXPANDED:
+            q.expr, q.form = edge.to_sympy(ratio), "expanded"
         if q.expr is None and not q.sequence:
             raise SheetError(f"no closed form of {name} could be derived", req.loc.line, req.loc.col)
         out.append(q)
@@ -140,7 +143,9 @@ def compact(ctx, req, q):
             q.expr = sequence.inline(seq, final)
 
 
-INLINE_LIMIT = 20000
+INLINE_LIMIT = 20000        # characters: the JSON contract's "unreasonably large"
+READABLE_TERMS = 400        # expanded forms up to this many terms are shown as such
+LARGEST_EXPANDED = 3000     # beyond this the expanded form is never written out
 
 
 def _inline_size(defs, final) -> int:
