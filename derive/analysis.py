@@ -89,6 +89,8 @@ def _basic(ctx: Context, req) -> RequestResult:
     out = RequestResult(req)
     for q in forms.port_quantities(ctx, req):
         out.quantities[q.name] = q
+    from . import derivation
+    out.steps = derivation.port_steps(ctx, req, out)
     return out
 
 
