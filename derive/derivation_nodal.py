@@ -16,7 +16,7 @@ compared with the exact result of the solver.
 ... port p between a and gnd
 ... find vth at p''')
 >>> [s.kind for s in rec.results[0].steps][:4]
-['nodal', 'matrix', 'cramer']
+['port', 'nodal', 'nodal', 'matrix']
 """
 from __future__ import annotations
 
