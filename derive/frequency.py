@@ -53,7 +53,7 @@ def rational_form(expr) -> dict:
     if len(red) == 2:
         out["w_corner"] = sympy.factor(1 / red[1])
     elif len(red) == 3 and red[2] != 0:
-        out["w0"] = sympy.sqrt(sympy.factor(1 / red[2]))
+        out["w0"] = 1 / sympy.sqrt(sympy.factor(red[2]))
         out["Q"] = sympy.sqrt(sympy.factor(red[2])) / red[1] if red[1] != 0 else None
     if len(dc) - 1 <= 2:
         out["poles"] = _roots(dc)

@@ -166,6 +166,12 @@ def model_handler(ctx, req) -> analysis.RequestResult:
     dets = Dets(ctx, req, circuit)
     for name, (sign, num, den, unit, _m) in MODEL.items():
         r = dets.ratio(sign, num, den)
+        if r is None and name == "rin" and not dets.d["D1"].is_zero():
+            out.extra.setdefault("infinite", []).append("rin")
+            out.steps.append(Step(f"With {req.port2} open no current flows into {req.port}: "
+                                  "rin is infinite (an open circuit in the model).",
+                                  kind="model"))
+            continue
         if r is None:
             raise SheetError(f"the model from {req.port} to {req.port2} has no {name}: "
                              + WHY[den], req.loc.line, req.loc.col)
@@ -228,8 +234,7 @@ def _poly_sym(dets, key):
 def _model_step(req, q, dets):
     z = {n: edge.to_sympy(dets.ratio(*PARAMS[n][:3])) for n in SETS["z"]
          if dets.ratio(*PARAMS[n][:3]) is not None}
-    eqs = [Equation(sympy.Symbol("rin"), q["rin"].expr), Equation(sympy.Symbol("gain"),
-                                                                  q["gain"].expr)]
+    eqs = [Equation(sympy.Symbol(n), q[n].expr) for n in ("rin", "gain") if n in q]
     if len(z) == 4:
         eqs = [Equation(sympy.Symbol("rin"), q["rin"].expr, z["z11"]),
                Equation(sympy.Symbol("gain"), q["gain"].expr, z["z21"] / z["z11"]),

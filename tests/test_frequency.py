@@ -1,0 +1,154 @@
+"""Frequency-domain annotation of s-dependent results."""
+import json
+import math
+
+import numpy as np
+import pytest
+import scipy.signal
+import sympy
+
+import derive
+from derive import frequency
+
+sym = sympy.Symbol
+s = sym("s")
+
+
+def results(text):
+    return derive.derive_text(text).results
+
+
+SALLEN_KEY = """
+voltage source Vin between in and gnd = 1 V
+resistor R1 between in and a = {R1}
+resistor R2 between a and b = {R2}
+capacitor C1 between a and out = {C1}
+capacitor C2 between b and gnd = {C2}
+opamp U1 inputs b, out output out
+port o between out and gnd
+port i between in and gnd
+find gain from Vin to o
+find model from i to o
+"""
+
+
+def _sk(R1="10 kohm", R2="10 kohm", C1="22 nF", C2="10 nF"):
+    return results(SALLEN_KEY.format(R1=R1, R2=R2, C1=C1, C2=C2))
+
+
+def test_sallen_key_w0_and_q():
+    r = _sk()[0]
+    f = frequency.rational_form(r.quantities["gain"].expr)
+    R1, R2, C1, C2 = (sym(n) for n in ("R1", "R2", "C1", "C2"))
+    # unity-gain Sallen-Key low pass (textbook): w0 = 1/sqrt(R1 R2 C1 C2),
+    # Q = sqrt(R1 R2 C1 C2)/(C2 (R1 + R2)) with C1 the feedback capacitor
+    assert sympy.simplify(f["w0"] - 1 / sympy.sqrt(R1 * R2 * C1 * C2)) == 0
+    assert sympy.simplify(f["Q"] - sympy.sqrt(R1 * R2 * C1 * C2) / (C2 * (R1 + R2))) == 0
+    assert f["dc_gain"] == 1
+    d = r.extra["frequency"]["gain"]
+    assert d["w0_value"] == pytest.approx(1 / math.sqrt(1e4 * 1e4 * 22e-9 * 10e-9))
+    # normalised sensitivities: every element -1/2 for w0 (from the closed form)
+    for x in ("R1", "R2", "C1", "C2"):
+        assert d["sensitivity"]["w0"][x]["value"] == pytest.approx(-0.5)
+    assert d["sensitivity"]["Q"]["C1"]["normalized"] == "1/2"
+    assert d["sensitivity"]["Q"]["R1"]["value"] == pytest.approx(0.0)     # equal resistors
+    assert all(st.verified for st in r.steps)
+
+
+def test_sallen_key_butterworth_matches_scipy():
+    # equal resistors and C1 = 2*C2 give Q = 1/sqrt(2) (Butterworth)
+    r = _sk(R1="10 kohm", R2="10 kohm", C1="20 nF", C2="10 nF")[0]
+    d = r.extra["frequency"]["gain"]
+    assert d["Q_value"] == pytest.approx(1 / math.sqrt(2))
+    w0 = d["w0_value"]
+    # reference: scipy.signal.butter, analog second-order Butterworth at w0
+    b, a = scipy.signal.butter(2, w0, analog=True)
+    nominal = derive.derive_text(SALLEN_KEY.format(R1="10 kohm", R2="10 kohm", C1="20 nF",
+                                                   C2="10 nF")).circuit.nominal_values()
+    f = frequency.rational_form(r.quantities["gain"].expr)
+    den = [float(c.xreplace(nominal)) for c in f["denominator"]]      # ascending, den[0] = 1
+    num = [float(c.xreplace(nominal)) for c in f["numerator"]]
+    # scale scipy's monic polynomial to a constant term of 1
+    np.testing.assert_allclose(list(reversed(a / a[-1])), den, rtol=1e-12)
+    np.testing.assert_allclose(list(reversed(b / a[-1])), num, rtol=1e-12, atol=1e-30)
+    _z, p, _k = scipy.signal.butter(2, w0, analog=True, output="zpk")
+    ours = [complex(*z) for z in d["poles_value"]]
+    np.testing.assert_allclose(sorted(p, key=lambda z: z.imag), sorted(ours, key=lambda z: z.imag),
+                               rtol=1e-9)
+
+
+def test_rc_low_pass_corner_and_bode():
+    text = """
+voltage source V between in and gnd = 1 V
+resistor R between in and out = 1 kohm
+capacitor C between out and gnd = 100 nF
+port o between out and gnd
+find gain from V to o
+find impedance at o
+"""
+    rs = results(text)
+    d = rs[0].extra["frequency"]["gain"]
+    assert d["w_corner"] == "1/(C*R)"
+    assert d["f_corner_value"] == pytest.approx(1 / (2 * math.pi * 1e3 * 100e-9))
+    assert d["poles_value"] == [[pytest.approx(-1e4), 0.0]]
+    assert d["sensitivity"]["w_corner"]["R"]["value"] == pytest.approx(-1)
+    # at the corner a first-order low pass is 3.01 dB down at -45 degrees (common practice,
+    # no source)
+    fc = d["f_corner_value"]
+    num, den = [1.0], [1.0, 1e-4]
+    f, mag, ph = frequency.bode_data(num, den, points=1, f_range=(fc, fc))
+    assert mag[0] == pytest.approx(-10 * math.log10(2))
+    assert ph[0] == pytest.approx(-45)
+    # the impedance R || 1/(sC) has the same corner
+    dz = rs[1].extra["frequency"]["impedance"]
+    assert dz["dc_gain"] == "R"
+    assert dz["w_corner_value"] == pytest.approx(1e4)
+
+
+def test_figures_drawn_and_json_clean(tmp_path):
+    rec = derive.derive_text(SALLEN_KEY.format(R1="10 kohm", R2="10 kohm", C1="22 nF",
+                                               C2="10 nF"))
+    figs = rec.results[0].extra["figures"]
+    assert [f.name for f in figs] == ["bode_find_gain_from_Vin_to_o_gain"]
+    path = tmp_path / "bode.png"
+    figs[0].draw(str(path))
+    assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    data = json.loads(rec.to_json())
+    fr = data["results"][0]["frequency"]["gain"]
+    assert fr["denominator"] == ["1", "C2*(R1 + R2)", "C1*C2*R1*R2"]
+    # the model of the same section: rin has a pole at the origin (C2 to ground in series)
+    m = data["results"][1]
+    assert m["frequency"]["rin"]["s_power"] == -1
+    assert m["frequency"]["rin"]["dc_gain"] is None
+
+
+def test_third_order_numeric_poles():
+    # three equal RC sections (R = 1 ohm, C = 1 F): denominator s^3 + 5 s^2 + 6 s + 1
+    # (from memory); poles compared with numpy.roots
+    text = """
+voltage source V between n0 and gnd = 1 V
+resistor R1 between n0 and n1 = 1 ohm
+capacitor C1 between n1 and gnd = 1 F
+resistor R2 between n1 and n2 = 1 ohm
+capacitor C2 between n2 and gnd = 1 F
+resistor R3 between n2 and n3 = 1 ohm
+capacitor C3 between n3 and gnd = 1 F
+port o between n3 and gnd
+find gain from V to o
+"""
+    d = results(text)[0].extra["frequency"]["gain"]
+    assert d["poles"] is None and d["w0"] is None
+    ours = sorted(complex(*z).real for z in d["poles_value"])
+    ref = sorted(np.roots([1, 5, 6, 1]).real)
+    np.testing.assert_allclose(ours, ref, rtol=1e-9)
+
+
+def test_rational_form_high_pass_and_roots():
+    R, C = sym("R"), sym("C")
+    f = frequency.rational_form(s * R * C / (1 + s * R * C))
+    assert f["s_power"] == 1 and f["dc_gain"] == 0
+    assert f["zeros"] == [0]
+    assert f["poles"] == [-1 / (C * R)]
+    L = sym("L")
+    g = frequency.rational_form(1 / (1 + s**2 * L * C))       # lossless: Q infinite
+    assert g["Q"] is None and sympy.simplify(g["w0"] - 1 / sympy.sqrt(L * C)) == 0
