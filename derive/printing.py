@@ -45,7 +45,21 @@ def latex_name(key: str) -> str:
              "lambda", "mu", "nu", "xi", "pi", "rho", "sigma", "tau", "phi", "chi", "psi",
              "omega", "Gamma", "Delta", "Theta", "Lambda", "Xi", "Pi", "Sigma", "Phi", "Psi",
              "Omega"}
+    if key in _QUANTITY:
+        return _QUANTITY[key]
+    m = re.match(r"^([A-Z])eq(\d+)_*$", key)
+    if m:
+        return f"{m.group(1)}_{{\\mathrm{{eq}}{m.group(2)}}}"
     parts = key.split("_")
+    if len(parts) == 3 and parts[0] in greek and parts[2] in ("t", "g") and parts[1]:
+        return f"\\{parts[0]}_{{\\mathrm{{{_esc(parts[1])}}}}}^{{\\mathrm{{{parts[2]}}}}}"
+    if len(parts) >= 3 and len(parts[0]) == 1 and all(parts[1:]):
+        return f"{parts[0]}_{{\\mathrm{{{_esc('.'.join(parts[1:]))}}}}}"
+    m = re.match(r"^([a-zA-Z])(" + "|".join(sorted(greek, key=len, reverse=True)) + r")$", key)
+    if m and key not in greek:
+        return f"{m.group(1)}_{{\\{m.group(2)}}}"
+    if re.match(r"^[a-z][a-z]{1,3}$", key) and key not in greek:
+        return f"{key[0]}_{{\\mathrm{{{key[1:]}}}}}"
     # an instance-qualified name: inst_Elem where Elem starts upper case
     if len(parts) >= 2 and re.match(r"^[A-Za-z]+\d*$", parts[0]) and parts[-1][:1].isupper() \
             and parts[0][:1].islower():
@@ -66,6 +80,10 @@ def latex_name(key: str) -> str:
     return r"\mathit{" + _esc(key) + "}" if len(key) > 1 else key
 
 
+_QUANTITY = {"vth": r"v_{\mathrm{th}}", "rth": r"R_{\mathrm{th}}", "isc": r"i_{\mathrm{sc}}",
+             "rn": r"R_{\mathrm{N}}", "rin": r"R_{\mathrm{in}}", "rout": r"R_{\mathrm{out}}"}
+
+
 def _esc(t: str) -> str:
     return t.replace("_", r"\_")
 
@@ -73,3 +91,54 @@ def _esc(t: str) -> str:
 def to_latex(expr) -> str:
     names = {s: latex_name(s.name) for s in expr.free_symbols}
     return LatexPrinter({"symbol_names": names, "mul_symbol": None}).doprint(expr)
+
+
+def equation_lines(lhs, rhs, width: int = 90) -> list:
+    """``lhs = rhs`` as lines of an ``aligned`` environment (``&=`` on the first line).
+
+    A long right-hand side is broken before its top-level ``+``/``-`` terms; a long
+    fraction is written as ``N/D`` with the numerator and denominator on lines of their
+    own (so no line runs off the page).
+
+    >>> import sympy
+    >>> a, b = sympy.symbols('R1 R2')
+    >>> equation_lines(sympy.Symbol('rth'), a + b)
+    ['R_{\\mathrm{th}} &= R_{1} + R_{2}']
+    >>> len(equation_lines(sympy.Symbol('x'), sum(sympy.symbols('a0:40')), width=40)) > 1
+    True
+    """
+    left = to_latex(lhs)
+    whole = to_latex(rhs)
+    if len(whole) <= width:
+        return [f"{left} &= {whole}"]
+    if isinstance(rhs, sympy.Add):
+        return _terms(left + " &= ", list(rhs.as_ordered_terms()), width)
+    num, den = sympy.fraction(rhs)
+    if den != 1 and isinstance(rhs, sympy.Mul):
+        out = [left + r" &= \frac{\mathcal{N}}{\mathcal{D}}"]
+        out += _terms(r"\mathcal{N} &= ", _addends(num), width)
+        out += _terms(r"\mathcal{D} &= ", _addends(den), width)
+        return out
+    return [f"{left} &= {whole}"]
+
+
+def _addends(e):
+    e = sympy.expand(e) if len(to_latex(e)) > 90 and not isinstance(e, sympy.Add) else e
+    return list(e.as_ordered_terms()) if isinstance(e, sympy.Add) else [e]
+
+
+def _terms(head, terms, width):
+    lines, cur = [], head
+    first = True
+    for t in terms:
+        neg = t.could_extract_minus_sign()
+        body = to_latex(-t if neg else t)
+        piece = ("- " if neg else "") + body if first else (" - " if neg else " + ") + body
+        if not first and len(cur) + len(piece) > width:
+            lines.append(cur)
+            cur = "&\\quad" + piece
+        else:
+            cur += piece
+        first = False
+    lines.append(cur)
+    return lines
