@@ -102,8 +102,8 @@ def equation_lines(lhs, rhs, width: int = 90) -> list:
 
     >>> import sympy
     >>> a, b = sympy.symbols('R1 R2')
-    >>> equation_lines(sympy.Symbol('rth'), a + b)
-    ['R_{\\mathrm{th}} &= R_{1} + R_{2}']
+    >>> print(equation_lines(sympy.Symbol('rth'), a + b)[0])
+    R_{\\mathrm{th}} &= R_{1} + R_{2}
     >>> len(equation_lines(sympy.Symbol('x'), sum(sympy.symbols('a0:40')), width=40)) > 1
     True
     """
