@@ -37,9 +37,10 @@ import dataclasses
 from dataclasses import dataclass, field
 from typing import Optional
 
+import flint
 import sympy
 
-from . import forms
+from . import edge, forms
 from .analysis import Context, RequestResult, handler
 from .circuit import S as LAPLACE_S
 from .errors import SheetError
@@ -78,11 +79,122 @@ def form_of(q) -> Form:
 
 
 def tidy(e: sympy.Expr) -> sympy.Expr:
-    """The shorter of ``e`` and its factored form (factored only when small)."""
-    if e.is_Atom or sympy.count_ops(e) > TIDY_OPS:
+    """The shorter of ``e`` and its cancelled, factored form.
+
+    The rational function is rebuilt exactly as a ratio of python-flint polynomials
+    (:func:`rational`), cancelled and factored there; forms with roots are factored by sympy
+    when small, else left as they are.
+    """
+    if e.is_Atom:
         return e
-    f = sympy.factor(sympy.cancel(sympy.together(e)))
+    r = rational(e)
+    if r is not None:
+        f = _factored(*r)
+    elif sympy.count_ops(e) <= TIDY_OPS:
+        f = sympy.factor(sympy.cancel(sympy.together(e)))
+    else:
+        return e
     return f if len(str(f)) <= len(str(e)) else e
+
+
+def rational(e: sympy.Expr):
+    """(num, den, symbols): ``e`` as a cancelled ratio of flint polynomials over its free
+    symbols, or None when ``e`` is not a rational function (roots, other functions)."""
+    syms = sorted(e.free_symbols, key=str)
+    if not syms:
+        return None
+    ctx = flint.fmpq_mpoly_ctx.get(tuple(f"v{i}" for i in range(len(syms))), "lex")
+    gens = dict(zip(syms, ctx.gens()))
+    memo: dict = {}
+
+    def conv(x):
+        if x in memo:
+            return memo[x]
+        if x.is_Symbol:
+            r = (gens[x], ctx.constant(1))
+        elif x.is_Rational:
+            r = (ctx.constant(flint.fmpq(int(x.p), int(x.q))), ctx.constant(1))
+        elif x.is_Add:
+            n, d = conv(x.args[0])
+            for a in x.args[1:]:
+                n2, d2 = conv(a)
+                g = d.gcd(d2)
+                n, d = n * (d2 / g) + n2 * (d / g), d * (d2 / g)
+            r = _cancel(n, d)
+        elif x.is_Mul:
+            n, d = ctx.constant(1), ctx.constant(1)
+            for a in x.args:
+                n2, d2 = conv(a)
+                n, d = n * n2, d * d2
+            r = _cancel(n, d)
+        elif x.is_Pow and x.exp.is_Integer:
+            n, d = conv(x.base)
+            k = int(x.exp)
+            r = (n ** k, d ** k) if k >= 0 else (d ** -k, n ** -k)
+        else:
+            raise _NotRational
+        if r[1].is_zero():
+            raise _NotRational
+        memo[x] = r
+        return r
+    try:
+        n, d = conv(e)
+    except _NotRational:
+        return None
+    return n, d, syms
+
+
+class _NotRational(Exception):
+    pass
+
+
+def _cancel(n, d):
+    g = n.gcd(d)
+    if not g.is_one() and not g.is_zero():
+        n, d = n / g, d / g
+    lc = d.leading_coefficient()
+    return n / lc, d / lc
+
+
+def _factored(n, d, syms) -> sympy.Expr:
+    n, d = _cancel(n, d)
+    return edge.factored_expr(n, syms) / edge.factored_expr(d, syms)
+
+
+def _rational_derivative(e, x):
+    """(dQ/dx, x/Q·dQ/dx) tidied, for a rational ``e``; None otherwise."""
+    r = rational(e)
+    if r is None or x not in r[2]:
+        return None
+    n, d, syms = r
+    i = syms.index(x)
+    num = n.derivative(i) * d - n * d.derivative(i)
+    dq = _factored(num, d * d, syms)
+    if n.is_zero():
+        return dq, None
+    xg = n.context().gens()[i]
+    return dq, _factored(xg * num, n * d, syms)
+
+
+def agree(a, b, points: int = 3, seed: int = 5) -> bool:
+    """Whether two expressions agree at ``points`` random rational points, evaluated exactly
+    (a wrong identity of rational functions passes only with negligible probability,
+    Schwartz-Zippel lemma). Points where either side is undefined are skipped."""
+    import random
+    rnd = random.Random(seed)
+    syms = sorted(a.free_symbols | b.free_symbols, key=str)
+    for _ in range(points):
+        pt = {x: sympy.Rational(rnd.randint(1, 10 ** 6), rnd.randint(1, 10 ** 3)) for x in syms}
+        try:
+            va, vb = a.xreplace(pt), b.xreplace(pt)
+        except ZeroDivisionError:
+            continue
+        if va.has(sympy.zoo, sympy.nan) or vb.has(sympy.zoo, sympy.nan):
+            continue
+        diff = va - vb
+        if (diff != 0) if diff.is_Rational else (sympy.simplify(diff) != 0):
+            return False
+    return True
 
 
 def _fresh(base: str, taken: set) -> sympy.Symbol:
@@ -102,7 +214,11 @@ def derivative(form: Form, x: sympy.Symbol, taken: Optional[set] = None):
     """
     if not form.defs:
         raw = sympy.diff(form.final, x)
-        return Form([], tidy(raw)), raw
+        fast = _rational_derivative(form.final, x)
+        best = raw if fast is None or len(str(raw)) < len(str(fast[0])) else fast[0]
+        if fast is None and not raw.is_Atom:
+            best = tidy(raw)
+        return Form([], best), raw
     taken = set(taken or ()) | {str(q) for q, _ in form.defs} | {str(s) for s in form.base_symbols()}
     d: dict = {}
     new = []
@@ -198,7 +314,9 @@ def _analyse(ctx, q, form: Form, nominal: dict) -> Analysed:
         d, raw = derivative(form, x, taken)
         taken |= {str(n) for n, _ in d.defs}
         if not form.defs:
-            norm = tidy(x * d.final / form.final)
+            fast = _rational_derivative(form.final, x)
+            norm = fast[1] if fast is not None and fast[1] is not None \
+                else tidy(x * d.final / form.final)
         else:
             norm = x * d.final / form.final
         dv = d.value(nominal)
@@ -251,9 +369,12 @@ def _steps(a: Analysed) -> list:
         if s.raw is None:
             continue
         dsym = sympy.Symbol(f"d{name}/d{s.symbol}")
-        eqs.append(Equation(dsym, s.deriv.final, check=s.raw))
-        eqs.append(Equation(sympy.Symbol(f"S_{s.symbol}"), s.normalized,
-                            check=s.symbol * s.raw / a.form.final))
+        e1 = Equation(dsym, s.deriv.final, check=s.raw)
+        e2 = Equation(sympy.Symbol(f"S_{s.symbol}"), s.normalized,
+                      check=s.symbol * s.raw / a.form.final)
+        for e in (e1, e2):      # checked against sympy's own derivative of Q
+            e.verified = agree(e.rhs, e.check)
+        eqs += [e1, e2]
     st = Step(txt, eqs, [str(s.symbol) for s in a.sens], kind="sensitivity")
     st.verify()
     steps.append(st)
