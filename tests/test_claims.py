@@ -1,0 +1,106 @@
+"""check Q at P equals EXPR: exact verdicts, counterexamples, diagnoses, dimension errors."""
+import json
+from fractions import Fraction
+
+import pytest
+
+import derive
+from derive import cli
+from derive.claims import check_lines
+
+NETWORK = """title "Claim checks"
+voltage source V between top and gnd = 5 V
+resistor Ra between top and out = 1 kohm
+resistor Rb between out and gnd = 2 kohm
+resistor Rc between out and gnd = 3 kohm
+resistor R1 between top and x = 1 kohm
+resistor R2 between x and gnd = 1 kohm
+port out between out and gnd
+port px between x and gnd
+"""
+
+
+def check(claim):
+    rec = derive.derive_text(NETWORK + claim + "\n", "c.eqv")
+    return rec.results[0].extra, rec
+
+
+def test_equivalent_form_holds():
+    ex, rec = check("check rth at out equals 1/(1/Ra + 1/Rb + 1/Rc)")
+    assert ex["holds"] is True and ex["counterexample"] is None and ex["diagnosis"] is None
+    assert ex["method"].startswith("exact cancellation")
+    assert ex["dimensions"] == "dimensions agree (Ω)"
+    assert all(s.verified for s in rec.results[0].steps)
+    ex, _ = check("check vth at out equals V*(Rb||Rc)/(Ra + Rb||Rc)")
+    assert ex["holds"] is True
+
+
+def test_missing_parallel_term():
+    ex, rec = check("check rth at out equals Ra||Rb")
+    assert ex["holds"] is False
+    assert ex["diagnosis"] == "agrees with rth when Rc → ∞ (the claim leaves out Rc)"
+    # counterexample at nominal values; rth = 1k||2k||3k = 6000/11, claim 1k||2k = 2000/3
+    # (hand arithmetic)
+    cx = ex["counterexample"]
+    assert cx["at_nominal"] is True and cx["point"] == {"Ra": 1000.0, "Rb": 2000.0, "Rc": 3000.0}
+    assert cx["quantity"] == pytest.approx(6000 / 11) and cx["claim"] == pytest.approx(2000 / 3)
+    assert ex["relative_error"] == pytest.approx(float(Fraction(2000, 3) / Fraction(6000, 11) - 1))
+    lines, ok = check_lines(rec)
+    assert not ok and lines[0].startswith("FAIL line 10: check rth at out equals Ra||Rb — ")
+
+
+def test_factor_two_and_sign():
+    ex, _ = check("check rth at out equals 2*(Ra||Rb||Rc)")
+    assert ex["holds"] is False and ex["diagnosis"].startswith("differs by a factor 2")
+    assert ex["relative_error"] == pytest.approx(1.0)
+    ex, _ = check("check rth at out equals -(Ra||Rb||Rc)")
+    assert ex["diagnosis"].startswith("differs in sign")
+
+
+def test_dimension_error_names_the_term():
+    ex, _ = check("check rth at px equals R1 + R1*R2")
+    assert ex["holds"] is False
+    assert ex["diagnosis"] == "dimension error: the term R1*R2 is Ω², but R1 is Ω"
+    ex, _ = check("check rth at px equals R1*R2 + R1")      # the odd term named wherever it is
+    assert ex["diagnosis"] == "dimension error: the term R1*R2 is Ω², but R1 is Ω"
+    ex, _ = check("check vth at px equals R1*R2/(R1 + R2)")
+    assert ex["diagnosis"] == "dimension error: the claim is Ω, vth is V"
+
+
+def test_approximation_is_named():
+    ex, _ = check("check vth at px equals V*R2/R1")
+    assert ex["holds"] is False
+    assert "relative error vanishes when R1 → ∞ or when R2 → 0" in ex["diagnosis"]
+
+
+def test_unitless_gain_does_not_raise_false_dimension_errors():
+    text = """voltage source Vi between a and gnd = 1 V
+resistor Ri between a and gnd = 1 kohm
+current source G1 from out to gnd = gm*across(a, gnd)
+nominal gm = 0.01
+resistor Rl between out and gnd = 1 kohm
+port o between out and gnd
+check vth at o equals -gm*Rl*Vi
+"""
+    ex = derive.derive_text(text, "g.eqv").results[0].extra
+    assert ex["holds"] is True and ex["dimensions"].startswith("dimension not checked")
+
+
+def test_json_keys():
+    rec = derive.derive_text(NETWORK + "check rth at out equals Ra||Rb\n", "c.eqv")
+    res = json.loads(rec.to_json())["results"][0]
+    assert res["holds"] is False and res["counterexample"]["at_nominal"] is True
+    assert {"diagnosis", "relative_error", "steps"} <= set(res)
+
+
+def test_cli_exit_status(tmp_path, capsys):
+    good = tmp_path / "good.eqv"
+    good.write_text(NETWORK + "check rth at px equals R1||R2\n")
+    assert cli.main(["check", str(good)]) == 0
+    assert capsys.readouterr().out == "PASS line 10: check rth at px equals R1||R2\n"
+    bad = tmp_path / "bad.eqv"
+    bad.write_text(NETWORK + "check rth at px equals R1||R2\ncheck rth at px equals R1\n")
+    assert cli.main(["check", str(bad)]) == 1
+    out = capsys.readouterr().out.splitlines()
+    assert out[0].startswith("PASS line 10") and out[1].startswith("FAIL line 11")
+    assert "agrees with rth when R2 → ∞" in out[1]
