@@ -31,7 +31,7 @@ import sympy
 
 from .analysis import Context, RequestResult, handler
 from .errors import SheetError
-from .sensitivity import Form, analysed, _f, _g, _slug
+from . import sensitivity as _sens     # module object: the two modules import each other
 from .steps import Step
 
 QUANTILES = (0.00135, 0.99865)
@@ -314,7 +314,7 @@ def spread_of(ctx: Context, a, req) -> tuple:
     sval = {s.symbol: s.s_value for s in a.sens}
     for x, c in sorted(rows, key=lambda r: -r[1]):
         t = ctx.circuit.symbols[str(x)].tolerance
-        table.append([str(x), f"±{float(t) * 100:g} %", _g(sval.get(x)), f"{c:.6g}",
+        table.append([str(x), f"±{float(t) * 100:g} %", _sens._g(sval.get(x)), f"{c:.6g}",
                       f"{(c / wc * 100 if wc else 0):.1f} %", mono.get(x, "")])
     steps = [
         Step(f"Linear worst case: {name} = {q0:.6g}{u} ± Σ|d{name}/dx|·|x0|·t = ± {wc:.6g}{u}, "
@@ -339,7 +339,7 @@ def tolerance(ctx: Context, req) -> RequestResult:
     from . import plots
     res = RequestResult(req)
     by, figs = {}, []
-    for a in analysed(ctx, req):
+    for a in _sens.analysed(ctx, req):
         out, steps, values = spread_of(ctx, a, req)
         by[a.q.name] = out
         res.steps.extend(steps)
@@ -348,7 +348,7 @@ def tolerance(ctx: Context, req) -> RequestResult:
                                        out["worst_case_linear"]["high"]),
                  "extreme values": (out["spread"]["low"], out["spread"]["high"])}
         figs.append(plots.histogram_figure(
-            f"{_slug(req.text)}-{a.q.name}",
+            f"{_sens._slug(req.text)}-{a.q.name}",
             f"Monte Carlo spread of {a.q.name} ({out['monte_carlo']['samples']} samples) with "
             "the linear worst-case and extreme-value limits.", counts, edges, a.q.name, a.q.unit,
             marks))
