@@ -96,6 +96,9 @@ def _basic(ctx: Context, req) -> RequestResult:
 
 def analyse(circuit: Circuit, options: Options | None = None) -> list:
     """Answer every request of ``circuit``; a list of :class:`RequestResult`."""
+    prepare = HANDLERS.get("replace")    # instances replaced by section models (sections.py)
+    if prepare is not None:
+        circuit = prepare(circuit, options or Options())
     ctx = Context(circuit, options or Options())
     results = []
     for req in circuit.requests:
