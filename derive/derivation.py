@@ -205,11 +205,16 @@ def _move_step(m, env, defs) -> Step:
                         f"whatever {_label(t)} is; {_label(t)} is absorbed.", [], members,
                         kind="reduction")
         zl = _zname(r, defs)
-        eqs = [Equation(zl, x.Z + y.Z, check=r.Z, defs=_with(defs, zl, r.Z))]
+        eqs = [Equation(zl, x.Z + y.Z, check=r.Z, defs=_with(defs, zl, r.Z))] \
+            if r.Z in defs else []
         ex, ey = x.E.xreplace(env), y.E.xreplace(env)
-        if ex != 0 and ey != 0:
-            el = r.E.xreplace(env)
+        el = r.E.xreplace(env)
+        if ex != 0 and ey != 0 and el in defs:
             eqs.append(Equation(_vname(r, el, defs), ex + ey, check=el, defs=defs))
+        if not eqs:
+            return Step(f"{_label(x)} and {_label(y)} are in series: nothing else connects at "
+                        f"node {m['node']}, so they form one branch, a source {el} behind "
+                        f"{r.Z}.", [], members, kind="reduction")
         return Step(f"{_label(x)} and {_label(y)} are in series: nothing else connects at node "
                     f"{m['node']}, so they carry the same current; impedances (and source "
                     "voltages) add.", eqs, members, kind="reduction")

@@ -11,7 +11,8 @@ def render(record, fmt: str, args=None):
     if fmt == "json":
         return record.to_json()
     if fmt == "md":
-        return record.to_markdown(template)
+        from .export_markdown import record_markdown
+        return record_markdown(record, template, getattr(args, "output", None))
     if fmt in ("tex", "pdf"):
         try:
             from . import export_latex
