@@ -265,3 +265,65 @@ find model from P1 to P2
 """
     with pytest.raises(SheetError, match="not part of the section"):
         results(text)
+
+
+# ------------------------------------------------------------------ model reuse
+REUSE = """
+block ce (b, c, ref)
+  resistor rpi between b and ref = 2.5 kohm
+  current source G1 from c to ref = gm*across(b, ref)
+  resistor Rc between c and ref = 4.7 kohm
+  {extra}
+end
+nominal gm = 40 mS
+voltage source Vs between src and gnd = 1 mV
+resistor Rs between src and in = 600 ohm
+use ce q1 (in, mid, gnd)
+resistor RL between mid and gnd = 10 kohm
+port pin between in and gnd
+port pmid between mid and gnd
+replace q1 by model from pin to pmid compare
+find gain from Vs to pmid
+"""
+
+
+def _cascade(e, Rs, RL):
+    # cascade of a voltage-amplifier model between a source resistance and a load:
+    # rin/(Rs + rin) * gain * RL/(rout + RL) (common practice, no source)
+    return e["rin"] / (Rs + e["rin"]) * e["gain"] * RL / (e["rout"] + RL)
+
+
+@pytest.mark.parametrize("extra,exact", [("", True),
+                                         ("resistor Rf between c and b = 100 kohm", False)])
+def test_replace_by_model(extra, exact):
+    r = results(REUSE.format(extra=extra))[0]
+    sub = r.extra["substitution"][0]
+    assert sub["instance"] == "q1" and sub["unilateral"] is exact
+    rpi, gm, Rc, Rs, RL = (sym(n) for n in ("q1_rpi", "gm", "q1_Rc", "Rs", "RL"))
+    if exact:
+        assert sub["rin"] == "q1_rpi" and sub["rout"] == "q1_Rc"
+        e = {"rin": rpi, "gain": -gm * Rc, "rout": Rc}
+    else:
+        # the same stage alone, modelled by find model (signal source across its input)
+        alone = REUSE.format(extra=extra).replace("resistor Rs between src and in = 600 ohm\n",
+                                                  "").replace("between src and gnd",
+                                                              "between in and gnd")
+        alone = alone.replace("resistor RL between mid and gnd = 10 kohm\n", "").replace(
+            "replace q1 by model from pin to pmid compare\nfind gain from Vs to pmid",
+            "find model from pin to pmid")
+        e = {k: q.expr for k, q in results(alone)[0].quantities.items()}
+    assert same(r.quantities["gain"].expr, _cascade(e, Rs, RL))
+    err = r.extra["model_error"]["gain"]
+    assert err["model"] == pytest.approx(r.quantities["gain"].value)
+    if exact:
+        assert err["relative"] == pytest.approx(0.0, abs=1e-15)
+    else:
+        # the feedback resistor's reverse transmission is neglected by the model
+        assert abs(err["relative"]) > 1e-3
+    assert r.steps[0].kind == "substitution" and r.steps[0].verified
+
+
+def test_replace_unknown_instance_is_an_error():
+    text = REUSE.format(extra="").replace("replace q1", "replace q9")
+    with pytest.raises(SheetError, match="no instance 'q9'"):
+        results(text)
