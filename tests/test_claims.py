@@ -104,3 +104,25 @@ def test_cli_exit_status(tmp_path, capsys):
     out = capsys.readouterr().out.splitlines()
     assert out[0].startswith("PASS line 10") and out[1].startswith("FAIL line 11")
     assert "agrees with rth when R2 → ∞" in out[1]
+
+
+def test_sequence_only_quantity_uses_exact_random_points(monkeypatch):
+    """A quantity known only as named intermediates: exact rational evaluation, said so."""
+    from derive import forms
+    real = forms.port_quantities
+
+    def sequence_only(ctx, req):
+        out = real(ctx, req)
+        for q in out:
+            if q.sequence:
+                q.expr = None
+        return out
+
+    monkeypatch.setattr(forms, "port_quantities", sequence_only)
+    import derive.analysis as analysis
+    c = derive.circuit_of(NETWORK + "check rth at out equals 1/(1/Ra + 1/Rb + 1/Rc)\n"
+                          "check rth at out equals Ra||Rb\n", "c.eqv")
+    ctx = analysis.Context(c, analysis.Options(expand_limit=0))
+    good, bad = (analysis.HANDLERS["check"](ctx, r).extra for r in c.requests)
+    assert good["holds"] is True and "random rational points" in good["method"]
+    assert bad["holds"] is False and "Rc → ∞" in bad["diagnosis"]
