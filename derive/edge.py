@@ -117,6 +117,9 @@ def to_sympy(ratio) -> sympy.Expr:
     return e
 
 
+_NOT_EXACT = object()   # var_values: some value is not a finite rational
+
+
 def var_values(system, nominal: dict):
     """Exact values (flint fmpq) of every ring variable at nominal values, or None if some
     variable has no value (a symbol without nominal, or ``s``)."""
@@ -127,10 +130,12 @@ def var_values(system, nominal: dict):
         if not x.is_number:
             return None
         if v.kind == "recip":
+            if x == 0:
+                return _NOT_EXACT      # a resistance of nominal 0: evaluate the closed form
             x = 1 / x
         x = sympy.nsimplify(x) if not x.is_Rational else x
         if not x.is_Rational:
-            return [complex(sympy.N(e.xreplace(nominal))) for v in system.vars]
+            return _NOT_EXACT          # an irrational value (sqrt): evaluate the closed form
         vals.append(flint.fmpq(int(x.p), int(x.q)))
     return vals
 
@@ -140,6 +145,12 @@ def value_at(ratio, nominal: dict):
     vals = var_values(ratio.system, nominal)
     if vals is None:
         return None
+    if vals is _NOT_EXACT:
+        v = sympy.cancel(to_sympy(ratio).xreplace(nominal))
+        if not v.is_number or v.has(sympy.zoo, sympy.nan, sympy.oo):
+            return None
+        v = complex(sympy.N(v))
+        return v.real if v.imag == 0 else v
     if not ratio.system.vars:
         n, d = ratio.num.to_dict(), ratio.den.to_dict()
         num = n.get((0,), 0) if n else 0

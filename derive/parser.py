@@ -41,6 +41,111 @@ def parse_sheet(text: str, filename: str = "<sheet>") -> Sheet:
         raise e.with_context(text, filename)
 
 
+MAX_NESTING = 100        # parentheses nested in one expression
+MAX_OPERATORS = 400      # operators in one line (a longer sum is split with 'nominal' lines)
+_STRING_OR_COMMENT = re.compile(r'"(\\.|[^"\\\r\n])*"|#[^\r\n]*')
+
+
+def _check_nesting(source: str) -> None:
+    """Refuse expressions nested or chained too deeply to be handled, before parsing.
+    (Unary signs and powers are operators too, so a chain of them is bounded as well.)
+
+    >>> _check_nesting("resistor R between a and b = ((1))")
+    >>> _check_nesting("resistor R between a and b = " + "(" * 101 + "1" + ")" * 101)
+    Traceback (most recent call last):
+    ...
+    derive.errors.SheetError: <sheet>:1:130: error: the expression nests more than 100 levels deep
+    """
+    for lineno, line in enumerate(source.splitlines(), 1):
+        code = _STRING_OR_COMMENT.sub(lambda m: " " * len(m.group(0)), line)
+        depth = ops = 0
+        for col, ch in enumerate(code, 1):
+            if ch == "(":
+                depth += 1
+                if depth > MAX_NESTING:
+                    raise SheetError(f"the expression nests more than {MAX_NESTING} levels "
+                                     "deep", lineno, col)
+            elif ch == ")":
+                depth = max(depth - 1, 0)
+            elif ch in "+-*/^|\u2225":
+                ops += 1
+                if ops > MAX_OPERATORS:
+                    raise SheetError(f"the line has more than {MAX_OPERATORS} operators",
+                                     lineno, col, hint="split a long expression with "
+                                     "'nominal' lines or intermediate elements")
+
+
+MAX_DIGITS = 40          # digits in one written number
+MAX_MAGNITUDE = Fraction(10) ** 30   # nonzero values must lie in [1e-30, 1e30]
+_NUMBER_PARTS = re.compile(r"(\d*)(?:\.(\d*))?(?:[eE]([+-]?\d+))?")
+
+
+def _check_number_text(tok) -> None:
+    """Refuse numbers whose digits or exponent are too long to convert safely (before the
+    exact conversion, which would otherwise build an enormous integer)."""
+    m = _NUMBER_PARTS.match(str(tok))
+    digits = len(m.group(1) or "") + len(m.group(2) or "")
+    if digits > MAX_DIGITS:
+        raise _err(f"the number has more than {MAX_DIGITS} digits", tok)
+    exp = m.group(3)
+    if exp is not None and (len(exp.lstrip("+-")) > 3 or abs(int(exp)) > 60):
+        raise _err(f"the exponent e{exp} is out of range (at most e±60)", tok)
+
+
+def _check_magnitude(value, tok) -> None:
+    if value and not (1 / MAX_MAGNITUDE <= abs(value) <= MAX_MAGNITUDE):
+        raise _err("the value is outside the range this tool handles (1e-30 to 1e30 in "
+                   "magnitude)", tok)
+
+
+MAX_EXPONENT = 1000      # a power's constant exponent
+MAX_BITS = 20000         # bits of an exact constant built from powers
+
+
+def _const(node):
+    """The exact value of a constant expression tree (None where it has a name or call);
+    a power is only evaluated after :func:`_check_power` has bounded it."""
+    if isinstance(node, Num):
+        return node.value
+    if isinstance(node, Neg):
+        v = _const(node.operand)
+        return None if v is None else -v
+    if not isinstance(node, BinOp):
+        return None
+    a, b = _const(node.left), _const(node.right)
+    if a is None or b is None:
+        return None
+    if node.op == "+":
+        return a + b
+    if node.op == "-":
+        return a - b
+    if node.op == "*":
+        return a * b
+    if node.op == "/":
+        return a / b if b else None
+    if node.op == "||":
+        return a * b / (a + b) if a + b else None
+    if b.denominator != 1 or (a == 0 and b < 0):
+        return None
+    return a ** int(b)
+
+
+def _check_power(node) -> None:
+    """Refuse powers whose exact value or expansion would run away (``10^10^10``)."""
+    exp = _const(node.right)
+    where = (node.loc.line, node.loc.col)
+    if exp is None:
+        return
+    if abs(exp) > MAX_EXPONENT:
+        raise SheetError(f"the exponent {float(exp):.6g} is too large (at most "
+                         f"{MAX_EXPONENT})", *where)
+    base = _const(node.left)
+    if base is not None and exp.denominator == 1 and base:
+        bits = max(base.numerator.bit_length(), base.denominator.bit_length())
+        if bits * abs(int(exp)) > MAX_BITS:
+            raise SheetError("the power is too large to handle exactly", *where)
+
+
 def _loc(item) -> Loc:
     if isinstance(item, Token):
         return Loc(item.line, item.column)
@@ -86,6 +191,7 @@ class _Builder:
         if not source.endswith("\n"):
             source += "\n"
         self.src = source
+        _check_nesting(source)
         try:
             tree = get_parser().parse(source)
         except UnexpectedInput as e:
@@ -377,12 +483,21 @@ class _Builder:
 
     # ------------------------------------------------------------------ numbers
     def _number(self, tok: Token):
+        _check_number_text(tok)
         try:
-            return parse_number(str(tok))
+            number = parse_number(str(tok))
         except UnitError as e:
             raise self._unit_error(e, tok, None) from None
+        _check_magnitude(number.value, tok)
+        return number
 
     def _quantity(self, tok: Token, word: Optional[Token], missing_star: bool = False):
+        _check_number_text(tok)
+        value, unit = self._quantity_of(tok, word, missing_star)
+        _check_magnitude(value, tok)
+        return value, unit
+
+    def _quantity_of(self, tok: Token, word: Optional[Token], missing_star: bool = False):
         if word is not None and missing_star:
             try:
                 return parse_quantity(str(tok), str(word))
@@ -440,7 +555,10 @@ class _Builder:
             return self._expr(ch[1])
         if kind == "binop":
             op = "||" if ch[1].type == "PAR" else str(ch[1])
-            return BinOp(op, self._expr(ch[0]), self._expr(ch[2]), _loc(ch[1]))
+            out = BinOp(op, self._expr(ch[0]), self._expr(ch[2]), _loc(ch[1]))
+            if op == "^":
+                _check_power(out)
+            return out
         if kind == "call":
             return self._call(node)
         raise _err(f"unexpected {kind}", node)           # pragma: no cover
