@@ -17,6 +17,8 @@ JSON (in ``RequestResult.extra``):
   sequence-only derivatives carry ``"sequence"``/``"in_sequence"`` instead of ``"expr"``.
 - ``"sensitivity_of"``: the name of the quantity under ``"sensitivities"``.
 - ``"sensitivities_by_quantity"``: ``{name: {x: ...}}`` for every member (always present).
+- ``"quantity_sequences"``: ``{name: {"sequence", "in_sequence"}}`` for members that exist
+  only as a sequence (the derivative sequences use these names).
 - ``"figures"``: ranked bar charts (:class:`derive.steps.Figure`, not JSON).
 
 Sensitivities are always taken with every symbol symbolic (a ``numeric`` line or
@@ -410,6 +412,10 @@ def sensitivity(ctx: Context, req) -> RequestResult:
     res.extra["sensitivity_of"] = items[0].q.name
     res.extra["sensitivities"] = by[items[0].q.name]
     res.extra["sensitivities_by_quantity"] = by
+    seqs = {a.q.name: {"sequence": [[str(n), to_text(x)] for n, x in a.form.defs],
+                       "in_sequence": to_text(a.form.final)} for a in items if a.form.defs}
+    if seqs:        # the names that sequence-form derivatives refer to
+        res.extra["quantity_sequences"] = seqs
     figs = []
     for a in items:
         res.steps.extend(_steps(a))

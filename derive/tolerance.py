@@ -272,12 +272,22 @@ def monte_carlo(form: Form, nominal: dict, box: dict, samples=100_000, seed=1,
     """(values array, dict for JSON) by seeded sampling of the box."""
     rng = np.random.default_rng(seed)
     env = {x: float(v) for x, v in nominal.items()}
-    for x in sorted(box, key=str):
+    order = sorted(box, key=str)
+    # one draw for all parts (row k belongs to order[k]), scaled in place
+    if distribution == "normal":
+        u = rng.standard_normal((len(order), samples))
+    else:
+        u = rng.random((len(order), samples))
+    for k, x in enumerate(order):
         c, h = float(box[x][0]), float(box[x][1])
+        row = u[k]
         if distribution == "normal":
-            env[x] = c + (h / 3.0) * rng.standard_normal(samples)
+            row *= h / 3.0
+            row += c
         else:
-            env[x] = c + h * rng.uniform(-1.0, 1.0, samples)
+            row *= 2.0 * h
+            row += c - h
+        env[x] = row
     v = np.broadcast_to(np.asarray(_vec(form)(env), dtype=float), (samples,))
     lo, hi = np.quantile(v, QUANTILES)
     return v, {"samples": int(samples), "seed": int(seed), "distribution": distribution,
