@@ -75,20 +75,27 @@ def diagnose(q_expr, claim, name: str) -> str:
         if r == -1:
             return f"differs in sign: the claim is -{name}"
         return f"differs by a factor {to_text(r)}: the claim is {to_text(r)}·{name}"
-    agree = []
+    agree, relative = [], []
     syms = sorted(q_expr.free_symbols | claim.free_symbols, key=lambda s: s.name)
     for x in syms:
         for at_inf, label in ((False, "0"), (True, "∞")):
             lq = _rational_limit(q_expr, x, at_inf)
             lc = _rational_limit(claim, x, at_inf)
-            if _degenerate(lq) or lc is None or lc == sympy.oo:
+            if lq is None or lc is None:
                 continue
-            if sympy.cancel(sympy.together(lc - lq)) == 0:
-                missing = " (the claim leaves out " + x.name + ")" \
-                    if x not in claim.free_symbols else ""
-                agree.append(f"{x.name} → {label}{missing}")
+            if not _degenerate(lq) and lc != sympy.oo:
+                if sympy.cancel(sympy.together(lc - lq)) == 0:
+                    missing = " (the claim leaves out " + x.name + ")" \
+                        if x not in claim.free_symbols else ""
+                    agree.append(f"{x.name} → {label}{missing}")
+            elif _rational_limit(r, x, at_inf) == 1:
+                relative.append(f"{x.name} → {label}")
     if agree:
         return f"agrees with {name} when " + " or when ".join(agree)
+    if relative:
+        return (f"agrees with {name} only approximately: the relative error vanishes when "
+                + " or when ".join(relative) + f" (claim/{name} = "
+                f"{to_text(sympy.factor(r))})")
     return (f"no single symbol sent to 0 or ∞ makes it agree, and claim/{name} = "
             f"{to_text(sympy.factor(r))} is not constant")
 
