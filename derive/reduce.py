@@ -205,7 +205,8 @@ def source_values(circuit, subs=None, only=None, none=False):
     for e in circuit.elements:
         if e.independent_source:
             v = e.value.xreplace(subs) if subs else e.value
-            out[_src(e.name)] = 0 if none else (v if only is None else int(e.name == only))
+            out[_src(e.name)] = sympy.Integer(0) if none else (
+                v if only is None else sympy.Integer(int(e.name == only)))
     return out
 
 
