@@ -14,6 +14,7 @@ from __future__ import annotations
 import random
 
 import sympy
+from sympy.core.sympify import _sympify
 
 from . import analysis, dimensions
 from .circuit import S, key_of
@@ -56,7 +57,7 @@ def _rational_limit(e, x, at_infinity: bool):
         return sympy.oo
     if kn != kd:
         return sympy.Integer(0)
-    return sympy.factor(sympy.sympify(cn) / sympy.sympify(cd))
+    return sympy.factor(_sympify(cn) / _sympify(cd))   # strict: never parses text
 
 
 def _degenerate(v) -> bool:

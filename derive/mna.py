@@ -22,6 +22,7 @@ from dataclasses import dataclass, field
 
 import flint
 import sympy
+from sympy.core.sympify import _sympify
 
 from .circuit import S, Circuit
 from .errors import SheetError
@@ -104,7 +105,7 @@ class System:
         self._plan(expr, recip, register=True)
 
     def _plan(self, expr, recip, register=False):
-        expr = sympy.sympify(expr) if not isinstance(expr, sympy.Basic) else expr
+        expr = _sympify(expr) if not isinstance(expr, sympy.Basic) else expr
         if recip:
             if expr == 0:
                 raise ZeroDivisionError
