@@ -145,6 +145,22 @@ def derivative_sign(dform: Form, box: dict, split: list) -> int | None:
     return sign or None
 
 
+def proven_bounded(form: Form, box: dict, split: list) -> bool:
+    """Whether a finite enclosure of Q is found on every part of a bisection of the box."""
+    todo, seen = [dict(box)], 0
+    while todo:
+        b = todo.pop()
+        seen += 1
+        if form_interval(form, b) is not None:
+            continue
+        if seen + len(todo) >= MAX_BOXES or not split:
+            return False
+        y = max(split, key=lambda v: (b[v][1] - b[v][0]) / (box[v][1] - box[v][0]))
+        lo, hi = b[y]
+        todo += [{**b, y: (lo, 0.5 * (lo + hi))}, {**b, y: (0.5 * (lo + hi), hi)}]
+    return True
+
+
 # -- the box and the methods ----------------------------------------------------------------
 def box_of(ctx: Context, symbols) -> dict:
     """Symbol -> (nominal, half-width) exact, for parts with a nonzero tolerance."""
@@ -211,8 +227,8 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
         hi_pt[x], lo_pt[x] = (c + h, c - h) if sgn > 0 else (c - h, c + h)
     base = dict(nominal)
     if not free:
-        lo = form.value({**base, **lo_pt})
-        hi = form.value({**base, **hi_pt})
+        lo = _real(form.value({**base, **lo_pt}))
+        hi = _real(form.value({**base, **hi_pt}))
         method = ("corners: monotone in every toleranced part (sign of dQ/dx proven constant "
                   "over the box by interval arithmetic)" if box else "no toleranced parts")
         return float(lo), float(hi), method, mono
@@ -221,7 +237,8 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
         vals = []
         for signs in itertools.product((-1, 1), repeat=len(free)):
             pt = {x: box[x][0] + sg * box[x][1] for x, sg in zip(free, signs)}
-            vals.append((form.value({**base, **lo_pt, **pt}), form.value({**base, **hi_pt, **pt})))
+            vals.append((_real(form.value({**base, **lo_pt, **pt})),
+                         _real(form.value({**base, **hi_pt, **pt}))))
         for x in free:
             mono[x] = "affine"
         method = ("corners: monotone (proven by interval arithmetic on dQ/dx) or affine "
@@ -233,13 +250,15 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
     fl = {x: float(v) for x, v in base.items()}
     best = {}
     for sense, fixed in ((1, lo_pt), (-1, hi_pt)):
-        env0 = {**fl, **{x: float(v) for x, v in fixed.items()}}
+        env0 = {x: np.float64(v) for x, v in {**fl, **fixed}.items()}
 
         def obj(u, env0=env0, sense=sense):
             e = dict(env0)
             for x, ui in zip(free, u):
-                e[x] = float(box[x][0]) + ui * float(box[x][1])
-            return sense * float(f(e))
+                e[x] = np.float64(float(box[x][0]) + ui * float(box[x][1]))
+            with np.errstate(all="ignore"):
+                v = float(f(e))
+            return sense * v if math.isfinite(v) else 1e300
         rng = np.random.default_rng(seed)
         k = len(free)
         corners = list(itertools.product((-1.0, 1.0), repeat=k)) if k <= 10 else \
@@ -252,12 +271,39 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
             r = minimize(obj, st, method="L-BFGS-B", bounds=[(-1.0, 1.0)] * k)
             vals.append(float(r.fun))
         best[sense] = sense * min(vals)
+    bounded = proven_bounded(form, env, list(box))
     method = (f"corners and interior search: monotonicity not proven for "
               f"{', '.join(map(str, free))} ({len(corners)} corners and {len(starts)} bounded "
               "local searches, scipy L-BFGS-B, per limit)"
               + (f"; the other parts proven monotone and set at their corners"
-                 if len(free) < len(box) else ""))
+                 if len(free) < len(box) else "")
+              + ("" if bounded else "; WARNING: boundedness of Q on the box is not proven (a "
+                 "denominator may vanish inside it), so Q may be unbounded there and these "
+                 "limits are only the extremes found"))
     return best[1], best[-1], method, mono
+
+
+class Unbounded(ArithmeticError):
+    """Q is not a finite real number somewhere on the box."""
+
+
+def _real(v) -> float:
+    try:
+        f = complex(v)
+    except (TypeError, ValueError):
+        raise Unbounded from None
+    if f.imag != 0 or not math.isfinite(f.real):
+        raise Unbounded
+    return f.real
+
+
+def _clean(obj):
+    """JSON-safe: non-finite floats become None."""
+    if isinstance(obj, dict):
+        return {k: _clean(v) for k, v in obj.items()}
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return None
+    return obj
 
 
 def _affine(dform: Form, x) -> bool:
@@ -288,11 +334,21 @@ def monte_carlo(form: Form, nominal: dict, box: dict, samples=100_000, seed=1,
             row *= 2.0 * h
             row += c - h
         env[x] = row
-    v = np.broadcast_to(np.asarray(_vec(form)(env), dtype=float), (samples,))
+    with np.errstate(all="ignore"):
+        v = np.broadcast_to(np.asarray(_vec(form)(env), dtype=float), (samples,))
+    finite = np.isfinite(v)
+    bad = int(samples - finite.sum())
+    if bad:
+        v = v[finite]
+    if v.size < 2:
+        raise ZeroDivisionError("no finite Monte Carlo sample")
     lo, hi = np.quantile(v, QUANTILES)
-    return v, {"samples": int(samples), "seed": int(seed), "distribution": distribution,
-               "mean": float(v.mean()), "std": float(v.std(ddof=1)),
-               "low": float(lo), "high": float(hi)}
+    out = {"samples": int(samples), "seed": int(seed), "distribution": distribution,
+           "mean": float(v.mean()), "std": float(v.std(ddof=1)),
+           "low": float(lo), "high": float(hi)}
+    if bad:
+        out["non_finite_samples"] = bad
+    return v, out
 
 
 def spread_of(ctx: Context, a, req) -> tuple:
@@ -302,7 +358,7 @@ def spread_of(ctx: Context, a, req) -> tuple:
         missing = sorted(str(x) for x in a.form.base_symbols() if x not in ctx.nominal)
         raise SheetError(f"the tolerance of {name} needs nominal values of: {', '.join(missing)}",
                          req.loc.line, req.loc.col)
-    q0 = float(a.nominal_value)
+    q0 = _real(a.nominal_value)
     box = box_of(ctx, a.form.base_symbols())
     opts = ctx.options
     n = getattr(opts, "mc_samples", 100_000)
@@ -350,7 +406,13 @@ def tolerance(ctx: Context, req) -> RequestResult:
     res = RequestResult(req)
     by, figs = {}, []
     for a in _sens.analysed(ctx, req):
-        out, steps, values = spread_of(ctx, a, req)
+        try:
+            out, steps, values = spread_of(ctx, a, req)
+        except (Unbounded, ZeroDivisionError):
+            raise SheetError(f"the tolerance of {a.q.name} cannot be given: it is not finite "
+                             "everywhere on the box of tolerances (a denominator vanishes "
+                             "there); narrow the tolerances", req.loc.line, req.loc.col) from None
+        out = _clean(out)
         by[a.q.name] = out
         res.steps.extend(steps)
         counts, edges = np.histogram(values, bins=60)

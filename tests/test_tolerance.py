@@ -177,3 +177,14 @@ def test_json_figure_and_errors(tmp_path):
                                 "resistor Rg between right and gnd")
     with pytest.raises(SheetError, match="nominal values of: Rg"):
         run(no_nominal)
+
+
+def test_pole_inside_the_box_is_flagged():
+    # (Rn+d)||(Rn-d)||R3 has a pole where (Rn^2 - d^2)/(2 Rn) = -R3, i.e. d = ±1732 ohm at
+    # Rn = R3 = 1 kohm (algebra, common practice); d spans -1990..2010 ohm here
+    text = NON_MONOTONE.replace("±500%", "±20000%").replace(
+        "port p", "resistor R3 between a and gnd = 1k\nport p")
+    rec = run(text)
+    ex = rec.results[0].extra
+    assert "boundedness of Q on the box is not proven" in ex["spread"]["method"]
+    json.loads(rec.to_json(), parse_constant=lambda c: pytest.fail(f"non-JSON number {c}"))
