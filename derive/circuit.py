@@ -311,7 +311,16 @@ def build_circuit(sheet: Sheet) -> Circuit:
     if not b.elements:
         raise SheetError("the sheet has no elements", 1, 1)
     names = {e.name for e in b.elements}
-    nodes = check_topology(b.elements, b.ground, sheet.ground_loc)
+    try:
+        nodes = check_topology(b.elements, b.ground, sheet.ground_loc)
+    except SheetError as e:
+        cut = getattr(e, "floating", set())
+        hit = [p.name for p in sheet.ports if len({p.plus, p.minus} & cut) == 1]
+        if hit and e.hint is None:
+            e.hint = (f"port {hit[0]!r} joins these nodes to the rest of the circuit by "
+                      "nothing: it sees an open circuit (infinite resistance), so no "
+                      "Thevenin equivalent exists")
+        raise
     node_set = set(nodes)
     for ctl, l1, l2 in b.control_locs:
         if ctl.kind == "across":

@@ -111,6 +111,8 @@ def check_topology(elements, ground, ground_loc=None) -> list:
             raise SheetError(f"cut set of current sources {', '.join(e.name for e in cut)}: "
                              f"node(s) {shown} have no other connection to the rest of the "
                              "circuit", cut[0].loc.line, cut[0].loc.col)
-        raise SheetError(f"node(s) {shown} are not connected to the rest of the circuit "
+        err = SheetError(f"node(s) {shown} are not connected to the rest of the circuit "
                          "(no path to ground)", first.loc.line, first.loc.col)
+        err.floating = set(members)
+        raise err
     return nodes
