@@ -168,6 +168,7 @@ def _note(ctx, req, result, fn):
                                  "at nominal values.", kind="substitution",
                                  table=[["quantity", "with model", "full circuit",
                                          "relative error"]] + rows))
+        result.steps[-1].verify()
     return result
 
 
