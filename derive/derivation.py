@@ -66,7 +66,7 @@ def _check(ctx, req, eq: Equation, ref, nodal_form=None):
     from .derivation_nodal import _random_solve_agrees
     nodal = _nodal(ctx)
     form, b = nodal_form
-    eq.verified = _random_solve_agrees(nodal, form, b, _inline(eq.rhs, eq.defs))
+    eq.verified = _random_solve_agrees(nodal, form, b, eq.rhs, defs=eq.defs)
     return eq
 
 
@@ -282,7 +282,7 @@ def _nodal_port_steps(ctx, req, out, refs):
     for n in names:
         base = TWIN.get(n, n)
         q = out.quantities.get(n)
-        ref = (refs.get(n) if refs.get(n) is not None else q.expr) if q is not None \
+        ref = (refs.get(n) if refs.get(n) is not None else _ref(q)) if q is not None \
             else _exact(ctx, req, n)
         if base in ("vth", "gain", "rth"):
             form, b = _nodal_forms(ctx, req, base)
@@ -309,6 +309,11 @@ def _nodal_port_steps(ctx, req, out, refs):
     return steps
 
 
+def _ref(q):
+    """The closed form of a result, or (sequence, result) where only a sequence exists."""
+    return q.expr if q.expr is not None else (list(q.sequence), q.in_sequence)
+
+
 def _exact(ctx, req, name):
     return edge.to_sympy(forms.exact_ratio(ctx, req, name))
 
@@ -317,7 +322,7 @@ def _current_steps(ctx, req, out, refs):
     nodal = _nodal(ctx, begin=True)
     e = ctx.circuit.element(req.element)
     q = out.quantities["current"]
-    ref = refs["current"] if refs["current"] is not None else q.expr
+    ref = refs["current"] if refs["current"] is not None else _ref(q)
     form = nodal.current(e.name).xreplace(nodal.src_values)
     ends = f"from {e.nodes[0]} to {e.nodes[1]}" if e.kind != "nullor" else ""
     steps = [Step(f"Current through {e.name} in its reference direction ({ends}), in terms "

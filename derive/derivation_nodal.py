@@ -221,6 +221,14 @@ def cramer_step(nodal: Nodal, name, form, b, expected, why: str, tag: str = "") 
     A = nodal.A
     need = [i for i, u in enumerate(nodal.unknowns) if form.has(u)]
     lhs = sympy.Symbol(name)
+    if isinstance(expected, tuple):     # (sequence, result): only named intermediates exist
+        seq, final = expected
+        eq = Equation(lhs, final, defs=dict(seq))
+        eq.verified = _random_solve_agrees(nodal, form, b, final, defs=dict(seq))
+        return Step(f"{why} The result is the sequence of {len(seq)} named intermediate "
+                    "quantities given with it (node elimination); it was compared with a "
+                    "direct exact solve of the equations above at random rational points.",
+                    [eq], kind="cramer")
     if A.shape[0] > MAX_CRAMER:
         eq = Equation(lhs, expected)
         eq.verified = _random_solve_agrees(nodal, form, b, expected)
@@ -263,14 +271,33 @@ def _kernel_det(nodal, A):
     return _entry_expr(sysm, det(sysm.A))
 
 
-def _random_solve_agrees(nodal, form, b, expected, points=2) -> bool:
+def _exact_solve(A, b) -> list:
+    """Solve a rational linear system exactly (python-flint's fmpq_mat)."""
+    import flint
+    q = lambda v: flint.fmpq(int(sympy.Rational(v).p), int(sympy.Rational(v).q))
+    M = flint.fmpq_mat(A.shape[0], A.shape[1], [q(v) for v in A])
+    rhs = flint.fmpq_mat(b.shape[0], 1, [q(v) for v in b])
+    x = M.solve(rhs)
+    return [sympy.Rational(int(x[i, 0].p), int(x[i, 0].q)) for i in range(A.shape[0])]
+
+
+def _random_solve_agrees(nodal, form, b, expected, points=2, defs=None) -> bool:
+    """Exact solve of the nodal equations at random rational points against ``expected``
+    (which may use the named intermediates ``defs``, evaluated in order)."""
     import random
     rnd = random.Random(11)
-    syms = (nodal.A.free_symbols | b.free_symbols | expected.free_symbols) - set(nodal.unknowns)
+    defs = defs or {}
+    syms = nodal.A.free_symbols | b.free_symbols | expected.free_symbols
+    for v in defs.values():
+        syms |= v.free_symbols
+    syms -= set(nodal.unknowns) | set(defs)
     for _ in range(points):
         pt = {s: sympy.Rational(rnd.randint(1, 999), rnd.randint(1, 99)) for s in syms}
-        x = nodal.A.xreplace(pt).LUsolve(b.xreplace(pt))
+        x = _exact_solve(nodal.A.xreplace(pt), b.xreplace(pt))
         got = form.xreplace(dict(zip(nodal.unknowns, x))).xreplace(pt)
-        if sympy.simplify(got - expected.xreplace(pt)) != 0:
+        env = dict(pt)
+        for k, v in defs.items():
+            env[k] = v.xreplace(env)
+        if sympy.simplify(got - expected.xreplace(env)) != 0:
             return False
     return True
