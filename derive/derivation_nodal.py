@@ -26,7 +26,8 @@ from . import forms
 from .sequence import _entry_expr
 from .steps import Equation, Step
 
-MAX_CRAMER = 7        # unknowns up to which determinants are written out
+MAX_CRAMER = 4        # unknowns up to which determinants are written out (symbolic
+                      # determinants of larger systems are slow and unreadable)
 
 
 def _admittance(e, v):
