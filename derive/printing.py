@@ -81,7 +81,10 @@ def latex_name(key: str) -> str:
 
 
 _QUANTITY = {"vth": r"v_{\mathrm{th}}", "rth": r"R_{\mathrm{th}}", "isc": r"i_{\mathrm{sc}}",
-             "rn": r"R_{\mathrm{N}}", "rin": r"R_{\mathrm{in}}", "rout": r"R_{\mathrm{out}}"}
+             "rn": r"R_{\mathrm{N}}", "rin": r"R_{\mathrm{in}}", "rout": r"R_{\mathrm{out}}",
+             "gain": r"\mathrm{gain}", "resistance": r"\mathrm{resistance}",
+             "impedance": r"\mathrm{impedance}", "voltage": r"\mathrm{voltage}",
+             "current": r"\mathrm{current}"}
 
 
 def _esc(t: str) -> str:
@@ -93,7 +96,7 @@ def to_latex(expr) -> str:
     return LatexPrinter({"symbol_names": names, "mul_symbol": None}).doprint(expr)
 
 
-def equation_lines(lhs, rhs, width: int = 90) -> list:
+def equation_lines(lhs, rhs, width: int = 110) -> list:
     """``lhs = rhs`` as lines of an ``aligned`` environment (``&=`` on the first line).
 
     A long right-hand side is broken before its top-level ``+``/``-`` terms; a long
@@ -116,15 +119,32 @@ def equation_lines(lhs, rhs, width: int = 90) -> list:
     num, den = sympy.fraction(rhs)
     if den != 1 and isinstance(rhs, sympy.Mul):
         out = [left + r" &= \frac{\mathcal{N}}{\mathcal{D}}"]
-        out += _terms(r"\mathcal{N} &= ", _addends(num), width)
-        out += _terms(r"\mathcal{D} &= ", _addends(den), width)
+        out += _factors(r"\mathcal{N} &= ", num, width)
+        out += _factors(r"\mathcal{D} &= ", den, width)
         return out
     return [f"{left} &= {whole}"]
 
 
 def _addends(e):
-    e = sympy.expand(e) if len(to_latex(e)) > 90 and not isinstance(e, sympy.Add) else e
-    return list(e.as_ordered_terms()) if isinstance(e, sympy.Add) else [e]
+    if isinstance(e, sympy.Add):
+        return list(e.as_ordered_terms())
+    return [e]
+
+
+def _factors(head, e, width):
+    """A long product, one factor per line."""
+    if not isinstance(e, sympy.Mul) or len(to_latex(e)) <= width:
+        return _terms(head, _addends(e), width)
+    lines, cur = [], head
+    for k, f in enumerate(e.as_ordered_factors()):
+        body = to_latex(f) if not isinstance(f, sympy.Add) else r"\left(" + to_latex(f) + r"\right)"
+        if k and len(cur) + len(body) > width:
+            lines.append(cur)
+            cur = r"&\quad \cdot " + body
+        else:
+            cur += (r" \cdot " if k else "") + body
+    lines.append(cur)
+    return lines
 
 
 def _terms(head, terms, width):
