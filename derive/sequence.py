@@ -18,20 +18,8 @@ from . import edge
 
 def _entry_expr(system, p):
     """A ring polynomial entry as a sympy expression in circuit symbols (1/R for recips)."""
-    vals = []
-    for v in system.vars:
-        if v.kind == "recip":
-            vals.append(1 / v.expr)
-        elif v.kind == "src":
-            vals.append(v.expr)
-        else:
-            vals.append(v.expr)
-    out = []
-    for exps, c in p.to_dict().items():
-        f = [sympy.Rational(int(c.p), int(c.q))]
-        f += [x ** e for x, e in zip(vals, exps) if e]
-        out.append(sympy.Mul(*f))
-    return sympy.Add(*out)
+    vals = [1 / v.expr if v.kind == "recip" else v.expr for v in system.vars]
+    return edge.poly_expr(p, vals)
 
 
 def _probe_point(syms):

@@ -140,3 +140,56 @@ def test_dependent_sources_and_reactive_parts_against_numpy():
                (q0["vth"], q0["rth"], q1["voltage"], q2["current"])]
         for g_, r_ in zip(got, ref):
             assert abs(g_ - r_) <= 1e-8 * max(1.0, abs(r_)), (g_, r_)
+
+
+def test_large_grid_sequence_form_against_networkx():
+    # A 5x5 resistor grid is too large to expand (about 5.6e8 terms): derive answers with a
+    # sequence of named intermediates. Reference: networkx.resistance_distance (conductance
+    # weights), at the nominal values given in the sheet.
+    k = 5
+    rnd = random.Random(3)
+    lines, G = ["ground n0_0"], nx.Graph()
+    for r in range(k):
+        for c in range(k):
+            for dr, dc, tag in ((0, 1, "h"), (1, 0, "v")):
+                if r + dr < k and c + dc < k:
+                    val = rnd.randint(100, 999)
+                    lines.append(f"resistor R{tag}{r}{c} between n{r}_{c} and n{r+dr}_{c+dc} = {val} ohm")
+                    G.add_edge((r, c), (r + dr, c + dc), g=1.0 / val)
+    lines += [f"port p between n0_0 and n{k-1}_{k-1}", "find resistance at p"]
+    q = run("\n".join(lines)).results[0].quantities["resistance"]
+    assert q.form == "sequence" and q.sequence
+    ref = nx.resistance_distance(G, (0, 0), (k - 1, k - 1), weight="g", invert_weight=False)
+    assert abs(q.value - ref) <= 1e-9 * ref
+
+
+def test_long_ladder_series_parallel_sequence_against_numpy():
+    # 16-section ladder driven by V: vth by series-parallel reduction (named intermediates)
+    # against numpy.linalg.solve of the nodal equations written here.
+    n = 16
+    rnd = random.Random(4)
+    rs = [rnd.randint(100, 999) for _ in range(n)]
+    rp = [rnd.randint(100, 999) for _ in range(n)]
+    lines = ["voltage source V between n0 and gnd = 1 V"]
+    for i in range(n):
+        lines.append(f"resistor Rs{i} between n{i} and n{i+1} = {rs[i]} ohm")
+        lines.append(f"resistor Rp{i} between n{i+1} and gnd = {rp[i]} ohm")
+    lines += [f"port out between n{n} and gnd", "find thevenin at out"]
+    q = run("\n".join(lines)).results[0].quantities
+    # nodal matrix of nodes n1..n16 with n0 held at 1 V
+    A = np.zeros((n, n))
+    b = np.zeros(n)
+    for i in range(n):
+        gs, gp = 1.0 / rs[i], 1.0 / rp[i]
+        A[i, i] += gs + gp
+        if i > 0:
+            A[i, i - 1] -= gs
+            A[i - 1, i] -= gs
+            A[i - 1, i - 1] += gs
+        else:
+            b[0] += gs * 1.0
+    vth = np.linalg.solve(A, b)[-1]
+    e = np.zeros(n); e[-1] = 1.0
+    rth = np.linalg.solve(A, e)[-1]
+    assert abs(q["vth"].value - vth) <= 1e-9 * abs(vth)
+    assert abs(q["rth"].value - rth) <= 1e-9 * rth
