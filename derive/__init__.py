@@ -56,8 +56,11 @@ def circuit_of(text: str, filename: str = "<sheet>"):
 
 
 def derive_text(text: str, filename: str = "<sheet>", symbolic: Optional[list] = None,
-                max_terms: float = 2e6) -> Record:
+                max_terms: float = 2e6, **options) -> Record:
     """Derive every request of a sheet given as text.
+
+    ``options`` are further :class:`derive.analysis.Options` fields (``mc_samples``,
+    ``mc_seed``, ``mc_distribution`` for tolerance analysis).
 
     >>> rec = derive_text('''voltage source V between a and gnd = 10 V
     ... resistor R1 between a and b = 1 kohm
@@ -73,7 +76,7 @@ def derive_text(text: str, filename: str = "<sheet>", symbolic: Optional[list] =
     from .analysis import Options, analyse
     c = circuit_of(text, filename)
     try:
-        results = analyse(c, Options(symbolic=symbolic, max_terms=max_terms))
+        results = analyse(c, Options(symbolic=symbolic, max_terms=max_terms, **options))
     except SheetError as e:
         raise e.with_context(text, filename)
     return Record(c, results)

@@ -43,6 +43,9 @@ class Options:
     symbolic: Optional[list] = None     # keep only these symbols symbolic
     max_terms: float = 2e6
     expand_limit: float = 20000         # expand determinants up to this many terms
+    mc_samples: int = 100_000           # Monte Carlo of `find tolerance`
+    mc_seed: int = 1
+    mc_distribution: str = "uniform"    # or 'normal' (tolerance = 3 sigma)
 
 
 @dataclass

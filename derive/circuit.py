@@ -381,16 +381,20 @@ def _symbols(b: _Builder, sheet: Sheet) -> dict:
             info.nominal = q.value
             if q.unit is not None:
                 info.unit = q.unit
-            if tol is not None:
-                if tol.relative:
-                    info.tolerance = tol.value
-                elif q.value != 0:
-                    info.tolerance = abs(tol.value / q.value)
+            info.tolerance = _relative(q, tol)
         out[k] = info
     for name, n in nominals.items():
         if key_of(name) not in out:
             out[key_of(name)] = SymbolInfo(key_of(name), name, "param", n.quantity.unit,
-                                           n.quantity.value,
-                                           (n.tolerance.value if n.tolerance and n.tolerance.relative
-                                            else None), n.loc)
+                                           n.quantity.value, _relative(n.quantity, n.tolerance),
+                                           n.loc)
     return out
+
+
+def _relative(q, tol) -> Optional[Fraction]:
+    """A tolerance as a fraction of the nominal value (absolute ones divided by it)."""
+    if tol is None:
+        return None
+    if tol.relative:
+        return tol.value
+    return abs(tol.value / q.value) if q.value != 0 else None

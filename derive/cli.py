@@ -35,6 +35,12 @@ def _parser() -> argparse.ArgumentParser:
                         help="refuse to expand a determinant estimated above N terms")
         sp.add_argument("--timeout", type=float, default=None, metavar="SECONDS",
                         help="give up after this many seconds")
+        sp.add_argument("--samples", type=int, default=100_000, metavar="N",
+                        help="Monte Carlo samples of tolerance analyses (default 100000)")
+        sp.add_argument("--seed", type=int, default=1, help="Monte Carlo seed (default 1)")
+        sp.add_argument("--distribution", choices=("uniform", "normal"), default="uniform",
+                        help="parts spread uniformly within tolerance, or normally with the "
+                             "tolerance as 3 sigma")
 
     r = sub.add_parser("record", help="write the design-calculation record")
     common(r)
@@ -101,7 +107,11 @@ def run(argv: Optional[list] = None) -> int:
     text, name = _read(args.sheet)
     symbolic = [s.strip() for s in args.symbolic.split(",") if s.strip()] \
         if args.symbolic is not None else None
-    rec = derive_text(text, name, symbolic=symbolic, max_terms=args.max_terms)
+    if args.samples < 1:
+        raise SheetError("--samples must be at least 1", 0, 0, filename=name)
+    rec = derive_text(text, name, symbolic=symbolic, max_terms=args.max_terms,
+                      mc_samples=args.samples, mc_seed=args.seed,
+                      mc_distribution=args.distribution)
     if args.command == "record":
         fmt = _format_of(args)
         from .exporters import render

@@ -62,10 +62,13 @@ class Step:
 
     def to_json(self) -> dict:
         from .printing import to_text
-        return {"text": self.text,
-                "equations": [f"{to_text(e.lhs)} = {to_text(e.rhs)}" for e in self.equations],
-                "elements": list(self.elements),
-                "verified": bool(self.verified)}
+        out = {"text": self.text,
+               "equations": [f"{to_text(e.lhs)} = {to_text(e.rhs)}" for e in self.equations],
+               "elements": list(self.elements),
+               "verified": bool(self.verified)}
+        if self.table:
+            out["table"] = [[str(c) for c in row] for row in self.table]
+        return out
 
 
 def _expand_defs(e, defs):

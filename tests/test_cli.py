@@ -73,3 +73,22 @@ def test_real_process_and_module_entry(tmp_path):
     assert r.returncode == 2
     assert r.stderr.startswith(f"{p}:3:")
     assert "Traceback" not in r.stderr
+
+
+def test_monte_carlo_options_reach_the_analysis(tmp_path, capsys):
+    p = tmp_path / "d.eqv"
+    p.write_text(DIVIDER + "find tolerance of vth at out\n")
+    assert main(["record", str(p), "--format", "json", "--samples", "3000", "--seed", "9",
+                 "--distribution", "normal"]) == 0
+    mc = json.loads(capsys.readouterr().out)["results"][1]["monte_carlo"]
+    assert (mc["samples"], mc["seed"], mc["distribution"]) == (3000, 9, "normal")
+    # vth = 10*R2/(R1+R2) with R1 = 1k ±1% (3 sigma): mean stays near 8 V
+    assert abs(mc["mean"] - 8.0) < 0.01
+
+
+def test_absolute_tolerance_of_a_nominal_becomes_relative(tmp_path, capsys):
+    p = tmp_path / "n.eqv"
+    p.write_text("nominal Voff = 2 V ±10 mV\nvoltage source V between a and gnd = Voff\n"
+                 "resistor R1 between a and gnd = 1k\nport p between a and gnd\nfind vth at p\n")
+    assert main(["record", str(p), "--format", "json"]) == 0
+    assert json.loads(capsys.readouterr().out)["symbols"]["Voff"]["tolerance"] == 0.005
