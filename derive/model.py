@@ -209,6 +209,18 @@ class Numeric:
 
 
 @dataclass
+class Replacement:
+    """``replace INSTANCE by model from P1 to P2 [compare]``: analyse with the instance
+    replaced by its section model (see :mod:`derive.model_reuse`)."""
+    instance: str
+    port: str
+    port2: str
+    compare: bool
+    loc: Loc
+    name_locs: tuple        # locations of instance, port, port2
+
+
+@dataclass
 class Sheet:
     source: str
     filename: str
@@ -223,4 +235,5 @@ class Sheet:
     blocks: dict = field(default_factory=dict)       # name -> Block
     requests: list = field(default_factory=list)
     numeric: list = field(default_factory=list)      # Numeric statements
+    replacements: list = field(default_factory=list)  # Replacement statements
     body: list = field(default_factory=list)         # top-level Element/OpAmp/Use in order

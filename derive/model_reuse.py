@@ -38,23 +38,9 @@ class Replace:
 
 
 def replacements_of(sheet) -> list:
-    """The ``replace`` statements of a sheet, read from its parse tree."""
-    from lark import Token, Tree
-    from .grammar_loader import get_parser
-    src = sheet.source[1:] if sheet.source.startswith("\ufeff") else sheet.source
-    if "replace" not in src:
-        return []
-    tree = get_parser().parse(src if src.endswith("\n") else src + "\n")
-    out = []
-    for st in tree.children:
-        if not isinstance(st, Tree) or st.data != "replace":
-            continue
-        toks = [r.children[0] for r in st.children if isinstance(r, Tree)]
-        locs = tuple(Loc(t.line, t.column) for t in toks)
-        compare = any(isinstance(t, Token) and t.type == "COMPARE" for t in st.children)
-        out.append(Replace(*(str(t) for t in toks), compare,
-                           Loc(st.meta.line, st.meta.column), locs))
-    return out
+    """The ``replace`` statements of a sheet (parsed into :class:`derive.model.Replacement`)."""
+    return [Replace(r.instance, r.port, r.port2, r.compare, r.loc, r.name_locs)
+            for r in sheet.replacements]
 
 
 def _model_of(circuit, rep, options):

@@ -20,7 +20,7 @@ from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput
 from .errors import SheetError
 from .grammar_loader import describe_syntax_error, get_parser
 from .model import (BinOp, Block, Call, Element, Loc, Name, Neg, Nominal, Num, Numeric, OpAmp,
-                    Port, Quantity, Request, Sheet, Tolerance, Use, Value)
+                    Port, Quantity, Replacement, Request, Sheet, Tolerance, Use, Value)
 from .units import UnitError, parse_number, parse_quantity
 
 RESERVED = frozenset({"s"})
@@ -231,6 +231,12 @@ class _Builder:
                 sheet.blocks[block.name] = block
             elif kind in ("find", "solve", "check"):
                 sheet.requests.append(self._request(stmt))
+            elif kind == "replace":
+                refs = [self._ref(t) for t in stmt.children if isinstance(t, Tree)]
+                compare = any(isinstance(t, Token) and t.type == "COMPARE"
+                              for t in stmt.children)
+                sheet.replacements.append(Replacement(*(r[0] for r in refs), compare,
+                                                      _loc(stmt), tuple(r[1] for r in refs)))
             elif kind == "numeric":
                 refs = [self._ref(t) for t in stmt.children[1:]]
                 sheet.numeric.append(Numeric(tuple(r[0] for r in refs),

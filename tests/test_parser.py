@@ -426,3 +426,14 @@ def test_any_text_gives_a_sheet_or_a_sheet_error(pieces):
         parse_sheet(text)
     except SheetError as e:
         assert e.line >= 1 and e.col >= 1 and e.message
+
+
+def test_replace_statement_into_the_sheet_model():
+    from derive.parser import parse_sheet
+    sheet = parse_sheet("resistor R1 between a and gnd\n"
+                        "replace q1 by model from pin to pmid compare\n"
+                        "replace q2 by model from a to b\n")
+    r1, r2 = sheet.replacements
+    assert (r1.instance, r1.port, r1.port2, r1.compare) == ("q1", "pin", "pmid", True)
+    assert (r2.instance, r2.compare) == ("q2", False)
+    assert r1.loc.line == 2 and r1.name_locs[0].col == 9
