@@ -51,6 +51,9 @@ def latex_name(key: str) -> str:
     if m:
         return f"{m.group(1)}_{{\\mathrm{{eq}}{m.group(2)}}}"
     parts = key.split("_")
+    if len(parts) == 2 and parts[0] in ("i", "v") and parts[1]:
+        # a branch current or node voltage of the nodal equations: i_Vex, v_left
+        return f"{parts[0]}_{{\\mathrm{{{_esc(parts[1])}}}}}"
     if len(parts) == 3 and parts[0] in greek and parts[2] in ("t", "g") and parts[1]:
         return f"\\{parts[0]}_{{\\mathrm{{{_esc(parts[1])}}}}}^{{\\mathrm{{{parts[2]}}}}}"
     if len(parts) >= 3 and len(parts[0]) == 1 and all(parts[1:]):
