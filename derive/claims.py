@@ -14,7 +14,7 @@ from __future__ import annotations
 import random
 
 import sympy
-from sympy.core.sympify import _sympify
+from .exprs import as_expr
 
 from . import analysis, dimensions
 from .circuit import S, key_of
@@ -57,7 +57,7 @@ def _rational_limit(e, x, at_infinity: bool):
         return sympy.oo
     if kn != kd:
         return sympy.Integer(0)
-    return sympy.factor(_sympify(cn) / _sympify(cd))   # strict: never parses text
+    return sympy.factor(as_expr(cn) / as_expr(cd))
 
 
 def _degenerate(v) -> bool:

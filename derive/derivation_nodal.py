@@ -253,7 +253,7 @@ def cramer_step(nodal: Nodal, name, form, b, expected, why: str, tag: str = "") 
         di = sympy.factor(Ai.det(method="berkowitz"))
         defs[sym] = di
         sub[nodal.unknowns[i]] = sym / det_sym
-        eqs.append(Equation(sym, di, check=sympy.expand(Ai.det(method="bareiss"))))
+        eqs.append(Equation(sym, di, check=Ai.det(method="berkowitz")))
     via = form.xreplace(sub)
     eqs.append(Equation(lhs, via, check=expected, defs=dict(defs)))
     eqs.append(Equation(lhs, expected, check=sympy.cancel(via.xreplace(defs))))

@@ -12,12 +12,30 @@ No text is ever handed to sympy: every number is an exact ``Rational`` and every
 """
 from __future__ import annotations
 
+from fractions import Fraction
 from typing import Callable, Optional
 
 import sympy
 
 from .errors import SheetError
 from .model import BinOp, Call, Name, Neg, Num
+
+
+def as_expr(x) -> sympy.Expr:
+    """A number or sympy object as a sympy expression, never by parsing text.
+
+    >>> as_expr(3), as_expr(sympy.Symbol('R'))
+    (3, R)
+    """
+    if isinstance(x, sympy.Basic):
+        return x
+    if isinstance(x, bool):
+        raise TypeError("not a number: a boolean")
+    if isinstance(x, int):
+        return sympy.Integer(x)
+    if isinstance(x, Fraction):
+        return sympy.Rational(x.numerator, x.denominator)
+    raise TypeError(f"not an expression: {type(x).__name__}")
 
 
 def parallel(a: sympy.Expr, b: sympy.Expr) -> sympy.Expr:

@@ -11,7 +11,7 @@ of the measured quantity over which the marked root stays real and positive are 
 from __future__ import annotations
 
 import sympy
-from sympy.core.sympify import _sympify
+from .exprs import as_expr
 
 from . import analysis, forms, sequence
 from .circuit import key_of
@@ -93,7 +93,7 @@ def _critical(poly, x, q, nominal):
         exprs.append(sympy.discriminant(poly.as_expr(), x))
     pts = {}
     for e in exprs:
-        e = sympy.together(_sympify(e))   # strict: never parses text
+        e = sympy.together(as_expr(e))
         n_sym, _ = sympy.fraction(e)
         for fac, _m in sympy.factor_list(n_sym)[1]:
             if q not in fac.free_symbols:

@@ -22,7 +22,7 @@ from dataclasses import dataclass, field
 
 import flint
 import sympy
-from sympy.core.sympify import _sympify
+from .exprs import as_expr
 
 from .circuit import S, Circuit
 from .errors import SheetError
@@ -105,7 +105,7 @@ class System:
         self._plan(expr, recip, register=True)
 
     def _plan(self, expr, recip, register=False):
-        expr = _sympify(expr) if not isinstance(expr, sympy.Basic) else expr
+        expr = as_expr(expr)
         if recip:
             if expr == 0:
                 raise ZeroDivisionError
