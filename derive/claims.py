@@ -21,6 +21,7 @@ from .circuit import S, key_of
 from .exprs import to_sympy
 from .inversion import quantity_of
 from .printing import to_text
+from .inversion import _derived_equation
 from .steps import Equation, Step
 
 POINTS = 12
@@ -119,6 +120,30 @@ def _eval_seq(q, pt):
     return q.in_sequence.xreplace(env)
 
 
+def _agree_at_points(q, claim, syms):
+    """(agrees, points used): the quantity's sequence and the claim in exact rational
+    arithmetic (python-flint) at ``POINTS`` random rational points; undefined points are
+    redrawn a bounded number of times, and with no usable point the claim is not held."""
+    from .steps import ATTEMPTS, NotRational, Program, random_point
+    rnd = random.Random(5)
+    try:
+        prog = Program([q.in_sequence, claim], dict(q.sequence))
+    except NotRational:
+        return False, 0
+    used = 0
+    for _ in range(ATTEMPTS * POINTS):
+        try:
+            vq, vc = prog.run(random_point(rnd, prog.symbols() | set(syms)))
+        except ZeroDivisionError:
+            continue
+        if vq != vc:
+            return False, used + 1
+        used += 1
+        if used == POINTS:
+            break
+    return used > 0, used
+
+
 def _value(v):
     try:
         return float(v)
@@ -151,9 +176,11 @@ def check_request(ctx, req) -> analysis.RequestResult:
     name, q_expr, q = quantity_of(ctx, req)
     claim = claim_expr(ctx, req)
     qs = sympy.Symbol(name)
-    steps = [Step(f"The derived {name} ({q.form} form).", [Equation(qs, q_expr)], kind="check"),
+    steps = [Step(f"The derived {name} ({q.form} form).", [_derived_equation(qs, q_expr, q)],
+                  kind="check"),
              Step("The claim, built from the sheet's expression.",
-                  [Equation(sympy.Symbol(f"{name}_claimed"), claim)], kind="check")]
+                  [Equation(sympy.Symbol(f"{name}_claimed"), claim, definition=True)],
+                  kind="check")]
     syms = sorted(q_expr.free_symbols | claim.free_symbols, key=lambda s: s.name)
     if q.expr is not None:
         method = ("exact cancellation of claim - quantity over the rationals" +
@@ -169,18 +196,11 @@ def check_request(ctx, req) -> analysis.RequestResult:
         method = (f"exact rational evaluation at {POINTS} random rational points (only a "
                   "sequence of intermediates exists); a wrong claim agrees at all of them with "
                   "negligible probability (Schwartz-Zippel lemma)")
-        rnd = random.Random(5)
-        holds = True
-        for _ in range(POINTS):
-            pt = _point(ctx, syms, rnd, False)
-            try:
-                if sympy.cancel(_eval_seq(q, pt) - claim.xreplace(pt)) != 0:
-                    holds = False
-                    break
-            except ZeroDivisionError:
-                continue
-        steps.append(Step(f"Exact evaluation at {POINTS} random rational points: the claim "
-                          + ("agrees at every one." if holds else "differs."), kind="check"))
+        holds, used = _agree_at_points(q, claim, syms)
+        steps.append(Step(f"Exact evaluation at {used} random rational points: the claim "
+                          + ("agrees at every one." if holds else
+                             "differs." if used else "could not be evaluated at any point "
+                             "(undefined everywhere tried)."), kind="check"))
     dim_error, dim_note = dimension_verdict(ctx, req, q.unit, q_expr)
     if dim_error:
         holds = False

@@ -21,18 +21,25 @@ True
 """
 from __future__ import annotations
 
+import flint
 import sympy
 
 from . import edge, forms, reduce
 from .derivation_nodal import Nodal, cramer_step, equation_steps
-from .steps import Equation, Step, equal
+from .steps import (Equation, NotRational, Program, Step, exact_value, fmpq_of, to_float,
+                    to_rational)
 from .units import format_eng
 
 TWIN = {"rn": "rth", "resistance": "rth", "impedance": "rth", "voltage": "vth"}
 
 
 class StepFailed(AssertionError):
-    """A displayed equation did not verify: a bug in derive, never the user's sheet."""
+    """A displayed equation did not verify: a bug in derive, never the user's sheet.
+    ``steps`` holds the steps as verified (the failing ones with ``verified`` false)."""
+
+    def __init__(self, message, steps=None):
+        super().__init__(message)
+        self.steps = list(steps or [])
 
 
 def port_steps(ctx, req, out) -> list:
@@ -48,12 +55,13 @@ def port_steps(ctx, req, out) -> list:
         if req.quantity in ("thevenin", "norton"):
             steps += _cross_check(ctx, req)
     for q in out.quantities.values():
-        steps.append(_value_step(ctx, q, refs.get(q.name)))
-    for st in steps:
-        if not st.verify():
-            bad = [e for e in st.equations if not e.verified]
-            raise StepFailed(f"internal check failed in the derivation of {req.text!r}: "
-                             f"{st.text} ({bad[0].lhs} = {bad[0].rhs})")
+        steps.append(_value_step(ctx, req, q))
+    failed = [st for st in steps if not st.verify()]
+    if failed:
+        st = failed[0]
+        bad = [e for e in st.equations if not e.verified]
+        raise StepFailed(f"internal check failed in the derivation of {req.text!r}: "
+                         f"{st.text} ({bad[0].lhs} = {bad[0].rhs})", steps)
     return steps
 
 
@@ -63,10 +71,10 @@ def _check(ctx, req, eq: Equation, ref, nodal_form=None):
     if ref is not None:
         eq.check = ref
         return eq
-    from .derivation_nodal import _random_solve_agrees
+    from .derivation_nodal import _random_solve_check
     nodal = _nodal(ctx)
     form, b = nodal_form
-    eq.verified = _random_solve_agrees(nodal, form, b, eq.rhs, defs=eq.defs)
+    eq.mark("system", *_random_solve_check(nodal, form, b, eq.rhs, defs=eq.defs))
     return eq
 
 
@@ -234,6 +242,11 @@ def _move_step(m, env, defs) -> Step:
                     f"{_label(t)}.", [Equation(lhs, t.E.xreplace(env) - k * t.Z,
                                                check=el, defs=defs)], members,
                     kind="reduction")
+    if reduce.is_open(x) or reduce.is_open(y):
+        o, k = (x, y) if reduce.is_open(x) else (y, x)
+        return Step(f"{_label(o)} has infinite impedance (an open circuit) {between}: it "
+                    f"carries no current in parallel with {_label(k)} and is removed.", [],
+                    members, kind="reduction")
     if x.Z == 0 or y.Z == 0:
         v, o = (x, y) if x.Z == 0 else (y, x)
         return Step(f"{_label(v)} is an ideal voltage source directly across {_label(o)} "
@@ -302,9 +315,12 @@ def _nodal_port_steps(ctx, req, out, refs):
             syms = {sympy.Symbol("vth"): v, sympy.Symbol(rname): r}
             eq = Equation(sympy.Symbol(n), sympy.Symbol("vth") / sympy.Symbol(rname),
                           check=ref, defs=syms)
+            # the solver's short-circuit solution (port shorted) against the quotient of its
+            # open-circuit and test-source solutions
+            sc = Equation(sympy.Symbol(n), ref, check=v / r)
             steps.append(Step("Short-circuit current: the open-circuit voltage over the "
                               "resistance seen into the port (both found above), compared with "
-                              "the solver's short-circuit solution.", [eq, Equation(sympy.Symbol(n), ref)],
+                              "the solver's short-circuit solution.", [eq, sc],
                               kind="result"))
     return steps
 
@@ -325,13 +341,35 @@ def _current_steps(ctx, req, out, refs):
     ref = refs["current"] if refs["current"] is not None else _ref(q)
     form = nodal.current(e.name).xreplace(nodal.src_values)
     ends = f"from {e.nodes[0]} to {e.nodes[1]}" if e.kind != "nullor" else ""
+    cur = Equation(sympy.Symbol("current"), form)
+    cur.mark("system", _through_agrees(nodal, e.name, form))
     steps = [Step(f"Current through {e.name} in its reference direction ({ends}), in terms "
-                  "of the nodal unknowns:", [Equation(sympy.Symbol("current"), form)],
-                  [e.name], kind="port")]
+                  "of the nodal unknowns:", [cur], [e.name], kind="port")]
     steps += equation_steps(nodal)
     steps.append(cramer_step(nodal, "current", form, nodal.b, ref,
                              f"Solving for the unknowns that the current of {e.name} needs."))
     return steps
+
+
+def _through_agrees(nodal, name, form) -> bool:
+    """The element's current in the unknowns equals the stamped system's own linear form
+    of that current (:meth:`derive.mna.System.through`)."""
+    from .sequence import _entry_expr
+    try:
+        sysm = nodal.system
+        lf = sysm.through(name)
+        ref = sympy.Add(*[_entry_expr(sysm, p) * nodal.unknowns[i]
+                          for i, p in lf.coef.items() if not _zero_poly(p)])
+        if not _zero_poly(lf.const):
+            ref += _entry_expr(sysm, lf.const)
+        d = sympy.expand(form - ref)
+        return d == 0 or sympy.cancel(sympy.together(d)) == 0
+    except Exception:
+        return False
+
+
+def _zero_poly(p) -> bool:
+    return p == 0 if isinstance(p, int) else p.is_zero()
 
 
 # ------------------------------------------------------------------ checks, values
@@ -349,7 +387,60 @@ def _cross_check(ctx, req):
                  [eq], kind="check")]
 
 
-def _value_step(ctx, q, ref) -> Step:
+def _ratio_value(ratio, nominal):
+    """The solver's exact ratio at nominal values (sympy Rational), from its own ring
+    polynomials in python-flint ``fmpq``; None where some value is missing or irrational."""
+    if ratio is None:
+        return None
+    vals = []
+    for v in ratio.system.vars:
+        x = v.expr.xreplace(nominal)
+        if not x.is_Rational:
+            return None
+        if v.kind == "recip":
+            if x == 0:
+                return None
+            x = 1 / x
+        vals.append(fmpq_of(x))
+    if vals:
+        num, den = ratio.num(*vals), ratio.den(*vals)
+    else:
+        n, d = ratio.num.to_dict(), ratio.den.to_dict()
+        num = flint.fmpq(n.get((0,), 0)) if n else flint.fmpq(0)
+        den = flint.fmpq(d.get((0,), 1)) if d else flint.fmpq(1)
+    if den == 0:
+        return None
+    return to_rational(num / den)
+
+
+def _nodal_value(ctx, req, name, nominal):
+    """The quantity at nominal values from an exact solve of the nodal equations there."""
+    nodal = _nodal(ctx)
+    base = TWIN.get(name, name)
+    if base == "isc":
+        v, r = (_nodal_value(ctx, req, n, nominal) for n in ("vth", "rth"))
+        return None if v is None or not r else v / r
+    if req.quantity == "current":
+        form = nodal.current(req.element).xreplace(nodal.src_values)
+        b = nodal.b
+    elif base in ("vth", "gain", "rth"):
+        form, b = _nodal_forms(ctx, req, base)
+    else:
+        return None
+    n = nodal.A.shape[0]
+    try:
+        prog = Program(list(nodal.A) + list(b))
+        fprog = Program([form])
+        vals = prog.run(nominal)
+        x = flint.fmpq_mat(n, n, vals[:n * n]).solve(flint.fmpq_mat(n, 1, vals[n * n:]))
+        env = dict(nominal)
+        env.update({u: x[i, 0] for i, u in enumerate(nodal.unknowns)})
+        return to_rational(fprog.run(env)[0])
+    except (KeyError, ZeroDivisionError, NotRational):
+        return None
+
+
+def _value_step(ctx, req, q) -> Step:
     nominal = ctx.nominal
     used = set(q.expr.free_symbols) if q.expr is not None else set()
     for _, e in q.sequence:
@@ -361,21 +452,29 @@ def _value_step(ctx, q, ref) -> Step:
         si = info.get(str(s))
         val = nominal.get(s)
         rows.append([si.display if si else str(s),
-                     format_eng(float(val), si.unit if si else None) if val is not None
+                     format_eng(to_float(val), si.unit if si else None) if val is not None
                      else "none (kept symbolic)"])
     if q.value is None:
         return Step(f"{q.name} has no single value: some symbols have no nominal value (or the "
                     "result depends on s).", [], kind="value", table=rows)
-    if isinstance(q.value, complex):
-        shown = str(q.value)
-    else:
-        shown = format_eng(q.value, q.unit)
-    eqs = []
-    exact = q.expr.xreplace(nominal) if q.expr is not None else None
-    if exact is not None and exact.is_Rational:
-        if abs(float(exact) - float(q.value)) > 1e-9 * max(abs(float(q.value)), 1e-300):
-            raise StepFailed(f"value of {q.name} disagrees with its exact form")
-        if len(str(exact)) <= 24:
-            eqs.append(Equation(sympy.Symbol(q.name), exact,
-                                check=ref.xreplace(nominal) if ref is not None else None))
+    # one exact path: the displayed closed form (or sequence) at nominal, in fmpq
+    exact = exact_value(q.expr, nominal) if q.expr is not None else \
+        exact_value(q.in_sequence, nominal, dict(q.sequence))
+    if exact is None:       # not a rational value (complex, roots): shown, nothing claimed
+        shown = str(q.value) if isinstance(q.value, complex) else format_eng(q.value, q.unit)
+        return Step(f"At nominal values: {q.name} = {shown}.", [], kind="value", table=rows)
+    q.value = to_float(exact)
+    shown = format_eng(q.value, q.unit)
+    # an independent exact value: the solver's ratio, else an exact nodal solve at nominal
+    indep, method = _ratio_value(q.ratio, nominal), "exact"
+    if indep is None:
+        indep, method = _nodal_value(ctx, req, q.name, nominal), "system"
+    if indep is not None and indep != exact:
+        raise StepFailed(f"value of {q.name} at nominal values disagrees with an independent "
+                         f"exact computation ({exact} against {indep})")
+    eqs = []        # no independent value (e.g. a resistance of nominal 0): shown, not claimed
+    if indep is not None and len(str(exact)) <= 24:
+        eq = Equation(sympy.Symbol(q.name), exact)
+        eq.mark(method, indep == exact)
+        eqs.append(eq)
     return Step(f"At nominal values: {q.name} = {shown}.", eqs, kind="value", table=rows)

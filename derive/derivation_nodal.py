@@ -20,11 +20,14 @@ compared with the exact result of the solver.
 """
 from __future__ import annotations
 
+import random
+
+import flint
 import sympy
 
 from . import forms
 from .sequence import _entry_expr
-from .steps import Equation, Step
+from .steps import ATTEMPTS, POINTS, Equation, Program, Step, random_point
 
 MAX_CRAMER = 4        # unknowns up to which determinants are written out (symbolic
                       # determinants of larger systems are slow and unreadable)
@@ -188,9 +191,43 @@ class Nodal:
         return u
 
 
+def _is_zero(d) -> bool:
+    d = sympy.expand(d)
+    return d == 0 or sympy.cancel(sympy.together(d)) == 0
+
+
+def stamped_rows(nodal) -> list:
+    """Row ``i`` of the stamped system, ``sum_j A_ij x_j - b_i``, in the circuit symbols."""
+    sysm = nodal.system
+    rhs = sysm.rhs()
+    out = []
+    for i in range(sysm.n):
+        row = sympy.Add(*[_entry_expr(sysm, p) * nodal.unknowns[j]
+                          for j, p in sysm.A.rows[i].items()])
+        out.append(row - (_entry_expr(sysm, rhs[i]) if i in rhs else 0))
+    return out
+
+
+def _row_equations(nodal, items, offset) -> list:
+    """``lhs = rhs`` per KCL row / element law, each checked exactly against the
+    corresponding row of the stamped system (``verified_by`` "system")."""
+    rows = stamped_rows(nodal)
+    eqs = []
+    for k, (_, l, r, _n) in enumerate(items):
+        eq = Equation(l, r)
+        try:
+            ok = _is_zero(l - r - rows[offset + k])
+        except Exception:
+            ok = False
+        eq.mark("system", ok)
+        eqs.append(eq)
+    return eqs
+
+
 def equation_steps(nodal: Nodal) -> list:
-    """KCL per node and the element laws, then the matrix form (both verified)."""
-    eqs = [Equation(l, r) for _, l, r, _ in nodal.kcl]
+    """KCL per node and the element laws, then the matrix form, every equation checked
+    against the stamped system."""
+    eqs = _row_equations(nodal, nodal.kcl, 0)
     text = ("Kirchhoff's current law at each node other than the reference node "
             f"{nodal.circuit.ground} (current leaving through elements = current driven in "
             "by sources), with node voltages " +
@@ -200,17 +237,18 @@ def equation_steps(nodal: Nodal) -> list:
                 table=[["node", "elements at the node"]] + rows)]
     if nodal.laws:
         out.append(Step("The element laws of the elements that carry an unknown current:",
-                        [Equation(l, r) for _, l, r, _ in nodal.laws],
+                        _row_equations(nodal, nodal.laws, len(nodal.kcl)),
                         [n for *_, n in nodal.laws], kind="nodal"))
     x = sympy.Matrix(nodal.unknowns)
     eq = Equation(sympy.MatMul(nodal.A, x, evaluate=False), nodal.b)
-    eq.verified = nodal.agrees_with_stamps() and all(
-        sympy.expand(a - b) == 0 for a, b in zip(list(nodal.A * x - nodal.b),
-                                                 [l - r for _, l, r, _ in nodal.kcl] +
-                                                 [l - r for _, l, r, _ in nodal.laws]))
-    if not eq.verified:
-        raise AssertionError("internal check failed: the nodal equations disagree with the "
-                             "stamped system")
+    try:
+        ok = nodal.agrees_with_stamps() and all(
+            sympy.expand(a - b) == 0 for a, b in zip(list(nodal.A * x - nodal.b),
+                                                     [l - r for _, l, r, _ in nodal.kcl] +
+                                                     [l - r for _, l, r, _ in nodal.laws]))
+    except Exception:
+        ok = False
+    eq.mark("system", ok)
     out.append(Step("In matrix form, coefficient matrix times unknowns equals sources (checked entry "
                     "by entry against the stamped modified nodal system):", [eq], kind="matrix"))
     return out
@@ -218,21 +256,22 @@ def equation_steps(nodal: Nodal) -> list:
 
 def cramer_step(nodal: Nodal, name, form, b, expected, why: str, tag: str = "") -> Step:
     """``name = form(x)`` with each needed unknown by Cramer's rule; verified against
-    ``expected`` (the solver's exact result)."""
+    ``expected`` (the solver's exact result) and exact solves of the system at random
+    rational points."""
     A = nodal.A
     need = [i for i, u in enumerate(nodal.unknowns) if form.has(u)]
     lhs = sympy.Symbol(name)
     if isinstance(expected, tuple):     # (sequence, result): only named intermediates exist
         seq, final = expected
         eq = Equation(lhs, final, defs=dict(seq))
-        eq.verified = _random_solve_agrees(nodal, form, b, final, defs=dict(seq))
+        eq.mark("system", *_random_solve_check(nodal, form, b, final, defs=dict(seq)))
         return Step(f"{why} The result is the sequence of {len(seq)} named intermediate "
                     "quantities given with it (node elimination); it was compared with a "
                     "direct exact solve of the equations above at random rational points.",
                     [eq], kind="cramer")
     if A.shape[0] > MAX_CRAMER:
         eq = Equation(lhs, expected)
-        eq.verified = _random_solve_agrees(nodal, form, b, expected)
+        eq.mark("system", *_random_solve_check(nodal, form, b, expected))
         return Step(f"{why} The system has {A.shape[0]} unknowns; its determinants are too "
                     "large to write out. The exact result was compared with a direct exact "
                     "solve of the equations above at random rational points.", [eq],
@@ -241,7 +280,12 @@ def cramer_step(nodal: Nodal, name, form, b, expected, why: str, tag: str = "") 
     if getattr(nodal, "det_sym", None) is None:
         nodal.det_sym = nodal.fresh("Delta")
         nodal.d0 = sympy.factor(A.det(method="berkowitz"))
-        eqs.append(Equation(nodal.det_sym, nodal.d0, check=_kernel_det(nodal, A)))
+        kd = _kernel_det(nodal, A)
+        eq = Equation(nodal.det_sym, nodal.d0, check=kd)
+        if kd is None:
+            ok, n = _det_check(A, nodal.d0)
+            eq.mark("points" if n is not None else "exact", ok, n)
+        eqs.append(eq)
     det_sym, d0 = nodal.det_sym, nodal.d0
     defs = {det_sym: d0}
     sub = {}
@@ -253,7 +297,10 @@ def cramer_step(nodal: Nodal, name, form, b, expected, why: str, tag: str = "") 
         di = sympy.factor(Ai.det(method="berkowitz"))
         defs[sym] = di
         sub[nodal.unknowns[i]] = sym / det_sym
-        eqs.append(Equation(sym, di, check=Ai.det(method="berkowitz")))
+        eq = Equation(sym, di)          # against det(Ai) of exact rational matrices
+        ok, n = _det_check(Ai, di)
+        eq.mark("points" if n is not None else "exact", ok, n)
+        eqs.append(eq)
     via = form.xreplace(sub)
     eqs.append(Equation(lhs, via, check=expected, defs=dict(defs)))
     eqs.append(Equation(lhs, expected, check=sympy.cancel(via.xreplace(defs))))
@@ -272,9 +319,38 @@ def _kernel_det(nodal, A):
     return _entry_expr(sysm, det(sysm.A))
 
 
+def _draws(syms, seed, points):
+    """Random rational points (bounded number of draws, see :mod:`derive.steps`)."""
+    rnd = random.Random(seed)
+    for _ in range(ATTEMPTS * points):
+        yield random_point(rnd, syms)
+
+
+def _det_check(M, d, points=POINTS) -> tuple:
+    """(agrees, points used): ``d`` against python-flint's determinant of ``M`` evaluated
+    at random rational points (exact ``fmpq`` arithmetic)."""
+    try:
+        n = M.shape[0]
+        prog = Program(list(M) + [d])
+        syms = prog.symbols()
+        used = 0
+        for pt in _draws(syms, 3, points):
+            try:
+                vals = prog.run(pt)
+            except ZeroDivisionError:
+                continue
+            if flint.fmpq_mat(n, n, vals[:-1]).det() != vals[-1]:
+                return False, None
+            used += 1
+            if used == points or not syms:
+                break
+        return used > 0, (used if syms else None)
+    except Exception:
+        return False, None
+
+
 def _exact_solve(A, b) -> list:
     """Solve a rational linear system exactly (python-flint's fmpq_mat)."""
-    import flint
     q = lambda v: flint.fmpq(int(sympy.Rational(v).p), int(sympy.Rational(v).q))
     M = flint.fmpq_mat(A.shape[0], A.shape[1], [q(v) for v in A])
     rhs = flint.fmpq_mat(b.shape[0], 1, [q(v) for v in b])
@@ -282,23 +358,39 @@ def _exact_solve(A, b) -> list:
     return [sympy.Rational(int(x[i, 0].p), int(x[i, 0].q)) for i in range(A.shape[0])]
 
 
+def _random_solve_check(nodal, form, b, expected, points=2, defs=None) -> tuple:
+    """(agrees, points used): exact solves of the nodal equations at random rational points
+    (python-flint ``fmpq_mat``) against ``expected`` (which may use the named intermediates
+    ``defs``). Points where the system is singular or ``expected`` undefined are redrawn (a
+    bounded number of times); with no usable point the check fails."""
+    try:
+        A = nodal.A
+        n = A.shape[0]
+        sys_prog = Program(list(A) + list(b))
+        form_prog = Program([form])
+        exp_prog = Program([expected], defs or {})
+        syms = (sys_prog.symbols() | form_prog.symbols() | exp_prog.symbols()) - \
+            set(nodal.unknowns)
+        used = 0
+        for pt in _draws(syms, 11, points):
+            try:
+                vals = sys_prog.run(pt)
+                x = flint.fmpq_mat(n, n, vals[:n * n]).solve(flint.fmpq_mat(n, 1, vals[n * n:]))
+                env = dict(pt)
+                env.update({u: x[i, 0] for i, u in enumerate(nodal.unknowns)})
+                got = form_prog.run(env)[0]
+                want = exp_prog.run(pt)[0]
+            except ZeroDivisionError:
+                continue
+            if got != want:
+                return False, None
+            used += 1
+            if used == points or not syms:
+                break
+        return used > 0, (used if syms else None)
+    except Exception:
+        return False, None
+
+
 def _random_solve_agrees(nodal, form, b, expected, points=2, defs=None) -> bool:
-    """Exact solve of the nodal equations at random rational points against ``expected``
-    (which may use the named intermediates ``defs``, evaluated in order)."""
-    import random
-    rnd = random.Random(11)
-    defs = defs or {}
-    syms = nodal.A.free_symbols | b.free_symbols | expected.free_symbols
-    for v in defs.values():
-        syms |= v.free_symbols
-    syms -= set(nodal.unknowns) | set(defs)
-    for _ in range(points):
-        pt = {s: sympy.Rational(rnd.randint(1, 999), rnd.randint(1, 99)) for s in syms}
-        x = _exact_solve(nodal.A.xreplace(pt), b.xreplace(pt))
-        got = form.xreplace(dict(zip(nodal.unknowns, x))).xreplace(pt)
-        env = dict(pt)
-        for k, v in defs.items():
-            env[k] = v.xreplace(env)
-        if sympy.simplify(got - expected.xreplace(env)) != 0:
-            return False
-    return True
+    return _random_solve_check(nodal, form, b, expected, points, defs)[0]

@@ -150,11 +150,13 @@ def analyse_quantity(q, nominal) -> tuple:
     if sens:
         d["sensitivity"] = sens
     eqs = [Equation(sympy.Symbol(q.name), _normal_expr(f), q.expr)]
+    ind = _independent(q.expr)
     if f["w0"] is not None:
-        eqs += [Equation(sympy.Symbol("omega0"), f["w0"]), Equation(sympy.Symbol("Q"), f["Q"])
+        eqs += [Equation(sympy.Symbol("omega0"), f["w0"], ind.get("w0")),
+                Equation(sympy.Symbol("Q"), f["Q"], ind.get("Q"))
                 if f["Q"] is not None else Equation(sympy.Symbol("Q"), sympy.oo)]
     if f["w_corner"] is not None:
-        eqs.append(Equation(sympy.Symbol("omega_c"), f["w_corner"]))
+        eqs.append(Equation(sympy.Symbol("omega_c"), f["w_corner"], ind.get("w_corner")))
     step = Step(f"{q.name} as a rational function of s, normalised so that the lowest-order "
                 "term of the denominator is 1" + (": second order, ω0 and Q read from the denominator"
                                  if f["w0"] is not None else
@@ -167,6 +169,28 @@ def analyse_quantity(q, nominal) -> tuple:
     if all(c.is_number for c in num + den):
         coeffs = ([float(c) for c in num], [float(c) for c in den])
     return d, step, coeffs
+
+
+def _independent(expr) -> dict:
+    """ω0, Q and ωc again, from Taylor coefficients of the denominator at s = 0 taken by
+    differentiation (not from the polynomial coefficients that :func:`rational_form`
+    reads): the independent values the displayed ones are checked against."""
+    try:
+        num, den = sympy.fraction(sympy.cancel(sympy.together(expr)))
+        deg = sympy.degree(den, S)
+        c = [sympy.diff(den, S, k).subs(S, 0) / sympy.factorial(k) for k in range(deg + 1)]
+        p = next(i for i, x in enumerate(c) if x != 0)
+        red = [x / c[p] for x in c[p:]]
+    except Exception:
+        return {}
+    out = {}
+    if len(red) == 2 and red[1] != 0:
+        out["w_corner"] = 1 / red[1]
+    elif len(red) == 3 and red[2] != 0:
+        out["w0"] = 1 / sympy.sqrt(red[2])
+        if red[1] != 0:
+            out["Q"] = sympy.sqrt(red[2]) / red[1]
+    return out
 
 
 def _normal_expr(f):

@@ -13,7 +13,7 @@ from __future__ import annotations
 import sympy
 from .exprs import as_expr
 
-from . import analysis, forms, sequence
+from . import analysis, edge, forms, sequence
 from .circuit import key_of
 from .errors import SheetError
 from .printing import to_latex, to_text
@@ -77,11 +77,32 @@ def _num(e):
 
 
 def _sub_back(expr, x, root, q) -> bool:
-    """Whether ``expr`` with ``x`` replaced by ``root`` is ``q`` identically."""
-    diff = sympy.together(expr.xreplace({x: root}) - q)
-    if not diff.has(sympy.Pow) or all(p.exp.is_Integer for p in diff.atoms(sympy.Pow)):
-        return sympy.cancel(diff) == 0
-    return sympy.simplify(sympy.radsimp(diff)) == 0
+    """Whether ``expr`` with ``x`` replaced by ``root`` is ``q`` identically (exact; an
+    error while checking counts as not verified)."""
+    try:
+        diff = sympy.together(expr.xreplace({x: root}) - q)
+        if not diff.has(sympy.Pow) or all(p.exp.is_Integer for p in diff.atoms(sympy.Pow)):
+            return sympy.cancel(diff) == 0
+        return sympy.simplify(sympy.radsimp(diff)) == 0
+    except Exception:
+        return False
+
+
+def _derived_equation(sym, expr, fq) -> Equation:
+    """``sym = expr`` for a derived closed form, checked against the solver's exact ratio
+    (or, where only a sequence exists, against the sequence it was inlined from)."""
+    if fq.ratio is not None:
+        return Equation(sym, expr, check=edge.to_sympy(fq.ratio))
+    if fq.sequence:
+        return Equation(sym, expr, check=fq.in_sequence, defs=dict(fq.sequence))
+    return Equation(sym, expr)          # nothing independent to compare with: not verified
+
+
+def _chosen(x, root, listed) -> Equation:
+    """The chosen root again: verified as its root step was (substituted back exactly)."""
+    eq = Equation(x, root)
+    eq.mark("exact", listed["verified"])
+    return eq
 
 
 def _critical(poly, x, q, nominal):
@@ -170,12 +191,12 @@ def solve_request(ctx, req) -> analysis.RequestResult:
     if have_nominal:
         nominal[q] = q_nom
     steps = [Step(f"Write the measured {name} as a symbol of its own, {q}, equal to its "
-                  "closed form.", [Equation(q, expr)], kind="inversion"),
+                  "closed form.", [_derived_equation(q, expr, fq)], kind="inversion"),
              Step(f"Multiply out the denominator (assumed not zero): {q}·({to_text(den)}) = "
                   f"{to_text(num)}, a polynomial of degree {poly.degree()} in {x} that must "
-                  "vanish.",
+                  "vanish.",       # checked against (closed form - q)·den
                   [Equation(sympy.expand(num - q * den), poly.as_expr(),
-                            check=sympy.expand(num - q * den))], kind="inversion")]
+                            check=(expr - q) * den)], kind="inversion")]
     listed, chosen = [], None
     for i, r in enumerate(roots):
         ok = _sub_back(expr, x, r, q)
@@ -190,8 +211,8 @@ def solve_request(ctx, req) -> analysis.RequestResult:
             chosen = i
         eq = Equation(x, r)
         back = Equation(q, expr.xreplace({x: r}))
-        back.verified = ok
-        eq.verified = ok
+        back.mark("exact", ok)
+        eq.mark("exact", ok)        # the root is checked by substituting it back
         steps.append(Step(f"Root {i + 1} ({method}); substituting it back into the closed form "
                           f"gives {q} identically.", [eq, back], [req.solve_for],
                           kind="inversion"))
@@ -233,8 +254,8 @@ def solve_request(ctx, req) -> analysis.RequestResult:
         "no root is real and positive at nominal values (or some symbol has none); root 1 is given"
     steps.append(Step(f"The formula for {x} is {why}. It holds where " +
                       "; ".join(conditions) + "." if conditions else
-                      f"The formula for {x} is {why}.", [Equation(x, root)], [req.solve_for],
-                      kind="inversion"))
+                      f"The formula for {x} is {why}.", [_chosen(x, root, listed[pick])],
+                      [req.solve_for], kind="inversion"))
     for st in steps:
         st.verify()
     out.steps = steps

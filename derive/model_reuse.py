@@ -68,7 +68,11 @@ def _model_of(circuit, rep, options):
                          rep.loc.line, rep.loc.col)
     e = {"rin": edge.to_sympy(rin) if rin is not None else None,
          "gain": edge.to_sympy(gain), "rout": edge.to_sympy(rout)}
-    return members, p1, p2, e, dets.unilateral
+    # each model part against the section's determinants computed afresh (steps.Equation)
+    checks = {k: dets.check_ratio(e[k], *a) for k, a in
+              (("rin", (-1, "D1", "D")), ("gain", (1, "D12", "D1")), ("rout", (-1, "DM", "D1")))
+              if e[k] is not None}
+    return members, p1, p2, e, dets.unilateral, checks
 
 
 def _kind(expr):
@@ -82,7 +86,7 @@ def substitute(circuit, options):
         return circuit
     c, info = circuit, []
     for rep in reps:
-        members, p1, p2, e, unilateral = _model_of(c, rep, options)
+        members, p1, p2, e, unilateral, checks = _model_of(c, rep, options)
         for r in c.requests:
             if r.element is not None and r.element.startswith(rep.instance + "."):
                 raise SheetError(f"{r.element!r} is inside {rep.instance}, which is replaced by "
@@ -105,7 +109,7 @@ def substitute(circuit, options):
         nodes = [n for n in c.nodes if n in used or n == c.ground]
         nodes += [n for n in (drive,) if n not in nodes]
         c = dataclasses.replace(c, elements=elements, nodes=nodes)
-        info.append({"rep": rep, "exprs": e, "unilateral": unilateral})
+        info.append({"rep": rep, "exprs": e, "unilateral": unilateral, "checks": checks})
     c.model_substitutions = info
     c.full_circuit = circuit
     return c
@@ -124,6 +128,8 @@ def _note(ctx, req, result, fn):
         rep, e = s["rep"], s["exprs"]
         eqs = [Equation(sympy.Symbol(f"{rep.instance}_{k}"), v) for k, v in e.items()
                if v is not None]
+        for eq, k in zip(eqs, [k for k, v in e.items() if v is not None]):
+            eq.mark("system", *s.get("checks", {}).get(k, (False, None)))
         result.steps.insert(0, Step(
             f"{rep.instance} is replaced by its model from {rep.port} to {rep.port2}: "
             + ("rin across " + rep.port + ", " if e["rin"] is not None else "no rin (open), ")

@@ -67,6 +67,11 @@ def branches_of(circuit, subs=None):
     return out
 
 
+def is_open(b: Branch) -> bool:
+    """A branch of infinite impedance without a source (e.g. a conductance of value 0)."""
+    return not b.ideal_current and b.Z in (sympy.zoo, sympy.oo) and b.E == 0
+
+
 def parallel(x: Branch, y: Branch, name) -> Branch:
     if y.a != x.a:
         y = y.flipped()
@@ -75,6 +80,9 @@ def parallel(x: Branch, y: Branch, name) -> Branch:
     if x.ideal_current or y.ideal_current:
         i, t = (x, y) if x.ideal_current else (y, x)
         return Branch(name, t.a, t.b, t.E - i.K * t.Z, t.Z, members=x.members + y.members)
+    for o, k in ((x, y), (y, x)):       # an open (infinite impedance, no source) drops out
+        if is_open(o):
+            return Branch(name, k.a, k.b, k.E, k.Z, members=x.members + y.members)
     if x.Z == 0:
         return Branch(name, x.a, x.b, x.E, x.Z, members=x.members + y.members)
     if y.Z == 0:

@@ -28,7 +28,7 @@ from . import analysis, edge
 from .errors import SheetError
 from .mna import System
 from .solve import Ratio, Solver
-from .steps import Equation, Step
+from .steps import POINTS, Equation, Step
 
 #: parameter -> (sign, numerator det, denominator det, unit)
 PARAMS = {
@@ -113,11 +113,9 @@ class Dets:
         u2 = s.port_vector(*ctx.port(req.port2))
         A = s.A
         b11 = A.bordered(u1, u1)
-        self.d = {"D": solver._det(A), "D1": solver._det(b11),
-                  "D2": solver._det(A.bordered(u2, u2)),
-                  "D12": solver._det(A.bordered(u1, u2)),
-                  "D21": solver._det(A.bordered(u2, u1)),
-                  "DM": solver._det(b11.bordered(u2, u2))}
+        self.m = {"D": A, "D1": b11, "D2": A.bordered(u2, u2), "D12": A.bordered(u1, u2),
+                  "D21": A.bordered(u2, u1), "DM": b11.bordered(u2, u2)}
+        self.d = {k: solver._det(m) for k, m in self.m.items()}
         d = self.d
         if not (d["D"] * d["DM"] - d["D1"] * d["D2"] + d["D12"] * d["D21"]).is_zero():
             raise AssertionError("internal check failed: Desnanot-Jacobi identity of the "
@@ -130,9 +128,65 @@ class Dets:
         n = self.d[num] if sign > 0 else -self.d[num]
         return Ratio(n, self.d[den], self.system).cancel()
 
+    def numeric_check(self, expr, fn, extra=(), points=POINTS, seed=13):
+        """(agrees, points used): ``expr`` (in the circuit's symbols and ``extra``) against
+        ``fn(dets, point)``, where ``dets`` are the six determinants computed afresh by
+        python-flint's ``fmpq_mat.det`` from the stamped matrices evaluated at random
+        rational points (independent of the fraction-free kernel). Points where a needed
+        determinant vanishes (``fn`` returns None) or ``expr`` is undefined are redrawn."""
+        import random
+        import flint
+        from .steps import ATTEMPTS, Program, random_point
+        try:
+            sysm = self.system
+            var_prog = Program([1 / v.expr if v.kind == "recip" else v.expr
+                                for v in sysm.vars])
+            e_prog = Program([expr])
+            syms = var_prog.symbols() | e_prog.symbols() | set(extra)
+            rnd = random.Random(seed)
+            used = 0
+            for _ in range(ATTEMPTS * points):
+                pt = random_point(rnd, syms)
+                try:
+                    vals = var_prog.run(pt)
+                    dets = {}
+                    for k, m in self.m.items():
+                        rows = [[m.get(i, j) for j in range(m.n)] for i in range(m.n)]
+                        num = [p(*vals) if vals else p for row in rows for p in row]
+                        dets[k] = flint.fmpq_mat(m.n, m.n, [_fq(x) for x in num]).det()
+                    want = fn(dets, pt)
+                    if want is None:
+                        continue
+                    got = e_prog.run(pt)[0]
+                except ZeroDivisionError:
+                    continue
+                if got != want:
+                    return False, None
+                used += 1
+                if used == points:
+                    break
+            return used > 0, used
+        except Exception:
+            return False, None
+
+    def check_ratio(self, expr, sign, num, den):
+        """``expr`` against ``sign·num/den`` of the freshly computed determinants."""
+        return self.numeric_check(
+            expr, lambda d, _pt: None if d[den] == 0 else sign * d[num] / d[den])
+
     @property
     def unilateral(self) -> bool:
         return self.d["D21"].is_zero()
+
+
+def _fq(x):
+    import flint
+    if isinstance(x, flint.fmpq):
+        return x
+    if isinstance(x, (int, flint.fmpz)):
+        return flint.fmpq(x)
+    d = x.to_dict() if hasattr(x, "to_dict") else {}
+    return flint.fmpq(d.get(tuple([0] * len(next(iter(d)))), 0)) if d else flint.fmpq(0)
 
 
 def quantity(ctx, ratio, name, unit):
@@ -202,7 +256,7 @@ def model_handler(ctx, req) -> analysis.RequestResult:
         out.steps.append(Step(
             f"The section is not unilateral (z12 ≠ 0): its input resistance depends on the load "
             f"{zl} across {req.port2}. rin above is for {req.port2} open; with {req.port2} "
-            "shorted it is rin_sc.", [Equation(sympy.Symbol("rin_loaded"), loaded)],
+            "shorted it is rin_sc.", [_loaded_equation(dets, zl, loaded)],
             kind="model"))
     else:
         out.steps.append(Step(f"The section is unilateral (z12 = 0): rin does not depend on "
@@ -224,6 +278,24 @@ def _loaded_rin(dets, zl):
     return sympy.factor(sympy.cancel((e["DM"] - zl * e["D1"]) / (zl * e["D"] - e["D2"])))
 
 
+def _loaded_equation(dets, zl, loaded) -> Equation:
+    """rin with a load, checked against z11 - z12·z21/(z22 + zl) (two-port relation) from
+    determinants computed afresh at random rational points (``verified_by`` "system")."""
+    def z_form(d, pt):
+        if d["D"] == 0:
+            return None
+        z11, z12, z21, z22 = (-d[k] / d["D"] for k in ("D1", "D21", "D12", "D2"))
+        zv = pt[zl]
+        if z22 + zv == 0:
+            return None
+        return z11 - z12 * z21 / (z22 + zv)
+    eq = Equation(sympy.Symbol("rin_loaded"), loaded)
+    if dets.d["D"].is_zero():
+        return eq           # no z parameters to compare with: not verified
+    eq.mark("system", *dets.numeric_check(loaded, z_form, extra=(zl,)))
+    return eq
+
+
 def _poly_sym(dets, key):
     """A determinant as a sympy expression in the circuit symbols (common factors kept)."""
     one = dets.system.ctx.constant(1)
@@ -234,14 +306,18 @@ def _poly_sym(dets, key):
 def _model_step(req, q, dets):
     z = {n: edge.to_sympy(dets.ratio(*PARAMS[n][:3])) for n in SETS["z"]
          if dets.ratio(*PARAMS[n][:3]) is not None}
-    eqs = [Equation(sympy.Symbol(n), q[n].expr) for n in ("rin", "gain") if n in q]
     if len(z) == 4:
         eqs = [Equation(sympy.Symbol("rin"), q["rin"].expr, z["z11"]),
                Equation(sympy.Symbol("gain"), q["gain"].expr, z["z21"] / z["z11"]),
                Equation(sympy.Symbol("rout"), q["rout"].expr,
                         z["z22"] - z["z12"] * z["z21"] / z["z11"])]
-    else:
-        eqs.append(Equation(sympy.Symbol("rout"), q["rout"].expr))
+    else:       # no z parameters: each against determinants computed afresh
+        eqs = []
+        for n in ("rin", "gain", "rout"):
+            if n in q:
+                eq = Equation(sympy.Symbol(n), q[n].expr)
+                eq.mark("system", *dets.check_ratio(q[n].expr, *MODEL[n][:3]))
+                eqs.append(eq)
     return Step(f"Section from {req.port} to {req.port2}: rin is seen into {req.port} with "
                 f"{req.port2} open, gain is the open-circuit voltage of {req.port2} per volt at "
                 f"{req.port}, rout is seen into {req.port2} with {req.port} shorted (checked "

@@ -47,7 +47,7 @@ from .analysis import Context, RequestResult, handler
 from .circuit import S as LAPLACE_S
 from .errors import SheetError
 from .printing import to_text
-from .steps import Equation, Step
+from .steps import Equation, Step, compare
 
 TIDY_OPS = 600          # factor only expressions up to this many operations
 
@@ -181,22 +181,34 @@ def _rational_derivative(e, x):
 def agree(a, b, points: int = 3, seed: int = 5) -> bool:
     """Whether two expressions agree at ``points`` random rational points, evaluated exactly
     (a wrong identity of rational functions passes only with negligible probability,
-    Schwartz-Zippel lemma). Points where either side is undefined are skipped."""
+    Schwartz-Zippel lemma). Undefined points are redrawn; with none usable, no agreement
+    (:func:`derive.steps.compare`)."""
+    return _agree_how(a, b, points, seed)[0]
+
+
+def _agree_how(a, b, points: int = 3, seed: int = 5):
+    """(agree, points used) by exact evaluation at random rational points."""
+    from .steps import ATTEMPTS, NotRational, Program, random_point
     import random
+    try:
+        prog = Program([a, b])
+    except NotRational:
+        _m, ok, n = compare(a, b, None, points, seed)
+        return ok, n
+    syms = prog.symbols()
     rnd = random.Random(seed)
-    syms = sorted(a.free_symbols | b.free_symbols, key=str)
-    for _ in range(points):
-        pt = {x: sympy.Rational(rnd.randint(1, 10 ** 6), rnd.randint(1, 10 ** 3)) for x in syms}
+    used = 0
+    for _ in range(ATTEMPTS * points):
         try:
-            va, vb = a.xreplace(pt), b.xreplace(pt)
+            va, vb = prog.run(random_point(rnd, syms))
         except ZeroDivisionError:
             continue
-        if va.has(sympy.zoo, sympy.nan) or vb.has(sympy.zoo, sympy.nan):
-            continue
-        diff = va - vb
-        if (diff != 0) if diff.is_Rational else (sympy.simplify(diff) != 0):
-            return False
-    return True
+        if va != vb:
+            return False, None
+        used += 1
+        if used == points or not syms:
+            break
+    return used > 0, (used if syms else None)
 
 
 def _fresh(base: str, taken: set) -> sympy.Symbol:
@@ -375,7 +387,11 @@ def _steps(a: Analysed) -> list:
         e2 = Equation(sympy.Symbol(f"S_{s.symbol}"), s.normalized,
                       check=s.symbol * s.raw / a.form.final)
         for e in (e1, e2):      # checked against sympy's own derivative of Q
-            e.verified = agree(e.rhs, e.check)
+            try:
+                ok, n = _agree_how(e.rhs, e.check)
+            except Exception:
+                ok, n = False, None
+            e.mark("points" if n is not None else "exact", ok, n)
         eqs += [e1, e2]
     st = Step(txt, eqs, [str(s.symbol) for s in a.sens], kind="sensitivity")
     st.verify()
