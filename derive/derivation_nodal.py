@@ -279,7 +279,7 @@ def cramer_step(nodal: Nodal, name, form, b, expected, why: str, tag: str = "") 
     eqs = []
     if getattr(nodal, "det_sym", None) is None:
         nodal.det_sym = nodal.fresh("Delta")
-        nodal.d0 = sympy.factor(A.det(method="berkowitz"))
+        nodal.d0 = symbolic_det(A)
         kd = _kernel_det(nodal, A)
         eq = Equation(nodal.det_sym, nodal.d0, check=kd)
         if kd is None:
@@ -294,7 +294,7 @@ def cramer_step(nodal: Nodal, name, form, b, expected, why: str, tag: str = "") 
         Ai[:, i] = b
         node = str(nodal.unknowns[i]).split("_", 1)[1]
         sym = nodal.fresh(f"Delta_{node}" + (f"_{tag}" if tag else ""))
-        di = sympy.factor(Ai.det(method="berkowitz"))
+        di = symbolic_det(Ai)
         defs[sym] = di
         sub[nodal.unknowns[i]] = sym / det_sym
         eq = Equation(sym, di)          # against det(Ai) of exact rational matrices
@@ -308,6 +308,12 @@ def cramer_step(nodal: Nodal, name, form, b, expected, why: str, tag: str = "") 
                 "coefficient matrix with that unknown's column replaced by the right-hand "
                 "side, over the determinant of the coefficient matrix.", eqs,
                 kind="cramer")
+
+
+def symbolic_det(M):
+    """The determinant shown in a Cramer step (sympy's Berkowitz algorithm, factored); it
+    is checked against independent determinants, never trusted."""
+    return sympy.factor(M.det(method="berkowitz"))
 
 
 def _kernel_det(nodal, A):

@@ -113,7 +113,8 @@ def equation_view(eq) -> dict:
         lines = [to_latex(eq.lhs) + " &= " + to_latex(eq.rhs)]
     else:
         lines = equation_lines(eq.lhs, eq.rhs)
-    return {"lines": lines, "verified": bool(eq.verified)}
+    return {"lines": lines, "verified": bool(eq.verified),
+            "verified_by": eq.verified_by if eq.verified else None}
 
 
 def step_view(st) -> dict:
@@ -124,8 +125,43 @@ def step_view(st) -> dict:
     if st.table:
         table = {"head": [str(c) for c in st.table[0]],
                  "rows": [[str(c) for c in r] for r in st.table[1:]]}
-    return {"text": st.text, "equations": [equation_view(e) for e in st.equations],
-            "table": table, "verified": bool(st.verified), "kind": st.kind}
+    eqs = [equation_view(e) for e in st.equations]
+    return {"text": st.text, "equations": eqs, "table": table,
+            "verified": bool(st.verified) and all(e["verified"] for e in eqs), "kind": st.kind}
+
+
+METHOD_WORDS = [("exact", "exactly (the difference cancels)"),
+                ("points", "at random rational points (exact rational arithmetic)"),
+                ("system", "against the stamped nodal system")]
+
+
+def verification_sentence(steps) -> str:
+    """How the displayed equations were verified, counted by method (empty if none)."""
+    counts: dict = {}
+    for s in steps:
+        for e in s["equations"]:
+            m = e["verified_by"] if e["verified"] else None
+            counts[m] = counts.get(m, 0) + 1
+    total = sum(counts.values())
+    if not total:
+        return ""
+    parts = [f"{counts[m]} {w}" for m, w in METHOD_WORDS if counts.get(m)]
+    head = f"Of the {total} equation{'s' if total != 1 else ''} displayed below, derive checked "
+    if parts:
+        text = head + (", ".join(parts[:-1]) + " and " + parts[-1] if len(parts) > 1
+                       else parts[0])
+    else:
+        text = f"Of the {total} equation{'s' if total != 1 else ''} displayed below, derive " \
+               "checked none"
+    n_def = counts.get("definition", 0)
+    if n_def:
+        text += f"; {n_def} {'are definitions' if n_def != 1 else 'is a definition'} (only " \
+                "naming a quantity)"
+    n_bad = counts.get(None, 0)
+    if n_bad:
+        text += f"; {n_bad} {'were' if n_bad != 1 else 'was'} not verified, and the steps " \
+                "holding them are not marked verified"
+    return text + "."
 
 
 def quantity_view(q) -> dict:
@@ -155,4 +191,5 @@ def view(record) -> dict:
             "elements": elements(c), "assumptions": assumptions(c), "cautions": cautions(c),
             "results": results,
             "all_verified": all(s["verified"] for s in all_steps),
-            "n_equations": sum(len(s["equations"]) for s in all_steps)}
+            "n_equations": sum(len(s["equations"]) for s in all_steps),
+            "verification": verification_sentence(all_steps)}
