@@ -76,6 +76,12 @@ def _refused(rec, i, step):
     assert sj["verified"] is False
     assert any(v["method"] is None for v in sj["verified_by"])
     assert "were not verified" in md or "was not verified" in md
+    # LaTeX: "(verified)" exactly on the steps whose every equation verified
+    from derive import export_latex, record_view
+    v = record_view.view(rec)
+    marked = sum(1 for r in v["results"] for s in r["steps"] if s["verified"] and s["equations"])
+    assert export_latex.latex_source(rec).count(r"\emph{(verified)}") == marked
+    assert not [s for s in v["results"][i]["steps"] if s["text"] == step.text][0]["verified"]
 
 
 def _failed_record(sheet, ei, i=0):
@@ -94,6 +100,12 @@ def test_unmutated_sheets_verify_completely():
             assert r.steps and all(s.verified for s in r.steps), r.request.text
             assert all(e.verified_by in steps.METHODS for s in r.steps for e in s.equations)
         assert "*(verified)*" in rec.to_markdown()
+        for r in json.loads(rec.to_json())["results"]:
+            for sj in r["steps"]:
+                assert len(sj["verified_by"]) == len(sj["equations"])
+                for v in sj["verified_by"]:
+                    assert v["method"] in steps.METHODS
+                    assert ("points" in v) <= (v["method"] in ("points", "system"))
 
 
 # ------------------------------------------------------------------ the equality check
