@@ -265,3 +265,80 @@ def test_isc_alone_steps_verified():
     vth = V * (Rb / (Ra + Rb) - Rg / (Rc + Rg))
     rth = Ra * Rb / (Ra + Rb) + Rc * Rg / (Rc + Rg)
     assert sympy.cancel(closed(res.quantities["isc"]) - vth / rth) == 0
+
+
+# ------------------------------------------------------------------ 3. values that divide by symbols
+VALUE_EXPRS = ["1/(R*w0)", "1/X", "X/R", "2*R/w0", "(R + X)/(R*X)", "sqrt(X)/R", "X/(R + w0)"]
+KINDS = {"resistor": "R", "conductance": "G", "capacitor": "C", "inductor": "L",
+         "impedance": "Z", "admittance": "Y"}
+POINT = {"R": Fraction(3, 2), "w0": Fraction(7), "X": Fraction(5, 4)}   # = NOMINALS
+NOMINALS = "nominal R = 1.5 ohm\nnominal w0 = 7 Hz\nnominal X = 1.25\n"
+
+
+def _num(expr_text, point):
+    syms = {k: sympy.Symbol(k) for k in point}
+    c = derive.circuit_of(f"resistor Q between a and gnd = {expr_text}\nnominal R = 1\n"
+                          "nominal w0 = 1\nnominal X = 1\n")
+    v = c.element("Q").value
+    return complex(v.xreplace({syms[k]: sympy.Rational(x.numerator, x.denominator)
+                               for k, x in point.items()}).evalf(30))
+
+
+@pytest.mark.parametrize("kind", list(KINDS))
+@pytest.mark.parametrize("value", VALUE_EXPRS)
+def test_every_kind_takes_every_value_expression(kind, value):
+    with_nominals = True
+    # V -- element under test -- out, resistor R from out to gnd (R also in the value),
+    # a current source into out whose value is an expression too
+    text = (f"voltage source V between in and gnd = 2*X/R\n"
+            f"{kind} E between in and out = {value}\n"
+            "resistor R between out and gnd\n"
+            "current source I from gnd to out = X/(R*w0)\n"
+            "port out between out and gnd\n"
+            "find thevenin at out\n"
+            + (NOMINALS if with_nominals else ""))
+    q = run(text).results[0].quantities
+    vth, rth = closed(q["vth"]), closed(q["rth"])
+    s0 = complex(0.3, 1.7)
+    pt = {sympy.Symbol(k): sympy.Rational(v.numerator, v.denominator) for k, v in POINT.items()}
+    pt[sympy.Symbol("s")] = sympy.Rational(3, 10) + sympy.I * sympy.Rational(17, 10)
+    ev = _num(value, POINT)
+    ref = [("V", "V", "in", "gnd", _num("2*X/R", POINT)),
+           (KINDS[kind], "E", "in", "out", ev),
+           ("R", "R", "out", "gnd", float(POINT["R"])),
+           ("I", "I", "gnd", "out", _num("X/(R*w0)", POINT))]
+    want_v, want_r, _ = port_reference(ref, "out", "gnd", s=s0)
+    assert complex(vth.xreplace(pt).evalf(30)) == pytest.approx(want_v, rel=1e-12)
+    assert complex(rth.xreplace(pt).evalf(30)) == pytest.approx(want_r, rel=1e-12)
+    if with_nominals and kind not in ("capacitor", "inductor"):
+        assert q["vth"].value == pytest.approx(want_v.real, rel=1e-12)
+        assert q["rth"].value == pytest.approx(want_r.real, rel=1e-12)
+
+
+@pytest.mark.parametrize("value", ["1/(R*w0)", "1/X", "X/R", "2*R/w0"])
+@pytest.mark.parametrize("noms", [NOMINALS, ""])
+def test_rc_low_pass_with_capacitance_expression(value, noms):
+    # RC low-pass: H = 1/(1 + s R C) (handbook closed form, e.g. Horowitz & Hill ch. 1)
+    text = ("voltage source Vin between in and gnd\nresistor R between in and out\n"
+            f"capacitor C between out and gnd = {value}\nport out between out and gnd\n"
+            "find gain from Vin to out\n" + noms)
+    g = closed(run(text).results[0].quantities["gain"])
+    R, w0, X, s = sympy.symbols("R w0 X s")
+    C = {"1/(R*w0)": 1 / (R * w0), "1/X": 1 / X, "X/R": X / R, "2*R/w0": 2 * R / w0}[value]
+    assert sympy.cancel(g - 1 / (1 + s * R * C)) == 0
+
+
+@pytest.mark.parametrize("value", ["1/(R*w0)", "1/X", "X/R", "2*R/w0"])
+@pytest.mark.parametrize("noms", [NOMINALS, ""])
+def test_rl_low_pass_with_inductance_expression(value, noms, tmp_path):
+    # RL low-pass: H = R/(R + s L) (handbook closed form)
+    text = ("voltage source Vin between in and gnd\ninductor L between in and out = "
+            f"{value}\nresistor R between out and gnd\nport out between out and gnd\n"
+            "find gain from Vin to out\n" + noms)
+    p = json_record(text, tmp_path) if value == "1/(R*w0)" and noms else None
+    if p is not None:
+        assert p.returncode == 0, p.stderr
+    g = closed(run(text).results[0].quantities["gain"])
+    R, w0, X, s = sympy.symbols("R w0 X s")
+    L = {"1/(R*w0)": 1 / (R * w0), "1/X": 1 / X, "X/R": X / R, "2*R/w0": 2 * R / w0}[value]
+    assert sympy.cancel(g - R / (R + s * L)) == 0
