@@ -335,6 +335,35 @@ class System:
             return
         self._b[i] = self._b.get(i, self.ctx.constant(0)) + v
 
+    # ---------------------------------------------------------------- well-posedness
+    def regular(self, points: int = 3, seed: int = 20240611, max_terms: float = 2e6) -> bool:
+        """Whether ``det A`` is not the zero polynomial, decided exactly.
+
+        ``A`` is evaluated at random rational points and its determinant taken in exact
+        rational arithmetic (python-flint ``fmpq_mat``): a nonzero value proves regularity.
+        Where every point gives 0, the symbolic determinant (:func:`derive.kernel.det`)
+        decides, when its estimated size allows; beyond that the matrix counts as singular
+        (a nonzero polynomial vanishing at all the points is vanishingly unlikely,
+        Schwartz-Zippel lemma).
+        """
+        import random
+        from .kernel import det, estimate_det_terms
+        if self.n == 0:
+            return True
+        rnd = random.Random(seed)
+        nv = self.ctx.nvars()
+        for _ in range(points):
+            pt = [flint.fmpq(rnd.randint(1, 10 ** 9), rnd.randint(1, 10 ** 6)) for _ in range(nv)]
+            m = flint.fmpq_mat(self.n, self.n)
+            for i, row in enumerate(self.A.rows):
+                for j, p in row.items():
+                    m[i, j] = p(*pt)
+            if m.det() != 0:
+                return True
+        if estimate_det_terms(self.A) <= max_terms:
+            return not det(self.A).is_zero()
+        return False
+
     # ---------------------------------------------------------------- right-hand sides
     def source_vars(self):
         return [v for v in self.vars if v.kind == "src"]

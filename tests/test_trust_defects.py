@@ -342,3 +342,84 @@ def test_rl_low_pass_with_inductance_expression(value, noms, tmp_path):
     R, w0, X, s = sympy.symbols("R w0 X s")
     L = {"1/(R*w0)": 1 / (R * w0), "1/X": 1 / X, "X/R": X / R, "2*R/w0": 2 * R / w0}[value]
     assert sympy.cancel(g - R / (R + s * L)) == 0
+
+
+# ------------------------------------------------------------------ 4. cut sets of dependent sources
+GYRATOR = """current source G1 from a to gnd = g1*across(b, gnd)
+current source G2 from b to gnd = -g2*across(a, gnd)
+{load} L1 between b and gnd
+port P between a and gnd
+find impedance at P
+"""
+
+
+def test_gyrator_loaded_by_capacitor_is_an_inductor():
+    # A gyrator of transconductances g1, g2 loaded by C looks like an inductor
+    # L = C/(g1*g2) (textbook result: the gyrator, B. D. H. Tellegen 1948; e.g. Sedra &
+    # Smith, active filters). Node a is joined to the rest only through G1 (dependent).
+    q = run(GYRATOR.format(load="capacitor")).results[0].quantities["impedance"]
+    L1, g1, g2, s = sympy.symbols("L1 g1 g2 s")
+    assert sympy.cancel(closed(q) - s * L1 / (g1 * g2)) == 0
+
+
+def test_gyrator_loaded_by_resistor_against_numpy():
+    # loaded by R: R_in = 1/(g1*g2*R) (the gyrator inverts an impedance, same source)
+    text = GYRATOR.format(load="resistor") + "find thevenin at P\n"
+    res = run(text).results
+    L1, g1, g2 = sympy.symbols("L1 g1 g2")
+    assert sympy.cancel(closed(res[0].quantities["impedance"]) - 1 / (g1 * g2 * L1)) == 0
+    pt = {L1: sympy.Rational(47, 10), g1: sympy.Rational(3, 1000), g2: sympy.Rational(7, 1000)}
+    ref = [("VCCS", "G1", "a", "gnd", (3e-3, "b", "gnd")),
+           ("VCCS", "G2", "b", "gnd", (-7e-3, "a", "gnd")), ("R", "L1", "b", "gnd", 4.7)]
+    _, rth, _ = port_reference(ref, "a", "gnd")
+    got = complex(closed(res[1].quantities["rth"]).xreplace(pt))
+    assert got == pytest.approx(rth, rel=1e-12)
+
+
+def test_gyrator_with_nominals_and_steps(tmp_path):
+    text = GYRATOR.format(load="capacitor") + ("nominal g1 = 2 mS\nnominal g2 = 5 mS\n"
+                                               "find vth at P\n")
+    text = text.replace("capacitor L1 between b and gnd",
+                        "capacitor L1 between b and gnd = 10 nF\n"
+                        "current source Ib from gnd to b = 1 mA")
+    p = json_record(text, tmp_path)
+    assert p.returncode == 0, p.stderr
+    res = json.loads(p.stdout)["results"]
+    assert all(st["verified"] for r in res for st in r.get("steps", []))
+    # vth: Ib into b, v_b from KCL at a: g1*v_b = 0 -> v_b = 0; at b: ... -> v_a = -Ib/g2
+    # (nodal equations by hand: row a: g1*vb = 0; row b: sC*vb - g2*va = Ib)
+    assert res[1]["quantities"]["vth"]["value"] == pytest.approx(-1e-3 / 5e-3, rel=1e-12)
+
+
+@pytest.mark.parametrize("text, line, what", [
+    # a node joined only through a dependent source that does not fix it
+    ("voltage source V between b and gnd\nresistor R between b and gnd\n"
+     "current source G1 from a to gnd = g1*across(b, gnd)\nport P between a and gnd\n"
+     "find vth at P\n", 3, "the circuit is singular"),
+    # joined only through an independent current source
+    ("resistor R between b and gnd\ncurrent source I from b to a = 1 mA\n"
+     "port P between a and gnd\nfind vth at P\n", 2, "cut set of current sources I"),
+    # a floating node
+    ("resistor R between b and gnd\nresistor R2 between a and c\nport P between a and gnd\n"
+     "find vth at P\n", 2, "not connected"),
+    # a loop of voltage sources
+    ("voltage source V1 between a and gnd\nvoltage source V2 between a and gnd\n"
+     "resistor R between a and gnd\nport P between a and gnd\nfind vth at P\n", 2,
+     "loop of voltage sources"),
+])
+def test_singular_circuits_keep_located_errors(text, line, what, tmp_path):
+    p = json_record(text, tmp_path)
+    assert p.returncode == 2
+    first = p.stderr.splitlines()[0]
+    assert first.startswith(f"{tmp_path / 'sheet.eqv'}:{line}:1: error:"), first
+    assert what in first
+
+
+def test_regular_is_decided_exactly():
+    # the rank check proves regularity by an exact nonzero determinant at a rational point
+    c = derive.circuit_of(GYRATOR.format(load="capacitor"))
+    from derive.mna import System
+    assert System(c).regular()
+    with pytest.raises(SheetError):
+        derive.circuit_of("voltage source V between b and gnd\nresistor R between b and gnd\n"
+                          "current source G1 from a to gnd = g1*across(b, gnd)\n")
