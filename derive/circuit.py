@@ -16,7 +16,7 @@ import sympy
 from .errors import SheetError
 from .exprs import names_in, to_sympy
 from .model import Call, Element, Loc, Name, OpAmp, Sheet, Use
-from .topology import check_topology
+from .topology import check_topology, dependent_cuts
 
 UNIT_OF_KIND = {"resistor": "ohm", "conductance": "S", "capacitor": "F", "inductor": "H",
                 "impedance": "ohm", "admittance": "S", "vsource": "V", "isource": "A"}
@@ -354,9 +354,29 @@ def build_circuit(sheet: Sheet) -> Circuit:
                 raise SheetError(f"numeric: {n!r} has no nominal value", l.line, l.col)
             numeric.add(k)
     c = Circuit(sheet, b.ground, nodes, b.elements, symbols, ports, list(sheet.requests), numeric)
+    _check_dependent_cuts(c)
     from .requests_check import check_requests
     check_requests(c)
     return c
+
+
+def _check_dependent_cuts(c: Circuit):
+    """Nodes joined to the rest only through current sources, some of them dependent: well
+    posed exactly when the stamped nodal matrix is regular (decided exactly, see
+    :meth:`derive.mna.System.regular`); otherwise a located error at the first dependent
+    source of the cut."""
+    cuts = dependent_cuts(c.elements, c.ground, c.nodes)
+    if not cuts:
+        return
+    from .mna import System
+    if System(c).regular():
+        return
+    members, srcs = cuts[0]
+    raise SheetError(f"the circuit is singular: node(s) {', '.join(members)} are joined to the "
+                     "rest of the circuit only through current sources "
+                     f"({', '.join(e.name for e in srcs)} dependent), and the nodal equations "
+                     "do not fix their voltages (the determinant of the nodal matrix is 0)",
+                     srcs[0].loc.line, srcs[0].loc.col)
 
 
 def _symbols(b: _Builder, sheet: Sheet) -> dict:

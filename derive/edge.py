@@ -120,41 +120,100 @@ def to_sympy(ratio) -> sympy.Expr:
 _NOT_EXACT = object()   # var_values: some value is not a finite rational
 
 
+def _var_value(v, nominal: dict):
+    """Exact value (flint fmpq) of one ring variable at nominal values; None where a symbol
+    behind it has no nominal value (or it is ``s``); _NOT_EXACT where the value is not a
+    finite rational (a resistance of nominal 0, a root)."""
+    x = v.expr.xreplace(nominal)
+    if not x.is_number:
+        return None
+    if v.kind == "recip":
+        if x == 0:
+            return _NOT_EXACT
+        x = 1 / x
+    if not x.is_Rational:
+        return _NOT_EXACT
+    return flint.fmpq(int(x.p), int(x.q))
+
+
 def var_values(system, nominal: dict):
     """Exact values (flint fmpq) of every ring variable at nominal values, or None if some
     variable has no value (a symbol without nominal, or ``s``)."""
     vals = []
     for v in system.vars:
-        e = v.expr
-        x = e.xreplace(nominal)
-        if not x.is_number:
-            return None
-        if v.kind == "recip":
-            if x == 0:
-                return _NOT_EXACT      # a resistance of nominal 0: evaluate the closed form
-            x = 1 / x
-        x = sympy.nsimplify(x) if not x.is_Rational else x
-        if not x.is_Rational:
-            return _NOT_EXACT          # an irrational value (sqrt): evaluate the closed form
-        vals.append(flint.fmpq(int(x.p), int(x.q)))
+        x = _var_value(v, nominal)
+        if x is None or x is _NOT_EXACT:
+            return x
+        vals.append(x)
     return vals
 
 
-def value_at(ratio, nominal: dict):
-    """The ratio's value at nominal values (a float), or None."""
-    vals = var_values(ratio.system, nominal)
-    if vals is None:
+def used_vars(ratio) -> list:
+    """Indices of the ring variables that occur in the (cancelled) ratio."""
+    nv = len(ratio.system.vars)
+    used = [False] * nv
+    for p in (ratio.num, ratio.den):
+        for exps in p.to_dict():
+            for k in range(nv):
+                if exps[k]:
+                    used[k] = True
+    return [k for k in range(nv) if used[k]]
+
+
+def _aliased(system, k) -> bool:
+    """Whether ring variable ``k`` shares a symbol with another one, or stands for a compound
+    expression (then its occurrence in a cancelled ring ratio does not prove that the
+    result depends on its symbols: ``1/R`` and ``R`` may cancel)."""
+    v = system.vars[k]
+    if not v.expr.is_Symbol:
+        return True
+    return any(j != k and v.expr in w.expr.free_symbols for j, w in enumerate(system.vars))
+
+
+def exact_number(v):
+    """An exact sympy number as a float (or complex) at the edge; None if not finite."""
+    if v.is_Rational:
+        return float(Fraction(int(v.p), int(v.q)))
+    if v.has(sympy.zoo, sympy.nan, sympy.oo, -sympy.oo):
         return None
-    if vals is _NOT_EXACT:
-        v = sympy.cancel(to_sympy(ratio).xreplace(nominal))
-        if not v.is_number or v.has(sympy.zoo, sympy.nan, sympy.oo):
+    c = complex(sympy.N(v, 30))
+    return c.real if c.imag == 0 else c
+
+
+def value_at(ratio, nominal: dict):
+    """The ratio's exact value at nominal values, as a float at the edge; None where a symbol
+    *of this result* has no nominal value (symbols elsewhere in the circuit do not matter).
+
+    Only the ring variables that occur in the cancelled ratio are evaluated; where one of
+    them has no value but may cancel against another (a shared or compound symbol), the
+    closed form in the circuit's symbols decides.
+    """
+    system = ratio.system
+    used = used_vars(ratio)
+    vals = [flint.fmpq(0)] * len(system.vars)
+    closed_form = False
+    for k in used:
+        x = _var_value(system.vars[k], nominal)
+        if x is None:
+            if not _aliased(system, k):
+                return None        # a symbol of this result without nominal value
+            closed_form = True
+        elif x is _NOT_EXACT:
+            closed_form = True
+        else:
+            vals[k] = x
+    if closed_form:
+        v = to_sympy(ratio).xreplace(nominal)
+        if v.free_symbols:
+            v = sympy.cancel(v)
+        if not v.is_number:
             return None
-        v = complex(sympy.N(v))
-        return v.real if v.imag == 0 else v
-    if not ratio.system.vars:
+        return exact_number(v)
+    if not system.vars:
         n, d = ratio.num.to_dict(), ratio.den.to_dict()
         num = n.get((0,), 0) if n else 0
         den = d.get((0,), 1) if d else 1
+        num, den = flint.fmpq(num), flint.fmpq(den)
     else:
         num, den = ratio.num(*vals), ratio.den(*vals)
     if den == 0:

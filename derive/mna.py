@@ -128,10 +128,59 @@ class System:
             if not p.domain.is_QQ and not p.domain.is_ZZ:
                 raise sympy.PolynomialError
         except sympy.PolynomialError:
+            split = self._rational_plan(expr, register)
+            if split is not None:
+                return split
             i = self._v.get("expr", expr) if register else self._v.index[("expr", expr)]
             return ("mono", sympy.Integer(1), [(i, 1)])
         idx = [self._v.get("expr", x) if register else self._v.index[("expr", x)] for x in syms]
         return ("poly", [(coef, list(zip(idx, mon))) for mon, coef in p.terms()])
+
+    def _rational_plan(self, expr, register):
+        """A value that divides by symbols (``1/(R*w0)``, ``X/R``, ``s*sqrt(X)/R``) as a
+        polynomial in ring variables: numerator factors that are polynomials in symbols give
+        ``expr`` variables of those symbols, other numerator factors one ``expr`` variable
+        each; every factor of the denominator a ``recip`` variable (``1/w0``, ``1/(R1+R2)``).
+        None where the expression has no such split (an irrational coefficient)."""
+        def var(kind, x):
+            return self._v.get(kind, x) if register else self._v.index[(kind, x)]
+
+        def times(terms, other):
+            out = {}
+            for c1, m1 in terms:
+                for c2, m2 in other:
+                    m = dict(m1)
+                    for i, k in m2.items():
+                        m[i] = m.get(i, 0) + k
+                    key = tuple(sorted(m.items()))
+                    out[key] = out.get(key, 0) + c1 * c2
+            return [(c, dict(k)) for k, c in out.items() if c != 0]
+
+        num, den = sympy.fraction(sympy.together(expr))
+        cn, nfac = num.as_coeff_mul()
+        cd, dfac = den.as_coeff_mul()
+        if not (cn.is_Rational and cd.is_Rational) or cd == 0 or (not dfac and not nfac):
+            return None
+        terms = [(cn / cd, {})]
+        for f in nfac:
+            syms = sorted(f.free_symbols, key=str)
+            try:
+                p = sympy.Poly(f, *syms)
+                if not p.domain.is_QQ and not p.domain.is_ZZ:
+                    raise sympy.PolynomialError
+                idx = [var("expr", x) for x in syms]
+                t = [(c, {i: k for i, k in zip(idx, mon) if k}) for mon, c in p.terms()]
+            except sympy.PolynomialError:
+                t = [(sympy.Integer(1), {var("expr", f): 1})]
+            terms = times(terms, t)
+        for f in dfac:
+            base, k = f.as_base_exp()
+            if not (k.is_Integer and k > 0) or base.is_number:
+                base, k = f, 1
+            if base.is_number:
+                return None
+            terms = times(terms, [(sympy.Integer(1), {var("recip", base): int(k)})])
+        return ("poly", [(c, list(m.items())) for c, m in terms])
 
     def poly(self, expr, recip=False):
         """The ring polynomial of ``expr`` (or of ``1/expr`` with ``recip``)."""
@@ -156,17 +205,16 @@ class System:
         for e in self.circuit.elements:
             if e.kind in ("resistor",):
                 self._scan(self._check_nonzero(e), True)
-            elif e.kind in ("conductance", "admittance", "inductor", "impedance"):
+            elif e.kind in ("conductance", "admittance", "impedance"):
                 self._scan(self._value(e), False)
-            elif e.kind == "capacitor":
+            elif e.kind in ("capacitor", "inductor"):
                 self._scan(self._value(e), False)
                 self._v.get("expr", S)
+                self._scan(S * self._value(e), False)     # what is stamped: s*C, s*L
             elif e.kind in ("vsource", "isource") and not e.controls:
                 self._v.get("src", self._value(e), e.name)
             for coef, _ctl in e.controls:
                 self._scan(coef.xreplace(self.subs) if self.subs else coef, False)
-            if e.kind == "inductor":
-                self._v.get("expr", S)
 
     def _check_nonzero(self, e):
         v = self._value(e)
@@ -286,6 +334,35 @@ class System:
         if not isinstance(v, (int,)) and v.is_zero():
             return
         self._b[i] = self._b.get(i, self.ctx.constant(0)) + v
+
+    # ---------------------------------------------------------------- well-posedness
+    def regular(self, points: int = 3, seed: int = 20240611, max_terms: float = 2e6) -> bool:
+        """Whether ``det A`` is not the zero polynomial, decided exactly.
+
+        ``A`` is evaluated at random rational points and its determinant taken in exact
+        rational arithmetic (python-flint ``fmpq_mat``): a nonzero value proves regularity.
+        Where every point gives 0, the symbolic determinant (:func:`derive.kernel.det`)
+        decides, when its estimated size allows; beyond that the matrix counts as singular
+        (a nonzero polynomial vanishing at all the points is vanishingly unlikely,
+        Schwartz-Zippel lemma).
+        """
+        import random
+        from .kernel import det, estimate_det_terms
+        if self.n == 0:
+            return True
+        rnd = random.Random(seed)
+        nv = self.ctx.nvars()
+        for _ in range(points):
+            pt = [flint.fmpq(rnd.randint(1, 10 ** 9), rnd.randint(1, 10 ** 6)) for _ in range(nv)]
+            m = flint.fmpq_mat(self.n, self.n)
+            for i, row in enumerate(self.A.rows):
+                for j, p in row.items():
+                    m[i, j] = p(*pt)
+            if m.det() != 0:
+                return True
+        if estimate_det_terms(self.A) <= max_terms:
+            return not det(self.A).is_zero()
+        return False
 
     # ---------------------------------------------------------------- right-hand sides
     def source_vars(self):

@@ -66,12 +66,10 @@ class Form:
         return out - names
 
     def value(self, point: dict):
-        """Exact value at ``point`` (Symbol -> Rational); None if a symbol is missing."""
-        env = dict(point)
-        for q, e in self.defs:
-            env[q] = e.xreplace(env)
-        v = self.final.xreplace(env)
-        return v if not v.free_symbols else None
+        """Exact value at ``point`` (Symbol -> Rational); None if a symbol of the result is
+        missing (or the value is not finite). Symbols that cancel do not count."""
+        from .sequence import exact_value
+        return exact_value(self.defs, self.final, point)
 
 
 def form_of(q) -> Form:

@@ -152,19 +152,63 @@ def quantity_sequence(ctx, req, name):
 
 
 def evaluate(seq, final, nominal):
-    """Value of a sequence's result at nominal values (None if a symbol has none)."""
-    env = dict(nominal)
-    for s, e in seq:
-        v = e.xreplace(env)
+    """Value of a sequence's result at nominal values (None if a symbol *of the result* has
+    none): exact rational arithmetic (:func:`exact_value`), a float only at the end."""
+    v = exact_value(seq, final, nominal)
+    return None if v is None else edge.exact_number(v)
+
+
+CANCEL_LIMIT = 4000     # operations: larger leftovers in missing symbols are not cancelled
+
+
+def exact_value(seq, final, point: dict):
+    """The exact value (a sympy number) of ``final`` after the named entries ``seq``, at
+    ``point`` (Symbol -> exact number); None where the result depends on a symbol that
+    ``point`` does not give.
+
+    Only the entries the result needs are evaluated. A symbol without a value that still
+    occurs may cancel (an element in series with a current source, a part across an ideal
+    voltage source): two exact evaluations with random rational values for the missing
+    symbols prove a dependence when they differ; otherwise the leftover is cancelled
+    exactly and decides.
+    """
+    needed = set(final.free_symbols)
+    for s, e in reversed(seq):
+        if s in needed:
+            needed |= e.free_symbols
+    names = {s for s, _ in seq}
+    used = [(s, e) for s, e in seq if s in needed]
+    missing = {x for x in needed - names if x not in point}
+
+    def run(env):
+        for s, e in used:
+            env[s] = e.xreplace(env)
+        return final.xreplace(env)
+
+    if missing:
+        rnd = random.Random(11)
+        probes = []
+        for _ in range(2):
+            env = dict(point)
+            env.update({x: sympy.Rational(rnd.randint(10 ** 5, 10 ** 6), rnd.randint(1, 997))
+                        for x in missing})
+            probes.append(run(env))
+        if all(p.is_Rational for p in probes) and probes[0] != probes[1]:
+            return None          # proven: the result depends on a missing symbol
+    v = run(dict(point))
+    if v.free_symbols:
+        if sympy.count_ops(v) > CANCEL_LIMIT:
+            return None
+        v = sympy.cancel(sympy.together(v))
         if v.free_symbols:
             return None
-        env[s] = sympy.Float(complex(sympy.N(v, 20)).real, 20) if sympy.im(sympy.N(v)) == 0 \
-            else sympy.N(v, 20)
-    v = final.xreplace(env)
-    if v.free_symbols:
+    if not v.is_number or _bad(v):
         return None
-    c = complex(sympy.N(v, 17))
-    return c.real if c.imag == 0 else c
+    return v
+
+
+def _bad(v) -> bool:
+    return v.has(sympy.zoo, sympy.nan, sympy.oo, -sympy.oo)
 
 
 def inline(seq, final):

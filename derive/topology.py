@@ -87,15 +87,11 @@ def check_topology(elements, ground, ground_loc=None) -> list:
                                  "(their voltages cannot all hold)", e.loc.line, e.loc.col)
             adj.setdefault(a, []).append((b, e.name))
             adj.setdefault(b, []).append((a, e.name))
-    # connectivity without current sources
-    dsu = _DSU()
-    for n in nodes:
-        dsu.find(n)
-    for e in elements:
-        if e.kind == "isource":
-            continue
-        for a, b in _edges(e, ground):
-            dsu.union(a, b)
+    # connectivity without independent current sources: a group of nodes joined to the rest
+    # only through them (or through nothing) has no fixed voltage. Dependent current sources
+    # do join (a gyrator's nodes are joined only through two of them); whether they fix the
+    # voltages is decided by the rank of the stamped system (see :func:`dependent_cuts`).
+    dsu = _connectivity(elements, ground, nodes, dependent=True)
     groups: dict = {}
     for n in nodes:
         groups.setdefault(dsu.find(n), []).append(n)
@@ -116,3 +112,38 @@ def check_topology(elements, ground, ground_loc=None) -> list:
         err.floating = set(members)
         raise err
     return nodes
+
+
+def _connectivity(elements, ground, nodes, dependent: bool) -> _DSU:
+    """Nodes joined by elements other than current sources (and, with ``dependent``, by
+    dependent current sources too)."""
+    dsu = _DSU()
+    for n in nodes:
+        dsu.find(n)
+    for e in elements:
+        if e.kind == "isource" and not (dependent and e.controls):
+            continue
+        for a, b in _edges(e, ground):
+            dsu.union(a, b)
+    return dsu
+
+
+def dependent_cuts(elements, ground, nodes) -> list:
+    """Groups of nodes joined to the rest of the circuit only through current sources of
+    which some are dependent: [(members, dependent sources at the cut)]. Such a circuit
+    may be well posed (a gyrator) or singular; the caller decides by the rank of the
+    stamped nodal system."""
+    plain = _connectivity(elements, ground, nodes, dependent=False)
+    groups: dict = {}
+    for n in nodes:
+        groups.setdefault(plain.find(n), []).append(n)
+    groot = plain.find(ground)
+    out = []
+    for root, members in groups.items():
+        if root == groot:
+            continue
+        cut = [e for e in elements if e.kind == "isource" and e.controls
+               and (plain.find(e.nodes[0]) == root) != (plain.find(e.nodes[1]) == root)]
+        if cut:
+            out.append((members, cut))
+    return out
