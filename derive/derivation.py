@@ -74,36 +74,13 @@ def _check(ctx, req, eq: Equation, ref, nodal_form=None):
     from .derivation_nodal import _random_solve_check
     nodal = _nodal(ctx)
     if len(nodal_form) == 4:        # isc: open-circuit voltage over resistance seen
-        eq.verified = _random_ratio_agrees(nodal, nodal_form, eq.rhs, defs=eq.defs)
+        f1, b1, f2, b2 = nodal_form
+        eq.mark("system", *_random_solve_check(nodal, f1, b1, eq.rhs, defs=eq.defs,
+                                               over=(f2, b2)))
         return eq
     form, b = nodal_form
     eq.mark("system", *_random_solve_check(nodal, form, b, eq.rhs, defs=eq.defs))
     return eq
-
-
-def _random_ratio_agrees(nodal, forms4, expected, points=2, defs=None) -> bool:
-    """``expected`` against (form solved with b)/(form2 solved with b2) of the nodal
-    equations, exactly at random rational points (isc = vth/rth where rth is not 0)."""
-    import random
-    from .derivation_nodal import _exact_solve
-    f1, b1, f2, b2 = forms4
-    rnd = random.Random(13)
-    defs = defs or {}
-    syms = nodal.A.free_symbols | b1.free_symbols | b2.free_symbols | expected.free_symbols
-    for v in defs.values():
-        syms |= v.free_symbols
-    syms -= set(nodal.unknowns) | set(defs)
-    for _ in range(points):
-        pt = {x: sympy.Rational(rnd.randint(1, 999), rnd.randint(1, 99)) for x in syms}
-        A = nodal.A.xreplace(pt)
-        v1 = f1.xreplace(dict(zip(nodal.unknowns, _exact_solve(A, b1.xreplace(pt))))).xreplace(pt)
-        v2 = f2.xreplace(dict(zip(nodal.unknowns, _exact_solve(A, b2.xreplace(pt))))).xreplace(pt)
-        env = dict(pt)
-        for k, v in defs.items():
-            env[k] = v.xreplace(env)
-        if v2 == 0 or sympy.simplify(v1 / v2 - expected.xreplace(env)) != 0:
-            return False
-    return True
 
 
 def _inline(e, defs):

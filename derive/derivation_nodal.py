@@ -364,16 +364,20 @@ def _exact_solve(A, b) -> list:
     return [sympy.Rational(int(x[i, 0].p), int(x[i, 0].q)) for i in range(A.shape[0])]
 
 
-def _random_solve_check(nodal, form, b, expected, points=2, defs=None) -> tuple:
+def _random_solve_check(nodal, form, b, expected, points=2, defs=None, over=None) -> tuple:
     """(agrees, points used): exact solves of the nodal equations at random rational points
     (python-flint ``fmpq_mat``) against ``expected`` (which may use the named intermediates
-    ``defs``). Points where the system is singular or ``expected`` undefined are redrawn (a
-    bounded number of times); with no usable point the check fails."""
+    ``defs``). With ``over = (form2, b2)`` the solved value is the ratio of ``form`` solved
+    with ``b`` to ``form2`` solved with ``b2`` (isc = vth/rth). Points where the system is
+    singular, the ratio's denominator zero or ``expected`` undefined are redrawn (a bounded
+    number of times); with no usable point the check fails."""
     try:
         A = nodal.A
         n = A.shape[0]
-        sys_prog = Program(list(A) + list(b))
-        form_prog = Program([form])
+        rhs = [b] if over is None else [b, over[1]]
+        sys_prog = Program(list(A) + [x for r in rhs for x in r])
+        forms = [form] if over is None else [form, over[0]]
+        form_prog = Program(forms)
         exp_prog = Program([expected], defs or {})
         syms = (sys_prog.symbols() | form_prog.symbols() | exp_prog.symbols()) - \
             set(nodal.unknowns)
@@ -381,10 +385,15 @@ def _random_solve_check(nodal, form, b, expected, points=2, defs=None) -> tuple:
         for pt in _draws(syms, 11, points):
             try:
                 vals = sys_prog.run(pt)
-                x = flint.fmpq_mat(n, n, vals[:n * n]).solve(flint.fmpq_mat(n, 1, vals[n * n:]))
-                env = dict(pt)
-                env.update({u: x[i, 0] for i, u in enumerate(nodal.unknowns)})
-                got = form_prog.run(env)[0]
+                M = flint.fmpq_mat(n, n, vals[:n * n])
+                got = []
+                for k in range(len(rhs)):
+                    col = vals[n * n + k * n: n * n + (k + 1) * n]
+                    x = M.solve(flint.fmpq_mat(n, 1, col))
+                    env = dict(pt)
+                    env.update({u: x[i, 0] for i, u in enumerate(nodal.unknowns)})
+                    got.append(form_prog.run(env)[k])
+                got = got[0] if over is None else got[0] / got[1]
                 want = exp_prog.run(pt)[0]
             except ZeroDivisionError:
                 continue
