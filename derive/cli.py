@@ -5,20 +5,53 @@
     derive check  SHEET
 
 Exit status: 0 success, 1 a ``check`` claim does not hold (``derive check``), 2 an invalid
-sheet (``FILE:LINE:COL: error: ...`` and the line on standard error), 3 an internal error.
+sheet (``FILE:LINE:COL: error: ...`` and the line on standard error), a usage error, a missing
+package or ``--timeout`` reached, 3 an internal error.
+
+The work never writes an output file or standard output itself: it runs inside
+:func:`derive.output.capture`, and :func:`main` writes what it produced once it has finished.
+With ``--timeout`` the work runs in a forked worker process (in its own process group, so
+that TeX and compilers it starts go with it); the worker sends its outputs back through a
+pipe, and the parent kills the whole group when the deadline passes -- which works also
+while the worker is inside compiled code (python-flint holds the interpreter lock for a
+whole polynomial gcd, so a signal handler in the same process would only run after it).
 """
 from __future__ import annotations
 
 import argparse
+import math
 import os
+import pickle
+import select
+import shutil
 import signal
 import sys
+import tempfile
+import time
+from dataclasses import dataclass, field
 from typing import Optional
 
 from .errors import DeriveError, SheetError
 
 MAX_SHEET_BYTES = 1_000_000
 FORMATS = ("md", "tex", "pdf", "json")
+
+# Import names whose distribution (what ``pip install`` takes) is spelt differently.
+DISTRIBUTIONS = {"flint": "python-flint", "yaml": "pyyaml", "PIL": "pillow",
+                 "sklearn": "scikit-learn", "mpl_toolkits": "matplotlib",
+                 "markdown_it": "markdown-it-py", "mdit_py_plugins": "mdit-py-plugins"}
+
+
+def _seconds(text: str) -> float:
+    """``--timeout``: a positive, finite number of seconds."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number of seconds: {text!r}") from None
+    if not math.isfinite(value) or value <= 0:
+        raise argparse.ArgumentTypeError(f"must be a positive, finite number of seconds, "
+                                         f"not {text!r}")
+    return value
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -33,8 +66,9 @@ def _parser() -> argparse.ArgumentParser:
                              "take their nominal values")
         sp.add_argument("--max-terms", type=float, default=2e6, metavar="N",
                         help="refuse to expand a determinant estimated above N terms")
-        sp.add_argument("--timeout", type=float, default=None, metavar="SECONDS",
-                        help="give up after this many seconds")
+        sp.add_argument("--timeout", type=_seconds, default=None, metavar="SECONDS",
+                        help="give up after this many seconds (every phase, including TeX "
+                             "and compiled algebra); nothing is written then")
         sp.add_argument("--samples", type=int, default=100_000, metavar="N",
                         help="Monte Carlo samples of tolerance analyses (default 100000)")
         sp.add_argument("--seed", type=int, default=1, help="Monte Carlo seed (default 1)")
@@ -63,9 +97,18 @@ class _Timeout(Exception):
     pass
 
 
-def _read(path: str) -> tuple[str, str]:
+class _Stopped(Exception):
+    """The supervising process got SIGTERM/SIGHUP."""
+
+    def __init__(self, signum):
+        super().__init__(signum)
+        self.signum = signum
+
+
+def _read(path: str, stdin_data: Optional[bytes] = None) -> tuple[str, str]:
     if path == "-":
-        data = sys.stdin.buffer.read(MAX_SHEET_BYTES + 1)
+        data = stdin_data if stdin_data is not None else \
+            sys.stdin.buffer.read(MAX_SHEET_BYTES + 1)
         name = "<stdin>"
     else:
         name = path
@@ -100,11 +143,11 @@ def _format_of(args) -> str:
     return "md"
 
 
-def run(argv: Optional[list] = None) -> int:
-    args = _parser().parse_args(argv)
+def _run(args, stdin_data: Optional[bytes] = None) -> int:
+    """The work of one command; outputs go through :mod:`derive.output`."""
     from . import derive_text
-    from .output import write_atomic
-    text, name = _read(args.sheet)
+    from .output import figures_captured, write_atomic, write_stdout
+    text, name = _read(args.sheet, stdin_data)
     symbolic = [s.strip() for s in args.symbolic.split(",") if s.strip()] \
         if args.symbolic is not None else None
     if args.samples < 1:
@@ -115,15 +158,16 @@ def run(argv: Optional[list] = None) -> int:
     if args.command == "record":
         fmt = _format_of(args)
         from .exporters import render
-        data = render(rec, fmt, args)
+        if fmt == "md" and args.output:
+            with figures_captured():      # the figures are drawn beside the record
+                data = render(rec, fmt, args)
+        else:
+            data = render(rec, fmt, args)
         if args.output:
             if not isinstance(data, (bytes, bytearray)) or fmt != "pdf":
                 write_atomic(args.output, data)
         else:
-            if isinstance(data, (bytes, bytearray)):
-                sys.stdout.buffer.write(data)
-            else:
-                sys.stdout.write(data)
+            write_stdout(data)
         return 0
     if args.command == "code":
         from .exporters import render_code
@@ -132,57 +176,270 @@ def run(argv: Optional[list] = None) -> int:
             for path, content in files.items():
                 write_atomic(path, content)
         else:
-            sys.stdout.write(next(iter(files.values())))
+            write_stdout(next(iter(files.values())))
         return 0
     if args.command == "check":
         from .exporters import check_lines
         lines, ok = check_lines(rec)
-        sys.stdout.write("".join(line + "\n" for line in lines))
+        write_stdout("".join(line + "\n" for line in lines))
         return 0 if ok else 1
     return 2
 
 
+def run(argv: Optional[list] = None) -> int:
+    """Parse ``argv`` and do the work, writing outputs directly; errors propagate."""
+    return _run(_parser().parse_args(argv))
+
+
+# ------------------------------------------------------------------ results and messages
+@dataclass
+class _Result:
+    """What a finished piece of work hands to :func:`_deliver`."""
+    code: int
+    stdout: list = field(default_factory=list)
+    stderr: str = ""
+    files: dict = field(default_factory=dict)
+
+
+def _missing_package(exc: BaseException) -> Optional[str]:
+    """An install hint if ``exc`` (or an exception it was raised while handling) is a failed
+    import of a third-party module."""
+    seen = set()
+    e = exc
+    while e is not None and id(e) not in seen:
+        seen.add(id(e))
+        if isinstance(e, ImportError) and e.name:
+            top = e.name.split(".")[0]
+            if top != "derive" and top not in getattr(sys, "stdlib_module_names", ()):
+                dist = DISTRIBUTIONS.get(top, top)
+                if isinstance(e, ModuleNotFoundError):
+                    return (f"derive needs the package {dist} (module {top!r} is not "
+                            f"installed): pip install {dist}")
+                return (f"derive cannot use the installed {dist} ({e}): "
+                        f"pip install --upgrade {dist}")
+        e = e.__cause__ or e.__context__
+    return None
+
+
+def _timeout_message(timeout: float) -> str:
+    return (f"derive: error: gave up after {timeout:g} s (--timeout); keep fewer symbols "
+            "symbolic with --symbolic or a 'numeric' line\n")
+
+
+def _execute(args, stdin_data: Optional[bytes] = None, in_worker: bool = False) -> _Result:
+    """Do the work of ``args`` with its outputs captured; every error becomes a message."""
+    from .output import capture
+    with capture() as cap:
+        try:
+            code, err = _run(args, stdin_data), ""
+        except SheetError as e:
+            code, err = 2, e.format() + "\n"
+        except DeriveError as e:
+            hint = _missing_package(e)
+            code, err = 2, f"derive: error: {hint or e}\n"
+        except RecursionError:
+            code, err = 2, "derive: error: the sheet nests too deeply to be handled\n"
+        except MemoryError:
+            code, err = 2, ("derive: error: ran out of memory; keep fewer symbols symbolic "
+                            "with --symbolic or a 'numeric' line\n")
+        except Exception as e:   # a bug or a broken install: say so plainly
+            hint = _missing_package(e)
+            if hint:
+                code, err = 2, f"derive: error: {hint}\n"
+            elif os.environ.get("DERIVE_DEBUG"):
+                if not in_worker:
+                    raise
+                import traceback
+                code, err = 3, "".join(traceback.format_exception(e))
+            else:
+                code, err = 3, (f"derive: internal error: {type(e).__name__}: {e} (please "
+                                "report it; set DERIVE_DEBUG=1 for details)\n")
+    return _Result(code, cap.stdout, err, cap.files)
+
+
+def _deliver(res: _Result) -> int:
+    """Write the files and standard output of a finished piece of work; its exit status."""
+    from .output import commit
+    try:
+        commit(res)
+    except OSError as e:
+        sys.stderr.write(res.stderr + f"derive: error: cannot write {e.filename}: "
+                                      f"{e.strerror or e}\n")
+        return 2
+    try:
+        for chunk in res.stdout:
+            if isinstance(chunk, (bytes, bytearray)):
+                sys.stdout.flush()
+                sys.stdout.buffer.write(chunk)
+                sys.stdout.buffer.flush()
+            else:
+                sys.stdout.write(chunk)
+        sys.stdout.flush()
+    except BrokenPipeError:
+        try:   # nothing more can reach the reader; keep the interpreter's exit quiet
+            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        except (OSError, ValueError, AttributeError):
+            pass
+        return 0 if res.code == 0 else res.code
+    if res.stderr:
+        sys.stderr.write(res.stderr)
+    return res.code
+
+
+# ------------------------------------------------------------------ the deadline
+def _read_stdin_until(deadline: float) -> Optional[bytes]:
+    """Standard input (up to just over the size limit), read before the deadline; ``None``
+    where standard input is not a real file descriptor (the worker then reads it)."""
+    try:
+        fd = sys.stdin.fileno()
+    except (AttributeError, OSError, ValueError):
+        return None
+    buf = bytearray()
+    while len(buf) <= MAX_SHEET_BYTES:
+        left = deadline - time.monotonic()
+        if left <= 0:
+            raise _Timeout()
+        ready, _, _ = select.select([fd], [], [], left)
+        if not ready:
+            continue
+        chunk = os.read(fd, 1 << 16)
+        if not chunk:
+            break
+        buf += chunk
+    return bytes(buf)
+
+
+def _kill_group(pid: int) -> None:
+    try:
+        os.killpg(pid, signal.SIGKILL)
+    except OSError:
+        try:
+            os.kill(pid, signal.SIGKILL)
+        except OSError:
+            pass
+
+
+def _die_with_parent() -> None:
+    """Linux: the worker gets SIGKILL if the supervising process dies."""
+    try:
+        import ctypes
+        libc = ctypes.CDLL(None, use_errno=True)
+        libc.prctl(1, signal.SIGKILL, 0, 0, 0)      # PR_SET_PDEATHSIG
+    except Exception:
+        pass
+
+
+def _worker(args, stdin_data, r: int, w: int, parent: int, tmp: str) -> None:
+    """The forked worker: do the work, send the pickled :class:`_Result`, exit. Never
+    returns and never writes an output file or standard output."""
+    status = 0
+    try:
+        try:
+            os.setpgid(0, 0)
+        except OSError:
+            pass
+        os.close(r)
+        _die_with_parent()
+        if os.getppid() != parent:
+            os._exit(1)
+        null = os.open(os.devnull, os.O_RDWR)
+        os.dup2(null, 1)                 # stray prints of libraries go nowhere
+        tempfile.tempdir = tmp           # TeX's work folders: removed by the parent
+        os.environ["TMPDIR"] = tmp
+        try:
+            res = _execute(args, stdin_data, in_worker=True)
+        except BaseException as e:
+            res = _Result(3, [], f"derive: internal error: {type(e).__name__}: {e} (please "
+                                 "report it; set DERIVE_DEBUG=1 for details)\n")
+        payload = pickle.dumps(res, protocol=pickle.HIGHEST_PROTOCOL)
+        view = memoryview(payload)
+        while view:
+            view = view[os.write(w, view):]
+        os.close(w)
+    except BaseException:
+        status = 1
+    finally:
+        os._exit(status)
+
+
+def _supervised(args, timeout: float) -> _Result:
+    """Run the work in a forked worker; kill its process group when ``timeout`` passes."""
+    deadline = time.monotonic() + timeout
+    try:
+        stdin_data = _read_stdin_until(deadline) if args.sheet == "-" else None
+    except _Timeout:
+        return _Result(2, [], _timeout_message(timeout))
+    tmp = tempfile.mkdtemp(prefix="derive-work-")
+    r, w = os.pipe()
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            stream.flush()
+        except (OSError, ValueError):
+            pass
+    parent = os.getpid()
+    pid = os.fork()
+    if pid == 0:
+        _worker(args, stdin_data, r, w, parent, tmp)   # never returns
+    os.close(w)
+    try:
+        os.setpgid(pid, pid)
+    except OSError:
+        pass
+    previous = {}
+
+    def on_signal(signum, frame):
+        raise _Stopped(signum)
+
+    try:
+        for sig in (signal.SIGTERM, signal.SIGHUP):
+            previous[sig] = signal.signal(sig, on_signal)
+    except ValueError:           # not the main thread: no handlers, the group still dies
+        pass
+    chunks, finished = [], False
+    try:
+        while True:
+            left = deadline - time.monotonic()
+            if left <= 0:
+                break
+            ready, _, _ = select.select([r], [], [], left)
+            if ready:
+                chunk = os.read(r, 1 << 20)
+                if not chunk:
+                    finished = True
+                    break
+                chunks.append(chunk)
+    finally:
+        os.close(r)
+        _kill_group(pid)        # on time-out, and stragglers (TeX, gcc) of a finished run
+        _, status = os.waitpid(pid, 0)
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
+        shutil.rmtree(tmp, ignore_errors=True)
+    if not finished:
+        return _Result(2, [], _timeout_message(timeout))
+    try:
+        return pickle.loads(b"".join(chunks))
+    except Exception:
+        how = (f"was ended by signal {os.WTERMSIG(status)}" if os.WIFSIGNALED(status)
+               else f"exited with status {os.WEXITSTATUS(status)}")
+        return _Result(3, [], f"derive: internal error: the worker process {how} without an "
+                              "answer (out of memory?) (please report it)\n")
+
+
 def main(argv: Optional[list] = None) -> int:
-    timeout = None
     if argv is None:
         argv = sys.argv[1:]
-    if "--timeout" in argv:
-        try:
-            timeout = float(argv[argv.index("--timeout") + 1])
-        except (IndexError, ValueError):
-            timeout = None
-
-    def on_alarm(signum, frame):
-        raise _Timeout()
-
-    if timeout and hasattr(signal, "SIGALRM"):
-        signal.signal(signal.SIGALRM, on_alarm)
-        signal.setitimer(signal.ITIMER_REAL, timeout)
     try:
-        return run(argv)
-    except SheetError as e:
-        sys.stderr.write(e.format() + "\n")
-        return 2
-    except DeriveError as e:
-        sys.stderr.write(f"derive: error: {e}\n")
-        return 2
-    except _Timeout:
-        sys.stderr.write(f"derive: error: gave up after {timeout:g} s (--timeout); keep fewer "
-                         "symbols symbolic with --symbolic or a 'numeric' line\n")
-        return 2
-    except RecursionError:
-        sys.stderr.write("derive: error: the sheet nests too deeply to be handled\n")
-        return 2
+        args = _parser().parse_args(list(argv))
+    except SystemExit as e:          # usage error (message already printed) or --help
+        return e.code if isinstance(e.code, int) else (0 if e.code is None else 2)
+    try:
+        if args.timeout is not None and hasattr(os, "fork"):
+            res = _supervised(args, args.timeout)
+        else:
+            res = _execute(args)
+        return _deliver(res)
     except KeyboardInterrupt:
         return 130
-    except BrokenPipeError:
-        return 0
-    except Exception as e:   # a bug: say so plainly, no traceback unless asked for
-        if os.environ.get("DERIVE_DEBUG"):
-            raise
-        sys.stderr.write(f"derive: internal error: {type(e).__name__}: {e} (please report it; "
-                         "set DERIVE_DEBUG=1 for details)\n")
-        return 3
-    finally:
-        if timeout and hasattr(signal, "SIGALRM"):
-            signal.setitimer(signal.ITIMER_REAL, 0)
+    except _Stopped as e:
+        return 128 + e.signum
