@@ -36,6 +36,7 @@ class RequestResult:
     quantities: dict = field(default_factory=dict)
     steps: list = field(default_factory=list)
     extra: dict = field(default_factory=dict)
+    notes: list = field(default_factory=list)   # said with the result in every record (str)
 
 
 @dataclass
@@ -98,11 +99,16 @@ def _basic(ctx: Context, req) -> RequestResult:
 
 
 def analyse(circuit: Circuit, options: Options | None = None) -> list:
-    """Answer every request of ``circuit``; a list of :class:`RequestResult`."""
-    prepare = HANDLERS.get("replace")    # instances replaced by section models (sections.py)
-    if prepare is not None:
-        circuit = prepare(circuit, options or Options())
-    ctx = Context(circuit, options or Options())
+    """Answer every request of ``circuit``; a list of :class:`RequestResult`.
+
+    Instances named in ``replace`` statements are put as their section models first; every
+    result computed on such a substituted circuit is then marked so, here and only here
+    (:func:`derive.model_reuse.annotate`)."""
+    from . import model_reuse
+    options = options or Options()
+    circuit = model_reuse.substitute(circuit, options)
+    substituted = bool(getattr(circuit, "model_substitutions", None))
+    ctx = Context(circuit, options)
     results = []
     for req in circuit.requests:
         key = req.analysis or req.statement
@@ -112,7 +118,10 @@ def analyse(circuit: Circuit, options: Options | None = None) -> list:
             what = key if key in ("sensitivity", "tolerance", "solve", "check") else req.quantity
             raise NotAvailableYet(f"'{what}' requests are not available yet", req.loc.line,
                                   req.loc.col)
-        results.append(fn(ctx, req))
+        result = fn(ctx, req)
+        if substituted:
+            model_reuse.annotate(ctx, req, result, fn)
+        results.append(result)
     return results
 
 

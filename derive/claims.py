@@ -258,6 +258,7 @@ def check_lines(record):
             if r.extra.get("relative_error") is not None:
                 line += f" (relative error at nominal {r.extra['relative_error']:.3g})"
         lines.append(line)
+        lines += [f"  note: {n}" for n in r.notes]
     if not lines:
         lines.append("no check claims in the sheet")
     return lines, ok

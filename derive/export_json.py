@@ -47,6 +47,8 @@ def symbols_json(circuit) -> dict:
 
 def result_json(r) -> dict:
     d = {"request": r.request.text}
+    if r.notes:
+        d["notes"] = list(r.notes)
     if r.quantities:
         d["quantities"] = {n: quantity_json(q) for n, q in r.quantities.items()}
     for k, v in r.extra.items():

@@ -110,7 +110,8 @@ def document(record, figures_dir=None) -> Document:
         doc.append(text(c))
         doc.append(NoEscape("}}\n\n"))
     with doc.create(Section("Results", numbering=False)):
-        rows = [[text(r["request"]), NoEscape(f"${q['latex_name']}$"), si_value(q["value"])
+        rows = [[text(r["request"] + (" (see its note)" if r["notes"] else "")),
+                 NoEscape(f"${q['latex_name']}$"), si_value(q["value"])
                  if q["value"] else text("no value (symbolic)")]
                 for r in v["results"] for q in r["quantities"]]
         _table(doc, ["request", "quantity", "value"], rows)
@@ -134,6 +135,10 @@ def document(record, figures_dir=None) -> Document:
             doc.append(NoEscape(r"\end{itemize}"))
     for i, r in enumerate(v["results"]):
         with doc.create(Section(text(r["request"]), numbering=False)):
+            for n in r["notes"]:
+                doc.append(NoEscape(r"\noindent\textbf{Note.} "))
+                doc.append(text(n))
+                doc.append(NoEscape("\n\n"))
             doc.append(NoEscape(r"\begin{enumerate}"))
             for s in r["steps"]:
                 doc.append(NoEscape(r"\item "))

@@ -5,8 +5,12 @@ taken alone, between the sheet's ports P1 and P2; their voltage-amplifier model 
 rout; see :mod:`derive.sections`) is derived exactly and put in their place as three
 elements ``q1.rin`` (across P1), ``q1.E`` (a voltage source ``gain·across(P1)`` referred to
 P2's − node) and ``q1.rout`` (from the source to P2's + node). Every request is then answered
-on the substituted circuit; each result shows the substitution, and with ``compare`` the
-error against the full circuit at nominal values.
+on the substituted circuit. :func:`derive.analysis.analyse` applies :func:`annotate` to
+every result of a substituted circuit, whatever its request (``find``, ``check``, ``solve``,
+``find sensitivity``, ``find tolerance``, ``find model``, ...): a note on the result that it
+was computed on the model (shown in every record and by ``derive check``), the substitution
+as the first step, and with ``compare`` the error against the full circuit at nominal values
+(for ``check`` also the verdict on the full circuit).
 
 The model is exact only for a unilateral section that loads nothing outside P1 and P2; the
 comparison shows how far the approximation is from the full circuit.
@@ -115,16 +119,72 @@ def substitute(circuit, options):
     return c
 
 
-def _innermost(fn):
-    while hasattr(fn, "__wrapped__"):
-        fn = fn.__wrapped__
-    return fn
+def _model_words(s) -> str:
+    rep, e = s["rep"], s["exprs"]
+    parts = (["rin"] if e["rin"] is not None else []) + ["gain", "rout"]
+    return (f"{rep.instance} replaced by its section model from {rep.port} to {rep.port2} "
+            f"({', '.join(parts)})" + ("" if s["unilateral"] else
+                                       "; the section is not unilateral and the model "
+                                       "neglects its reverse transmission"))
 
 
-def _note(ctx, req, result, fn):
+def _error_entry(q_value, f_value):
+    if q_value is None or f_value is None:
+        return {"model": _f(q_value), "full": _f(f_value), "error": None, "relative": None}
+    d = complex(q_value) - complex(f_value)
+    return {"model": _f(q_value), "full": _f(f_value), "error": _f(d),
+            "relative": _f(d / complex(f_value)) if f_value != 0 else None}
+
+
+def _compare(ctx, req, result, fn):
+    """The model's error against the full circuit: every quantity of the result, and the
+    port quantity the request is about (the Q of ``check``/``solve``/``find sensitivity``/
+    ``find tolerance``), at nominal values; for ``check``, the verdict on the full circuit."""
+    from . import forms
+    full_ctx = analysis.Context(ctx.circuit.full_circuit, ctx.options)
+    err = {}
+    if req.quantity not in ("model", "twoport"):
+        full_q = {q.name: q for q in forms.port_quantities(full_ctx, req)}
+        for q in forms.port_quantities(ctx, req):
+            f = full_q.get(q.name)
+            err[q.name] = _error_entry(q.value, f.value if f else None)
+    full = None
+    # a section model or two-port has no port quantity above: its own results are compared;
+    # a check is answered on the full circuit too. (The root of ``solve`` at nominal values
+    # is the symbol's nominal value on either circuit: its Q above is what differs.)
+    if req.quantity in ("model", "twoport") or "holds" in result.extra:
+        full = fn(full_ctx, req)
+        for name, q in result.quantities.items():
+            if name not in err:
+                f = full.quantities.get(name)
+                err[name] = _error_entry(q.value, f.value if f else None)
+    return err, full
+
+
+def _error_words(err) -> str:
+    out = []
+    for name, v in err.items():
+        if v["model"] is None or v["full"] is None or v["error"] is None:
+            out.append(f"{name}: no error at nominal values (a symbol without a nominal "
+                       "value, or a function of s)")
+        elif v["relative"] is not None:
+            out.append(f"{name} {v['model']:.6g} with the model, {v['full']:.6g} on the full "
+                       f"circuit (relative error {v['relative']:.3g})")
+        else:
+            out.append(f"{name} {v['model']:.6g} with the model, {v['full']:.6g} on the full "
+                       f"circuit (error {v['error']:.3g})")
+    return "; ".join(out)
+
+
+def annotate(ctx, req, result, fn):
+    """Mark a result computed on a substituted circuit: a note (shown by every record and by
+    ``derive check``), the substitution as the first step and in ``extra["substitution"]``,
+    and with ``compare`` the model's error against the full circuit (``extra["model_error"]``,
+    and for ``check`` the verdict on the full circuit in ``extra["full_circuit_holds"]``).
+    Applied by :func:`derive.analysis.analyse` to every result of a substituted circuit."""
     from .printing import to_text
     subs = ctx.circuit.model_substitutions
-    for s in subs:
+    for s in reversed(subs):
         rep, e = s["rep"], s["exprs"]
         eqs = [Equation(sympy.Symbol(f"{rep.instance}_{k}"), v) for k, v in e.items()
                if v is not None]
@@ -139,28 +199,30 @@ def _note(ctx, req, result, fn):
         result.steps[0].verify()
     result.extra["substitution"] = [
         {"instance": s["rep"].instance, "from": s["rep"].port, "to": s["rep"].port2,
-         "unilateral": s["unilateral"],
+         "unilateral": s["unilateral"], "compare": s["rep"].compare,
          **{k: (to_text(v) if v is not None else None) for k, v in s["exprs"].items()}}
         for s in subs]
-    if any(s["rep"].compare for s in subs):
-        full = _innermost(fn)(analysis.Context(ctx.circuit.full_circuit, ctx.options), req)
-        err = {}
-        for name, q in result.quantities.items():
-            f = full.quantities.get(name)
-            if f is None or q.value is None or f.value is None:
-                err[name] = {"model": _f(q.value), "full": _f(f.value if f else None),
-                             "error": None, "relative": None}
-                continue
-            d = complex(q.value) - complex(f.value)
-            err[name] = {"model": _f(q.value), "full": _f(f.value), "error": _f(d),
-                         "relative": _f(d / complex(f.value)) if f.value != 0 else None}
-        result.extra["model_error"] = err
-        rows = [[n, str(v["model"]), str(v["full"]), str(v["relative"])] for n, v in err.items()]
-        result.steps.append(Step("Error of the section-model result against the full circuit "
-                                 "at nominal values.", kind="substitution",
-                                 table=[["quantity", "with model", "full circuit",
-                                         "relative error"]] + rows))
-        result.steps[-1].verify()
+    note = ("Computed on a substituted circuit, not on the full circuit: "
+            + "; ".join(_model_words(s) for s in subs) + ".")
+    if not any(s["rep"].compare for s in subs):
+        note += " The model's error is not shown (add 'compare' to the replace line)."
+        result.notes.append(note)
+        return result
+    err, full = _compare(ctx, req, result, fn)
+    result.extra["model_error"] = err
+    if err:
+        note += " Model error at nominal values: " + _error_words(err) + "."
+    if full is not None and "holds" in result.extra:
+        result.extra["full_circuit_holds"] = bool(full.extra.get("holds"))
+        note += (" On the full circuit the claim " +
+                 ("holds." if full.extra.get("holds") else "does not hold."))
+    result.notes.append(note)
+    rows = [[n, str(v["model"]), str(v["full"]), str(v["relative"])] for n, v in err.items()]
+    result.steps.append(Step("Error of the section-model result against the full circuit "
+                             "at nominal values.", kind="substitution",
+                             table=[["quantity", "with model", "full circuit",
+                                     "relative error"]] + rows))
+    result.steps[-1].verify()
     return result
 
 
@@ -169,22 +231,3 @@ def _f(v):
         return None
     v = complex(v)
     return v.real if v.imag == 0 else None
-
-
-def install():
-    """Wrap result handlers so that results on a substituted circuit say so."""
-    for q in ("thevenin", "norton", "vth", "rth", "isc", "rn", "resistance", "impedance",
-              "voltage", "gain", "current", "model", "twoport"):
-        fn = analysis.HANDLERS.get(q)
-        if fn is None or getattr(fn, "_reuse", False):
-            continue
-
-        def wrapped(ctx, req, _fn=fn):
-            out = _fn(ctx, req)
-            if getattr(ctx.circuit, "model_substitutions", None):
-                _note(ctx, req, out, _fn)
-            return out
-        wrapped._reuse = True
-        wrapped.__wrapped__ = fn
-        analysis.HANDLERS[q] = wrapped
-    analysis.HANDLERS["replace"] = substitute

@@ -182,7 +182,7 @@ def view(record) -> dict:
     results = []
     for r in record.results:
         figs = r.extra.get("figures") or []
-        results.append({"request": r.request.text,
+        results.append({"request": r.request.text, "notes": list(r.notes),
                         "quantities": [quantity_view(q) for q in r.quantities.values()],
                         "steps": [step_view(s) for s in r.steps],
                         "figures": list(figs)})

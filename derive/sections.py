@@ -409,11 +409,3 @@ try:
 except ModuleNotFoundError as _e:       # frequency module not present
     if _e.name != f"{__package__}.frequency":
         raise
-
-
-try:
-    import importlib as _il
-    _il.import_module(f"{__package__}.model_reuse").install()
-except ModuleNotFoundError as _e:       # model reuse not present
-    if _e.name != f"{__package__}.model_reuse":
-        raise
