@@ -18,11 +18,11 @@ the source vector). Methods:
 (a) ``naive``  -- KCL equations in R handed to ``sympy.solve``, then ``sympy.cancel`` of the
     port voltage (what a user would write). Guarded by a timeout (default 20 s).
 (b) ``dense``  -- a plain one-pass dense Bareiss on fmpz_mpoly (below, the naive baseline).
-(c) ``kernel`` -- :func:`derive.kernel.det`.
+(c) ``kernel`` -- :func:`derive.solver.determinant.det`.
 
 Every (case, method) runs in its own subprocess (``--worker``), so a hang is killed by the
 timeout and peak memory (``ru_maxrss`` of that process, minus the RSS after imports) is
-per run. Cases whose determinant is estimated (:func:`derive.kernel.estimate_det_terms`)
+per run. Cases whose determinant is estimated (:func:`derive.solver.determinant.estimate_det_terms`)
 above ``TERM_LIMIT`` terms are not expanded (grid5: ~5.6e8 terms, several tens of GB).
 
 Targets: naive/kernel >= 1000x at ladder6; kernel expands ladder16's determinant in < 1 s.
@@ -83,8 +83,8 @@ def circuit(case: str):
 
 
 def nodal(case: str):
-    """Nodal conductance matrix, source vector and port index as derive.kernel objects."""
-    from derive import kernel as K
+    """Nodal conductance matrix, source vector and port index as derive.solver.determinant objects."""
+    from derive.solver import determinant as K
 
     c = circuit(case)
     kind, sname, snode = c["source"]
@@ -199,7 +199,7 @@ def run_naive(case):
 def worker(method, case):
     import flint  # noqa: F401  (import cost outside the measured RSS)
     import sympy  # noqa: F401
-    from derive import kernel as K
+    from derive.solver import determinant as K
 
     base = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
     if method == "naive":
@@ -248,7 +248,7 @@ def total(r):
 
 
 def main_bench(args):
-    from derive import kernel as K
+    from derive.solver import determinant as K
 
     ladders = list(range(2, 17)) if not args.quick else [2, 4, 6, 8, 12, 16]
     grids = [2, 3, 4, 5]

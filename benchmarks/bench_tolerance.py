@@ -5,7 +5,7 @@ same run.
     python benchmarks/bench_tolerance.py [--quick]
 
 1. Monte Carlo of 10^6 samples of a 20-symbol expression (a chain of parallel pairs and
-   divider ratios). derive: :func:`derive.tolerance.monte_carlo` (numpy on a lambdified
+   divider ratios). derive: :func:`derive.analyses.tolerance.monte_carlo` (numpy on a lambdified
    form). Naive baseline: a Python loop substituting each sample into the sympy expression
    (``expr.subs(...)`` then ``float``) for a few thousand samples, extrapolated linearly to
    10^6 (after a 10-sample warm-up call that pays one-off imports). Target: under 2 s.
@@ -31,9 +31,9 @@ import numpy as np          # noqa: E402
 import sympy                # noqa: E402
 
 import derive               # noqa: E402
-from derive import edge     # noqa: E402
-from derive.sensitivity import Form   # noqa: E402
-from derive.tolerance import monte_carlo   # noqa: E402
+from derive.solver import convert as edge     # noqa: E402
+from derive.analyses.sensitivity import Form   # noqa: E402
+from derive.analyses.tolerance import monte_carlo   # noqa: E402
 
 
 def expression_20():

@@ -1,4 +1,4 @@
-"""Cost of the random-point equality check (derive.steps.compare) against a naive baseline
+"""Cost of the random-point equality check (derive.derivation.steps.compare) against a naive baseline
 measured in the same run: the former check, sympy ``xreplace`` at the same random rational
 points followed by ``simplify`` of the difference. Also prints the time of the exact solve
 whose result is being checked (the whole ``derive_text``, steps and their checks included).
@@ -23,7 +23,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 import sympy  # noqa: E402
 
 import derive  # noqa: E402
-from derive.steps import compare  # noqa: E402
+from derive.derivation.steps import compare  # noqa: E402
 
 
 def ladder(n: int) -> str:

@@ -16,7 +16,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Optional
 
-from .errors import DeriveError, NotAvailableYet, SheetError, TooLarge
+from derive.errors import DeriveError, NotAvailableYet, SheetError, TooLarge
 
 __version__ = "0.1.0"
 
@@ -28,27 +28,27 @@ class Record:
     results: list
 
     def to_json(self) -> str:
-        from .export_json import record_json
+        from derive.export.json_record import record_json
         return record_json(self.circuit, self.results)
 
     def to_dict(self) -> dict:
-        from .export_json import record_dict
+        from derive.export.json_record import record_dict
         return record_dict(self.circuit, self.results)
 
     def to_markdown(self, template_dir: Optional[str] = None) -> str:
-        from .export_markdown import record_markdown
+        from derive.export.markdown import record_markdown
         return record_markdown(self, template_dir)
 
 
 def parse(text: str, filename: str = "<sheet>"):
-    """Parse sheet text into the sheet model (:class:`derive.model.Sheet`)."""
-    from .parser import parse_sheet
+    """Parse sheet text into the sheet model (:class:`derive.sheet.model.Sheet`)."""
+    from derive.sheet.parser import parse_sheet
     return parse_sheet(text, filename)
 
 
 def circuit_of(text: str, filename: str = "<sheet>"):
     """Parse and build the validated, flattened circuit."""
-    from .circuit import build_circuit
+    from derive.circuit.build import build_circuit
     try:
         return build_circuit(parse(text, filename))
     except SheetError as e:
@@ -59,7 +59,7 @@ def derive_text(text: str, filename: str = "<sheet>", symbolic: Optional[list] =
                 max_terms: float = 2e6, **options) -> Record:
     """Derive every request of a sheet given as text.
 
-    ``options`` are further :class:`derive.analysis.Options` fields (``mc_samples``,
+    ``options`` are further :class:`derive.analyses.run.Options` fields (``mc_samples``,
     ``mc_seed``, ``mc_distribution`` for tolerance analysis).
 
     >>> rec = derive_text('''voltage source V between a and gnd = 10 V
@@ -73,7 +73,7 @@ def derive_text(text: str, filename: str = "<sheet>", symbolic: Optional[list] =
     >>> q["rth"].expr, q["rth"].value
     (R1*R2/(R1 + R2), 800.0)
     """
-    from .analysis import Options, analyse
+    from derive.analyses.run import Options, analyse
     c = circuit_of(text, filename)
     try:
         results = analyse(c, Options(symbolic=symbolic, max_terms=max_terms, **options))

@@ -9,7 +9,7 @@ sheet (``FILE:LINE:COL: error: ...`` and the line on standard error), a usage er
 package or ``--timeout`` reached, 3 an internal error.
 
 The work never writes an output file or standard output itself: it runs inside
-:func:`derive.output.capture`, and :func:`main` writes what it produced once it has finished.
+:func:`derive.export.files.capture`, and :func:`main` writes what it produced once it has finished.
 With ``--timeout`` the work runs in a forked worker process (in its own process group, so
 that TeX and compilers it starts go with it); the worker sends its outputs back through a
 pipe, and the parent kills the whole group when the deadline passes -- which works also
@@ -31,7 +31,7 @@ import time
 from dataclasses import dataclass, field
 from typing import Optional
 
-from .errors import DeriveError, SheetError
+from derive.errors import DeriveError, SheetError
 
 MAX_SHEET_BYTES = 1_000_000
 FORMATS = ("md", "tex", "pdf", "json")
@@ -144,9 +144,9 @@ def _format_of(args) -> str:
 
 
 def _run(args, stdin_data: Optional[bytes] = None) -> int:
-    """The work of one command; outputs go through :mod:`derive.output`."""
-    from . import derive_text
-    from .output import figures_captured, write_atomic, write_stdout
+    """The work of one command; outputs go through :mod:`derive.export.files`."""
+    from derive import derive_text
+    from derive.export.files import figures_captured, write_atomic, write_stdout
     text, name = _read(args.sheet, stdin_data)
     symbolic = [s.strip() for s in args.symbolic.split(",") if s.strip()] \
         if args.symbolic is not None else None
@@ -157,7 +157,7 @@ def _run(args, stdin_data: Optional[bytes] = None) -> int:
                       mc_distribution=args.distribution)
     if args.command == "record":
         fmt = _format_of(args)
-        from .exporters import render
+        from derive.export.formats import render
         if fmt == "md" and args.output:
             with figures_captured():      # the figures are drawn beside the record
                 data = render(rec, fmt, args)
@@ -170,7 +170,7 @@ def _run(args, stdin_data: Optional[bytes] = None) -> int:
             write_stdout(data)
         return 0
     if args.command == "code":
-        from .exporters import render_code
+        from derive.export.formats import render_code
         files = render_code(rec, args.lang, args)
         if args.output:
             for path, content in files.items():
@@ -179,7 +179,7 @@ def _run(args, stdin_data: Optional[bytes] = None) -> int:
             write_stdout(next(iter(files.values())))
         return 0
     if args.command == "check":
-        from .exporters import check_lines
+        from derive.export.formats import check_lines
         lines, ok = check_lines(rec)
         write_stdout("".join(line + "\n" for line in lines))
         return 0 if ok else 1
@@ -228,7 +228,7 @@ def _timeout_message(timeout: float) -> str:
 
 def _execute(args, stdin_data: Optional[bytes] = None, in_worker: bool = False) -> _Result:
     """Do the work of ``args`` with its outputs captured; every error becomes a message."""
-    from .output import capture
+    from derive.export.files import capture
     with capture() as cap:
         try:
             code, err = _run(args, stdin_data), ""
@@ -259,7 +259,7 @@ def _execute(args, stdin_data: Optional[bytes] = None, in_worker: bool = False) 
 
 def _deliver(res: _Result) -> int:
     """Write the files and standard output of a finished piece of work; its exit status."""
-    from .output import commit
+    from derive.export.files import commit
     try:
         commit(res)
     except OSError as e:

@@ -19,7 +19,7 @@ def closed(q) -> sympy.Expr:
     """A quantity's exact closed form, inlining a sequence if that is all there is."""
     if q.expr is not None:
         return q.expr
-    from derive.sequence import inline
+    from derive.forms.elimination import inline
     return inline(q.sequence, q.in_sequence)
 
 

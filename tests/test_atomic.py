@@ -1,7 +1,7 @@
 """Whole-file writes and oversized input.
 
 An output is written to a temporary file beside its target and renamed into place
-(``derive.output.write_atomic``): a failing run leaves neither the output nor a temporary
+(``derive.export.files.write_atomic``): a failing run leaves neither the output nor a temporary
 file, and a failing write leaves an existing output untouched. Sheets over the size limit
 are refused before anything is parsed."""
 from __future__ import annotations
@@ -13,7 +13,7 @@ import pytest
 
 from derive import cli
 from derive.cli import main
-from derive.output import write_atomic
+from derive.export.files import write_atomic
 
 GOOD = ("voltage source V between a and gnd = 5 V\nresistor R1 between a and b = 1k\n"
         "resistor R2 between b and gnd = 1k\nport p between b and gnd\nfind thevenin at p\n")

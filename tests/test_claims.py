@@ -6,7 +6,7 @@ import pytest
 
 import derive
 from derive import cli
-from derive.claims import check_lines
+from derive.analyses.claims import check_lines
 
 NETWORK = """title "Claim checks"
 voltage source V between top and gnd = 5 V
@@ -108,7 +108,7 @@ def test_cli_exit_status(tmp_path, capsys):
 
 def test_sequence_only_quantity_uses_exact_random_points(monkeypatch):
     """A quantity known only as named intermediates: exact rational evaluation, said so."""
-    from derive import forms
+    from derive.forms import select as forms
     real = forms.port_quantities
 
     def sequence_only(ctx, req):
@@ -119,7 +119,7 @@ def test_sequence_only_quantity_uses_exact_random_points(monkeypatch):
         return out
 
     monkeypatch.setattr(forms, "port_quantities", sequence_only)
-    import derive.analysis as analysis
+    import derive.analyses.run as analysis
     c = derive.circuit_of(NETWORK + "check rth at out equals 1/(1/Ra + 1/Rb + 1/Rc)\n"
                           "check rth at out equals Ra||Rb\n", "c.eqv")
     ctx = analysis.Context(c, analysis.Options(expand_limit=0))

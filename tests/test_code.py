@@ -10,8 +10,8 @@ import sympy
 
 import derive
 from derive import cli
-from derive.code_vectors import vectors
-from derive.export_code import collect, comment, ident, render
+from derive.export.code_vectors import vectors
+from derive.export.code import collect, comment, ident, render
 
 THERMISTOR = os.path.join(os.path.dirname(__file__), "..", "worked", "thermistor_stage.eqv")
 GCC = ["gcc", "-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic"]
@@ -149,7 +149,7 @@ def test_cli_prints_one_self_contained_c_file(tmp_path, capsys):
 
 
 def test_sequence_results_become_locals(tmp_path):
-    from derive.export_code import Formula, py_function
+    from derive.export.code import Formula, py_function
     a, b, rp = sympy.symbols("a b Rp")
     f = Formula("f", [(a, "ohm"), (b, "ohm")], [(rp, a * b / (a + b))], rp + a, "ohm",
                 "test", "origin")

@@ -130,7 +130,8 @@ def test_too_large_is_refused_with_cause_and_remedies(tmp_path, capsys):
 
 
 def test_solver_guard_raises_too_large():
-    from derive import analysis, forms
+    from derive.analyses import run as analysis
+    from derive.forms import select as forms
     c = derive.circuit_of(grid(3), "g.eqv")
     ctx = analysis.Context(c, analysis.Options(max_terms=10))
     with pytest.raises(TooLarge):

@@ -8,7 +8,7 @@ import scipy.signal
 import sympy
 
 import derive
-from derive import frequency
+from derive.analyses import frequency
 
 sym = sympy.Symbol
 s = sym("s")

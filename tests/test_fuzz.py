@@ -28,7 +28,7 @@ from hypothesis import strategies as st
 from hypothesis.extra.lark import from_lark
 
 from derive.cli import main
-from derive.grammar_loader import get_parser
+from derive.sheet.grammar import get_parser
 
 ROOT = Path(__file__).resolve().parent.parent
 WORKED = sorted((ROOT / "worked").glob("*.eqv"))

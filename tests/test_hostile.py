@@ -98,7 +98,7 @@ def test_markdown_holds_text_escaped(tmp_path, capsys, payload):
 @pytest.mark.parametrize("payload", PAYLOADS, ids=range(len(PAYLOADS)))
 def test_latex_source_has_no_live_command(tmp_path, capsys, payload):
     try:
-        from derive import export_latex    # noqa: F401
+        from derive.export import latex as export_latex    # noqa: F401
     except ImportError:
         pytest.skip("LaTeX records not available")
     tex = _record(tmp_path, sheet(payload), "tex", capsys)

@@ -76,7 +76,7 @@ def test_quadratic_roots_against_numpy():
 
 
 def test_substituting_back_is_checked_exactly():
-    from derive.inversion import _sub_back
+    from derive.analyses.inversion import _sub_back
     expr = Rt * Vref / (R1 + Rt)
     assert _sub_back(expr, Rt, R1 * vth / (Vref - vth), vth)
     assert not _sub_back(expr, Rt, R1 * vth / (Vref + vth), vth)

@@ -1,4 +1,4 @@
-"""Tests of the exact determinant kernel (derive.kernel)."""
+"""Tests of the exact determinant kernel (derive.solver.determinant)."""
 import doctest
 import random
 from fractions import Fraction
@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 import sympy
 
-from derive import kernel as K
+from derive.solver import determinant as K
 
 
 def random_poly_matrix(rng, n, names, density=0.5, zero_diag=False):

@@ -5,7 +5,7 @@ import subprocess
 import pytest
 
 import derive
-from derive import export_latex
+from derive.export import latex as export_latex
 from derive.cli import main
 
 HAVE_TEX = export_latex._tex_tool() is not None and shutil.which("pdftotext") is not None

@@ -18,7 +18,7 @@ import pytest
 
 import derive
 from derive import cli
-from derive.export_latex import latex_source
+from derive.export.latex import latex_source
 
 # A common-emitter stage with local feedback Rf (so the model is only approximate), driven
 # through Rs and loaded by RL.
@@ -113,7 +113,7 @@ def test_every_result_carries_the_note_in_json_and_markdown(record):
 
 
 def _md_escape(t):
-    from derive.export_markdown import md_text
+    from derive.export.markdown import md_text
     return md_text(t)
 
 

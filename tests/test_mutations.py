@@ -4,7 +4,7 @@ Each test feeds one wrong value into the derivation (monkeypatched inside the te
 asserts that the record does not call it verified: the step's ``verified`` is false, the
 wrong equation's ``verified_by`` claims no check, and the Markdown record does not print
 "(verified)" for that step. Derivations whose failed check is a bug in derive raise
-:class:`derive.derivation.StepFailed`, which carries the steps as they were verified; those
+:class:`derive.derivation.port_steps.StepFailed`, which carries the steps as they were verified; those
 are put into an otherwise unmutated record to render it.
 
 The circuits are invented; the mutations are "common practice, no source" (mutation
@@ -17,11 +17,16 @@ import pytest
 import sympy
 
 import derive
-import derive.analysis  # noqa: F401  (loads the handlers before their modules are imported)
-from derive import derivation, derivation_nodal, inversion, reduce, sensitivity, steps
-from derive.derivation import StepFailed
-from derive.export_markdown import md_text
-from derive.steps import Equation, Step, compare
+import derive.analyses.run  # noqa: F401  (loads the handlers before their modules are imported)
+from derive.derivation import port_steps as derivation
+from derive.derivation import nodal_steps as derivation_nodal
+from derive.analyses import inversion
+from derive.forms import series_parallel as reduce
+from derive.analyses import sensitivity
+from derive.derivation import steps
+from derive.derivation.port_steps import StepFailed
+from derive.export.markdown import md_text
+from derive.derivation.steps import Equation, Step, compare
 
 DIVIDER = """voltage source V between a and gnd = 10 V
 resistor R1 between a and b = 1 kohm
@@ -77,7 +82,8 @@ def _refused(rec, i, step):
     assert any(v["method"] is None for v in sj["verified_by"])
     assert "were not verified" in md or "was not verified" in md
     # LaTeX: "(verified)" exactly on the steps whose every equation verified
-    from derive import export_latex, record_view
+    from derive.export import latex as export_latex
+    from derive.export import view as record_view
     v = record_view.view(rec)
     marked = sum(1 for r in v["results"] for s in r["steps"] if s["verified"] and s["equations"])
     assert export_latex.latex_source(rec).count(r"\emph{(verified)}") == marked
@@ -284,7 +290,7 @@ def test_a_wrong_inverted_formula_is_caught(monkeypatch):
 
 # ------------------------------------------------------------------ claims
 def test_a_claim_undefined_at_every_point_does_not_hold():
-    from derive.claims import _agree_at_points
+    from derive.analyses.claims import _agree_at_points
     a, b, d = sympy.symbols("a b d")
     q = SimpleNamespace(sequence=[(d, a - b)], in_sequence=1 / (d - a + b))
     assert _agree_at_points(q, a, [a, b]) == (False, 0)

@@ -4,9 +4,8 @@ from fractions import Fraction
 import pytest
 
 from derive.errors import SheetError
-from derive.model import (BinOp, Block, Call, Element, Loc, Name, Neg, Num, OpAmp, Quantity,
-                          Use)
-from derive.parser import parse_sheet
+from derive.sheet.model import BinOp, Block, Call, Element, Loc, Name, Neg, Num, OpAmp, Quantity, Use
+from derive.sheet.parser import parse_sheet
 
 R = "resistor R0 between a and gnd\n"      # something to make a sheet non-empty
 
@@ -429,7 +428,7 @@ def test_any_text_gives_a_sheet_or_a_sheet_error(pieces):
 
 
 def test_replace_statement_into_the_sheet_model():
-    from derive.parser import parse_sheet
+    from derive.sheet.parser import parse_sheet
     sheet = parse_sheet("resistor R1 between a and gnd\n"
                         "replace q1 by model from pin to pmid compare\n"
                         "replace q2 by model from a to b\n")

@@ -9,7 +9,7 @@ request handlers, their derivation steps and the JSON record dict (``Record.to_d
 ``derive record --format json`` prints. Every closed form in the JSON (``expr``, and the
 ``sequence``/``in_sequence`` pair where given) is evaluated exactly (Gaussian rationals) at a
 random rational point with a random complex ``s``, and compared with a modified nodal solve
-written here, independently of ``derive.mna``: modified nodal analysis after C.-W. Ho,
+written here, independently of ``derive.solver.stamping``: modified nodal analysis after C.-W. Ho,
 A. E. Ruehli and P. A. Brennan, "The modified nodal approach to network analysis", IEEE
 Trans. Circuits and Systems 22 (1975) 504-509, solved with ``numpy.linalg.solve``
 (reference library: numpy). Values at nominal are compared for circuits without

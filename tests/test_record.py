@@ -8,7 +8,7 @@ from markdown_it import MarkdownIt
 from mdit_py_plugins.dollarmath import dollarmath_plugin
 
 import derive
-from derive.steps import equal
+from derive.derivation.steps import equal
 
 LADDER = """title "Ladder"
 voltage source Vs between a and gnd = 10 V
@@ -68,7 +68,7 @@ def test_bridge_shows_nodal_equations_and_cramer():
 
 
 def test_failing_equation_is_not_verified():
-    from derive.steps import Equation, Step
+    from derive.derivation.steps import Equation, Step
     a, b = sympy.symbols("a b")
     st = Step("wrong", [Equation(sympy.Symbol("x"), a * b / (a + b), check=a + b)])
     assert st.verify() is False

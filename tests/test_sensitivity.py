@@ -8,9 +8,9 @@ import pytest
 import sympy
 
 import derive
-from derive import analysis
+from derive.analyses import run as analysis
 from derive.errors import SheetError
-from derive.sensitivity import Form, derivative
+from derive.analyses.sensitivity import Form, derivative
 from helpers import run, same
 
 DIVIDER = """
@@ -46,7 +46,7 @@ def test_divider_exact_normalized_sensitivities():
     V, R1, R2 = sympy.symbols("V R1 R2")
     rec = run(DIVIDER)
     res = rec.results[0]
-    a = derive.sensitivity.analysed(analysis.Context(rec.circuit, analysis.Options()),
+    a = derive.analyses.sensitivity.analysed(analysis.Context(rec.circuit, analysis.Options()),
                                     res.request)[0]
     by = {str(s.symbol): s for s in a.sens}
     assert same(by["R1"].normalized, -R1 / (R1 + R2))
@@ -70,7 +70,7 @@ def test_derivatives_match_central_differences():
     res = rec.results[0]
     q = res.request
     ctx = analysis.Context(rec.circuit, analysis.Options())
-    a = derive.sensitivity.analysed(ctx, q)[0]
+    a = derive.analyses.sensitivity.analysed(ctx, q)[0]
     nom = ctx.nominal
     for s in a.sens:
         h = nom[s.symbol] * sympy.Rational(1, 10 ** 6)
@@ -96,7 +96,7 @@ def test_homogeneity_invariants():
     assert vth["Vs"]["value"] == pytest.approx(1.0, rel=1e-15)
     # and exactly, in closed form
     ctx = analysis.Context(rec.circuit, analysis.Options())
-    a = derive.sensitivity.analysed(ctx, rec.results[1].request)[0]
+    a = derive.analyses.sensitivity.analysed(ctx, rec.results[1].request)[0]
     total = sum(s.normalized for s in a.sens if str(s.symbol) in Rs)
     assert sympy.cancel(sympy.together(total - 1)) == 0
 
@@ -165,7 +165,7 @@ def test_model_request_is_refused():
 
 def test_agree_rejects_a_wrong_identity():
     R1, R2 = sympy.symbols("R1 R2")
-    from derive.sensitivity import agree, tidy
+    from derive.analyses.sensitivity import agree, tidy
     assert agree(-R1 / (R1 + R2), -R1 * R2 / (R1 * R2 + R2 ** 2))
     assert not agree(-R1 / (R1 + R2), -R2 / (R1 + R2))
     # tidy cancels exactly: (R1^2 - R2^2)/(R1 + R2) = R1 - R2

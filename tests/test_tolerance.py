@@ -10,8 +10,8 @@ import pytest
 import sympy
 
 from derive.errors import SheetError
-from derive.sensitivity import Form
-from derive.tolerance import derivative_sign, extremes, interval, monte_carlo
+from derive.analyses.sensitivity import Form
+from derive.analyses.tolerance import derivative_sign, extremes, interval, monte_carlo
 from helpers import run
 
 BRIDGE = """

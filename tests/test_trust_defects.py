@@ -194,7 +194,7 @@ find thevenin at P
 
 def test_value_is_exact_not_float_accumulated():
     # value of a sequence: exact rationals, so 1/3 + 1/3 + 1/3 type sums come out exact
-    from derive.sequence import exact_value
+    from derive.forms.elimination import exact_value
     a, b, q1 = sympy.symbols("a b q1")
     v = exact_value([(q1, a / 3 + b / 3)], q1 * 3 - a, {a: sympy.Rational(1, 7),
                                                           b: sympy.Rational(2, 7)})
@@ -418,7 +418,7 @@ def test_singular_circuits_keep_located_errors(text, line, what, tmp_path):
 def test_regular_is_decided_exactly():
     # the rank check proves regularity by an exact nonzero determinant at a rational point
     c = derive.circuit_of(GYRATOR.format(load="capacitor"))
-    from derive.mna import System
+    from derive.solver.stamping import System
     assert System(c).regular()
     with pytest.raises(SheetError):
         derive.circuit_of("voltage source V between b and gnd\nresistor R between b and gnd\n"

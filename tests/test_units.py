@@ -5,9 +5,8 @@ from fractions import Fraction
 import pytest
 from hypothesis import given, strategies as st
 
-from derive import units
-from derive.units import (PREFIXES, UnitError, format_eng, parse_number, parse_quantity,
-                          split_unit)
+from derive.sheet import units
+from derive.sheet.units import PREFIXES, UnitError, format_eng, parse_number, parse_quantity, split_unit
 
 
 def test_doctests():

@@ -9,9 +9,9 @@ from markdown_it import MarkdownIt
 from mdit_py_plugins.dollarmath import dollarmath_plugin
 
 import derive
-from derive import export_latex
-from derive.export_markdown import record_markdown
-from derive.record_view import view
+from derive.export import latex as export_latex
+from derive.export.markdown import record_markdown
+from derive.export.view import view
 
 WORKED = Path(__file__).resolve().parent.parent / "worked"
 SHEETS = sorted(WORKED.glob("*.eqv"))

@@ -1,0 +1,265 @@
+"""``check Q at P equals EXPR``: a hand-derived claim verified against the derived quantity.
+
+The verdict comes from exact algebra: the difference ``claim - Q`` is cancelled as a
+rational function over the rationals (Q is the exact ratio of the nodal solution where it
+was expanded). Where only a sequence of named intermediates exists, both sides are
+evaluated exactly (rational arithmetic) at random rational points, and the verdict says so.
+A claim that does not hold gets a counterexample point (nominal values where given), its
+relative error at nominal values, and a diagnosis: a dimension error naming the offending
+term, a constant factor or a sign, or a single symbol whose limit (0 or infinity) makes the
+claim agree with Q. :func:`check_lines` backs ``derive check``.
+"""
+from __future__ import annotations
+
+import random
+
+import sympy
+from derive.sheet.expressions import as_expr
+
+from derive.analyses import run as analysis
+from derive.circuit import dimensions
+from derive.circuit.build import S, key_of
+from derive.sheet.expressions import to_sympy
+from derive.analyses.inversion import quantity_of
+from derive.export.printing import to_text
+from derive.analyses.inversion import _derived_equation
+from derive.derivation.steps import Equation, Step
+
+POINTS = 12
+
+
+def claim_expr(ctx, req) -> sympy.Expr:
+    """The claim as sympy, built node by node from the sheet's expression tree."""
+    e = to_sympy(req.claim, lambda n: S if n.name == "s" else sympy.Symbol(key_of(n.name)))
+    return e.xreplace(ctx.numeric_subs())
+
+
+def _rational_limit(e, x, at_infinity: bool):
+    """The limit of a rational function of ``x`` at 0 or infinity: an expression, or
+    ``sympy.oo`` when it diverges; None when ``e`` is not rational in ``x``.
+
+    >>> x, a = sympy.symbols('x a')
+    >>> _rational_limit(a*x/(a + x), x, True), _rational_limit(a*x/(a + x), x, False)
+    (a, 0)
+    """
+    try:
+        n, d = sympy.fraction(sympy.cancel(sympy.together(e)))
+        pn, pd = sympy.Poly(n, x), sympy.Poly(d, x)
+    except sympy.PolynomialError:
+        return None
+    if pn.is_zero:
+        return sympy.Integer(0)
+    if at_infinity:
+        kn, kd = pn.degree(), pd.degree()
+        cn, cd = pn.LC(), pd.LC()
+    else:
+        kn, kd = min(m[0] for m in pn.monoms()), min(m[0] for m in pd.monoms())
+        cn, cd = pn.coeff_monomial(x**kn), pd.coeff_monomial(x**kd)
+    if (kn > kd) == at_infinity and kn != kd:
+        return sympy.oo
+    if kn != kd:
+        return sympy.Integer(0)
+    return sympy.factor(as_expr(cn) / as_expr(cd))
+
+
+def _degenerate(v) -> bool:
+    return v is None or v == sympy.oo or v == 0
+
+
+def diagnose(q_expr, claim, name: str) -> str:
+    """What an engineer can use: a constant factor, a sign, or single-symbol limits.
+
+    >>> a, b, c = sympy.symbols('Ra Rb Rc')
+    >>> diagnose(a*b*c/(a*b + b*c + a*c), a*b/(a + b), 'rth')
+    'agrees with rth when Rc → ∞ (the claim leaves out Rc)'
+    """
+    r = sympy.cancel(sympy.together(claim / q_expr))
+    if r.is_number:
+        if r == -1:
+            return f"differs in sign: the claim is -{name}"
+        return f"differs by a factor {to_text(r)}: the claim is {to_text(r)}·{name}"
+    agree, relative = [], []
+    syms = sorted(q_expr.free_symbols | claim.free_symbols, key=lambda s: s.name)
+    for x in syms:
+        for at_inf, label in ((False, "0"), (True, "∞")):
+            lq = _rational_limit(q_expr, x, at_inf)
+            lc = _rational_limit(claim, x, at_inf)
+            if lq is None or lc is None:
+                continue
+            if not _degenerate(lq) and lc != sympy.oo:
+                if sympy.cancel(sympy.together(lc - lq)) == 0:
+                    missing = " (the claim leaves out " + x.name + ")" \
+                        if x not in claim.free_symbols else ""
+                    agree.append(f"{x.name} → {label}{missing}")
+            elif _rational_limit(r, x, at_inf) == 1:
+                relative.append(f"{x.name} → {label}")
+    if agree:
+        return f"agrees with {name} when " + " or when ".join(agree)
+    if relative:
+        return (f"agrees with {name} only approximately: the relative error vanishes when "
+                + " or when ".join(relative) + f" (claim/{name} = "
+                f"{to_text(sympy.factor(r))})")
+    return (f"no single symbol sent to 0 or ∞ makes it agree, and claim/{name} = "
+            f"{to_text(sympy.factor(r))} is not constant")
+
+
+def _point(ctx, syms, rnd, use_nominal: bool) -> dict:
+    nom = ctx.nominal
+    pt = {}
+    for x in syms:
+        if use_nominal and x in nom and x != S:
+            pt[x] = nom[x]
+        else:
+            pt[x] = sympy.Rational(rnd.randint(1, 10**6), rnd.randint(1, 10**3))
+    return pt
+
+
+def _eval_seq(q, pt):
+    env = dict(pt)
+    for s, e in q.sequence:
+        env[s] = e.xreplace(env)
+    return q.in_sequence.xreplace(env)
+
+
+def _agree_at_points(q, claim, syms):
+    """(agrees, points used): the quantity's sequence and the claim in exact rational
+    arithmetic (python-flint) at ``POINTS`` random rational points; undefined points are
+    redrawn a bounded number of times, and with no usable point the claim is not held."""
+    from derive.derivation.steps import ATTEMPTS, NotRational, Program, random_point
+    rnd = random.Random(5)
+    try:
+        prog = Program([q.in_sequence, claim], dict(q.sequence))
+    except NotRational:
+        return False, 0
+    used = 0
+    for _ in range(ATTEMPTS * POINTS):
+        try:
+            vq, vc = prog.run(random_point(rnd, prog.symbols() | set(syms)))
+        except ZeroDivisionError:
+            continue
+        if vq != vc:
+            return False, used + 1
+        used += 1
+        if used == POINTS:
+            break
+    return used > 0, used
+
+
+def _value(v):
+    try:
+        return float(v)
+    except (TypeError, ValueError):
+        return None
+
+
+def dimension_verdict(ctx, req, q_unit, q_expr):
+    """(error text or None, note): dimensional analysis of the claim against Q."""
+    dims = dimensions.symbol_dims(ctx.circuit)
+    want = dimensions.OF_UNIT.get(q_unit)
+    if want is None:
+        return None, f"dimension not checked: the unit of the quantity ({q_unit}) is not known"
+    own = dimensions.of_sympy(q_expr, dims)
+    if own != want:
+        return None, ("dimension not checked: the derived quantity is not consistent with the "
+                      "symbols' dimensions (a symbol without a unit?)")
+    try:
+        got = dimensions.of_tree(req.claim, dims, key_of, want=want)
+    except dimensions.DimensionError as e:
+        return f"dimension error: {e.why}", "dimensions checked"
+    if got != want:
+        return (f"dimension error: the claim is {dimensions.show(got)}, {req.quantity} is "
+                f"{dimensions.show(want)}"), "dimensions checked"
+    return None, f"dimensions agree ({dimensions.show(want)})"
+
+
+@analysis.handler("check")
+def check_request(ctx, req) -> analysis.RequestResult:
+    name, q_expr, q = quantity_of(ctx, req)
+    claim = claim_expr(ctx, req)
+    qs = sympy.Symbol(name)
+    steps = [Step(f"The derived {name} ({q.form} form).", [_derived_equation(qs, q_expr, q)],
+                  kind="check"),
+             Step("The claim, built from the sheet's expression.",
+                  [Equation(sympy.Symbol(f"{name}_claimed"), claim, definition=True)],
+                  kind="check")]
+    syms = sorted(q_expr.free_symbols | claim.free_symbols, key=lambda s: s.name)
+    if q.expr is not None:
+        method = ("exact cancellation of claim - quantity over the rationals" +
+                  (" (the quantity is the exact ratio of the nodal solution)"
+                   if q.ratio is not None else ""))
+        raw = claim - q_expr
+        diff = sympy.factor(sympy.cancel(sympy.together(raw)))
+        holds = diff == 0
+        steps.append(Step(f"The difference claim - {name} cancels " +
+                          ("to zero exactly." if holds else "to a non-zero expression."),
+                          [Equation(sympy.Symbol("difference"), diff, check=raw)], kind="check"))
+    else:
+        method = (f"exact rational evaluation at {POINTS} random rational points (only a "
+                  "sequence of intermediates exists); a wrong claim agrees at all of them with "
+                  "negligible probability (Schwartz-Zippel lemma)")
+        holds, used = _agree_at_points(q, claim, syms)
+        steps.append(Step(f"Exact evaluation at {used} random rational points: the claim "
+                          + ("agrees at every one." if holds else
+                             "differs." if used else "could not be evaluated at any point "
+                             "(undefined everywhere tried)."), kind="check"))
+    dim_error, dim_note = dimension_verdict(ctx, req, q.unit, q_expr)
+    if dim_error:
+        holds = False
+    counter, rel, diagnosis = None, None, None
+    if not holds:
+        rnd = random.Random(11)
+        for attempt in range(20):
+            pt = _point(ctx, syms, rnd, attempt == 0)
+            try:
+                vq = _eval_seq(q, pt) if q.expr is None else q_expr.xreplace(pt)
+                vc = claim.xreplace(pt)
+            except ZeroDivisionError:
+                continue
+            if vq.is_number and vc.is_number and vq.is_finite and vc.is_finite \
+                    and sympy.simplify(vq - vc) != 0:
+                counter = {"point": {x.name: _value(v) for x, v in pt.items()},
+                           "at_nominal": attempt == 0 and all(x in ctx.nominal for x in syms),
+                           "quantity": _value(vq), "claim": _value(vc)}
+                break
+        nom = ctx.nominal
+        if S not in syms and all(x in nom for x in syms):
+            vq = q_expr.xreplace(nom) if q.expr is not None else _eval_seq(q, nom)
+            vc = claim.xreplace(nom)
+            if vq.is_number and vq != 0:
+                rel = _value((vc - vq) / vq)
+        diagnosis = dim_error or diagnose(q_expr, claim, name)
+        rows = [["symbol", "value"]] + [[k, f"{v:.6g}"] for k, v in
+                                        (counter or {"point": {}})["point"].items()]
+        if counter:
+            rows += [[name, f"{counter['quantity']:.6g}"], ["claim", f"{counter['claim']:.6g}"]]
+        steps.append(Step(f"The claim does not hold: {diagnosis}." +
+                          (f" Relative error at nominal values: {rel:.3g}." if rel is not None
+                           else ""), kind="check", table=rows if counter else None))
+    else:
+        steps.append(Step(f"The claim holds ({dim_note}).", kind="check"))
+    for st in steps:
+        st.verify()
+    out = analysis.RequestResult(req, steps=steps)
+    out.extra.update({"holds": bool(holds), "counterexample": counter, "diagnosis": diagnosis,
+                      "relative_error": rel, "method": method, "dimensions": dim_note})
+    return out
+
+
+def check_lines(record):
+    """(lines, ok): one ``PASS``/``FAIL`` line per ``check`` claim of a derived record."""
+    lines, ok = [], True
+    for r in record.results:
+        if r.request.statement != "check":
+            continue
+        holds = r.extra.get("holds", False)
+        ok = ok and holds
+        line = f"{'PASS' if holds else 'FAIL'} line {r.request.loc.line}: {r.request.text}"
+        if not holds:
+            line += f" — {r.extra.get('diagnosis')}"
+            if r.extra.get("relative_error") is not None:
+                line += f" (relative error at nominal {r.extra['relative_error']:.3g})"
+        lines.append(line)
+        lines += [f"  note: {n}" for n in r.notes]
+    if not lines:
+        lines.append("no check claims in the sheet")
+    return lines, ok

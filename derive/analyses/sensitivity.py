@@ -1,0 +1,444 @@
+"""Sensitivities of a result to its parts: dQ/dx and S = (x/Q)·dQ/dx, exact and at nominal.
+
+``find sensitivity of Q ...`` (Q any scalar quantity: vth, rth, isc, rn, resistance,
+impedance, voltage, current, gain; ``thevenin``/``norton`` give both members). For every
+symbol x with a nominal value the derivative and the normalized sensitivity are derived in
+closed form (simplified: the shorter of the factored and the plain form) and evaluated
+exactly at nominal values; entries are ranked by |S| at nominal.
+
+Where Q exists only as a sequence of named intermediates, the derivative is carried through
+the sequence in forward mode (chain rule, one new named entry ``dq3_dRa`` per intermediate
+that depends on x), so the derivative is itself a sequence.
+
+JSON (in ``RequestResult.extra``):
+
+- ``"sensitivities"``: ``{x: {"expr", "normalized", "value", "derivative_value", "rank"}}``
+  for the request's quantity; for ``thevenin``/``norton`` for the first member (vth, isc);
+  sequence-only derivatives carry ``"sequence"``/``"in_sequence"`` instead of ``"expr"``.
+- ``"sensitivity_of"``: the name of the quantity under ``"sensitivities"``.
+- ``"sensitivities_by_quantity"``: ``{name: {x: ...}}`` for every member (always present).
+- ``"quantity_sequences"``: ``{name: {"sequence", "in_sequence"}}`` for members that exist
+  only as a sequence (the derivative sequences use these names).
+- ``"figures"``: ranked bar charts (:class:`derive.derivation.steps.Figure`, not JSON).
+
+Sensitivities are always taken with every symbol symbolic (a ``numeric`` line or
+``--symbolic`` does not hide a part from its sensitivity).
+
+>>> import sympy
+>>> V, R1, R2 = sympy.symbols('V R1 R2')
+>>> f = Form([], V*R2/(R1 + R2))
+>>> d, _ = derivative(f, R1)
+>>> d.final
+-R2*V/(R1 + R2)**2
+>>> tidy(R1*d.final/f.final)
+-R1/(R1 + R2)
+"""
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+from typing import Optional
+
+import flint
+import sympy
+
+from derive.solver import convert as edge
+from derive.forms import select as forms
+from derive.analyses.run import Context, RequestResult, handler
+from derive.circuit.build import S as LAPLACE_S
+from derive.errors import SheetError
+from derive.export.printing import to_text
+from derive.derivation.steps import Equation, Step, compare
+
+TIDY_OPS = 600          # factor only expressions up to this many operations
+
+
+@dataclass
+class Form:
+    """A result as named intermediates ``defs`` [(Symbol, expr)] and a final expression."""
+    defs: list
+    final: sympy.Expr
+
+    def base_symbols(self) -> set:
+        names = {q for q, _ in self.defs}
+        out = set(self.final.free_symbols)
+        for _, e in self.defs:
+            out |= e.free_symbols
+        return out - names
+
+    def value(self, point: dict):
+        """Exact value at ``point`` (Symbol -> Rational); None if a symbol of the result is
+        missing (or the value is not finite). Symbols that cancel do not count."""
+        from derive.forms.elimination import exact_value
+        return exact_value(self.defs, self.final, point)
+
+
+def form_of(q) -> Form:
+    if q.expr is not None:
+        return Form([], q.expr)
+    return Form(list(q.sequence), q.in_sequence)
+
+
+def tidy(e: sympy.Expr) -> sympy.Expr:
+    """The shorter of ``e`` and its cancelled, factored form.
+
+    The rational function is rebuilt exactly as a ratio of python-flint polynomials
+    (:func:`rational`), cancelled and factored there; forms with roots are factored by sympy
+    when small, else left as they are.
+    """
+    if e.is_Atom:
+        return e
+    r = rational(e)
+    if r is not None:
+        f = _factored(*r)
+    elif sympy.count_ops(e) <= TIDY_OPS:
+        f = sympy.factor(sympy.cancel(sympy.together(e)))
+    else:
+        return e
+    return f if len(str(f)) <= len(str(e)) else e
+
+
+def rational(e: sympy.Expr):
+    """(num, den, symbols): ``e`` as a cancelled ratio of flint polynomials over its free
+    symbols, or None when ``e`` is not a rational function (roots, other functions)."""
+    syms = sorted(e.free_symbols, key=str)
+    if not syms:
+        return None
+    ctx = flint.fmpq_mpoly_ctx.get(tuple(f"v{i}" for i in range(len(syms))), "lex")
+    gens = dict(zip(syms, ctx.gens()))
+    memo: dict = {}
+
+    def conv(x):
+        if x in memo:
+            return memo[x]
+        if x.is_Symbol:
+            r = (gens[x], ctx.constant(1))
+        elif x.is_Rational:
+            r = (ctx.constant(flint.fmpq(int(x.p), int(x.q))), ctx.constant(1))
+        elif x.is_Add:
+            n, d = conv(x.args[0])
+            for a in x.args[1:]:
+                n2, d2 = conv(a)
+                g = d.gcd(d2)
+                n, d = n * (d2 / g) + n2 * (d / g), d * (d2 / g)
+            r = _cancel(n, d)
+        elif x.is_Mul:
+            n, d = ctx.constant(1), ctx.constant(1)
+            for a in x.args:
+                n2, d2 = conv(a)
+                n, d = n * n2, d * d2
+            r = _cancel(n, d)
+        elif x.is_Pow and x.exp.is_Integer:
+            n, d = conv(x.base)
+            k = int(x.exp)
+            r = (n ** k, d ** k) if k >= 0 else (d ** -k, n ** -k)
+        else:
+            raise _NotRational
+        if r[1].is_zero():
+            raise _NotRational
+        memo[x] = r
+        return r
+    try:
+        n, d = conv(e)
+    except _NotRational:
+        return None
+    return n, d, syms
+
+
+class _NotRational(Exception):
+    pass
+
+
+def _cancel(n, d):
+    g = n.gcd(d)
+    if not g.is_one() and not g.is_zero():
+        n, d = n / g, d / g
+    lc = d.leading_coefficient()
+    return n / lc, d / lc
+
+
+def _factored(n, d, syms) -> sympy.Expr:
+    n, d = _cancel(n, d)
+    return edge.factored_expr(n, syms) / edge.factored_expr(d, syms)
+
+
+def _rational_derivative(e, x):
+    """(dQ/dx, x/Q·dQ/dx) tidied, for a rational ``e``; None otherwise."""
+    r = rational(e)
+    if r is None or x not in r[2]:
+        return None
+    n, d, syms = r
+    i = syms.index(x)
+    num = n.derivative(i) * d - n * d.derivative(i)
+    dq = _factored(num, d * d, syms)
+    if n.is_zero():
+        return dq, None
+    xg = n.context().gens()[i]
+    return dq, _factored(xg * num, n * d, syms)
+
+
+def agree(a, b, points: int = 3, seed: int = 5) -> bool:
+    """Whether two expressions agree at ``points`` random rational points, evaluated exactly
+    (a wrong identity of rational functions passes only with negligible probability,
+    Schwartz-Zippel lemma). Undefined points are redrawn; with none usable, no agreement
+    (:func:`derive.derivation.steps.compare`)."""
+    return _agree_how(a, b, points, seed)[0]
+
+
+def _agree_how(a, b, points: int = 3, seed: int = 5):
+    """(agree, points used) by exact evaluation at random rational points."""
+    from derive.derivation.steps import ATTEMPTS, NotRational, Program, random_point
+    import random
+    try:
+        prog = Program([a, b])
+    except NotRational:
+        _m, ok, n = compare(a, b, None, points, seed)
+        return ok, n
+    syms = prog.symbols()
+    rnd = random.Random(seed)
+    used = 0
+    for _ in range(ATTEMPTS * points):
+        try:
+            va, vb = prog.run(random_point(rnd, syms))
+        except ZeroDivisionError:
+            continue
+        if va != vb:
+            return False, None
+        used += 1
+        if used == points or not syms:
+            break
+    return used > 0, (used if syms else None)
+
+
+def _fresh(base: str, taken: set) -> sympy.Symbol:
+    name, k = base, 1
+    while name in taken:
+        k += 1
+        name = f"{base}_{k}"
+    taken.add(name)
+    return sympy.Symbol(name)
+
+
+def derivative(form: Form, x: sympy.Symbol, taken: Optional[set] = None):
+    """(dQ/dx as a Form, the unsimplified derivative of a single expression or None).
+
+    Single expressions are differentiated and tidied; sequences in forward mode: every
+    intermediate that depends on x gets a derivative entry after the original entries.
+    """
+    if not form.defs:
+        raw = sympy.diff(form.final, x)
+        fast = _rational_derivative(form.final, x)
+        best = raw if fast is None or len(str(raw)) < len(str(fast[0])) else fast[0]
+        if fast is None and not raw.is_Atom:
+            best = tidy(raw)
+        return Form([], best), raw
+    taken = set(taken or ()) | {str(q) for q, _ in form.defs} | {str(s) for s in form.base_symbols()}
+    d: dict = {}
+    new = []
+
+    def chain(e):
+        out = sympy.diff(e, x)
+        for y in e.free_symbols:
+            if d.get(y, 0) != 0:
+                out += sympy.diff(e, y) * d[y]
+        return out
+
+    for q, e in form.defs:
+        de = chain(e)
+        if de == 0 or de.is_Atom:
+            d[q] = de
+            continue
+        de = tidy(de) if sympy.count_ops(de) < 60 else de
+        name = _fresh(f"d{q}_d{x}", taken)
+        new.append((name, de))
+        d[q] = name
+    final = chain(form.final)
+    return Form(list(form.defs) + new, tidy(final) if sympy.count_ops(final) < 60 else final), None
+
+
+@dataclass
+class Sens:
+    symbol: sympy.Symbol
+    deriv: Form
+    normalized: sympy.Expr          # over the base symbols, or over the sequence names
+    d_value: object = None          # exact dQ/dx at nominal (sympy number) or None
+    s_value: object = None          # exact S at nominal, or None (Q = 0 or no nominal)
+    raw: Optional[sympy.Expr] = None
+
+
+@dataclass
+class Analysed:
+    """One quantity with its sensitivities (shared with :mod:`derive.analyses.tolerance`)."""
+    q: object                       # analysis.QuantityResult
+    form: Form
+    nominal_value: object           # exact, or None
+    sens: list = field(default_factory=list)   # Sens, ranked by |S|
+
+
+def full_context(ctx: Context) -> Context:
+    """A context with every symbol symbolic (so no part is substituted away)."""
+    if not ctx.numeric_subs():
+        return ctx
+    if "sens_ctx" not in ctx.cache:
+        opts = dataclasses.replace(ctx.options, symbolic=list(ctx.circuit.symbols))
+        ctx.cache["sens_ctx"] = Context(ctx.circuit, opts)
+    return ctx.cache["sens_ctx"]
+
+
+def _check_scalar(req):
+    if req.quantity in ("model", "twoport"):
+        raise SheetError(f"sensitivity/tolerance of '{req.quantity}' is not offered: ask for one "
+                         "scalar quantity (vth, rth, isc, rn, resistance, impedance, voltage, "
+                         "current, gain)", req.loc.line, req.loc.col)
+
+
+def analysed(ctx: Context, req) -> list:
+    """Every member of the request's quantity with its ranked sensitivities (cached)."""
+    _check_scalar(req)
+    key = ("sensitivity", req.quantity, req.port, req.element, req.source)
+    if key in ctx.cache:
+        return ctx.cache[key]
+    fctx = full_context(ctx)
+    nominal = ctx.nominal
+    out = []
+    for q in forms.port_quantities(fctx, req):
+        form = form_of(q)
+        if LAPLACE_S in form.base_symbols():
+            raise SheetError(f"{q.name} depends on the Laplace variable s: sensitivities and "
+                             "tolerances of frequency-dependent results are not available yet "
+                             "(a later feature); ask for a resistive result or make the "
+                             "reactive parts numeric", req.loc.line, req.loc.col)
+        out.append(_analyse(ctx, q, form, nominal))
+    ctx.cache[key] = out
+    return out
+
+
+def _analyse(ctx, q, form: Form, nominal: dict) -> Analysed:
+    q0 = form.value(nominal)
+    a = Analysed(q, form, q0)
+    syms = [sympy.Symbol(k) for k, v in ctx.circuit.symbols.items() if v.nominal is not None]
+    base = form.base_symbols()
+    taken = set(ctx.circuit.symbols)
+    for x in syms:
+        if x not in base:
+            a.sens.append(Sens(x, Form([], sympy.Integer(0)), sympy.Integer(0),
+                               sympy.Integer(0), sympy.Integer(0)))
+            continue
+        d, raw = derivative(form, x, taken)
+        taken |= {str(n) for n, _ in d.defs}
+        if not form.defs:
+            fast = _rational_derivative(form.final, x)
+            norm = fast[1] if fast is not None and fast[1] is not None \
+                else tidy(x * d.final / form.final)
+        else:
+            norm = x * d.final / form.final
+        dv = d.value(nominal)
+        sv = None
+        if dv is not None and q0 is not None and q0 != 0:
+            sv = nominal[x] * dv / q0
+        a.sens.append(Sens(x, d, norm, dv, sv, raw))
+    a.sens.sort(key=lambda s: -abs(float(s.s_value)) if s.s_value is not None
+                else (-abs(float(s.d_value)) if s.d_value is not None else 0.0))
+    return a
+
+
+def _f(v):
+    if v is None:
+        return None
+    c = complex(v)
+    return c.real if c.imag == 0 else None
+
+
+def sens_json(a: Analysed) -> dict:
+    out = {}
+    nseq = len(a.form.defs)
+    for rank, s in enumerate(a.sens, 1):
+        e: dict = {}
+        if s.deriv.defs:
+            e["sequence"] = [[str(n), to_text(x)] for n, x in s.deriv.defs[nseq:]]
+            e["in_sequence"] = to_text(s.deriv.final)
+        else:
+            e["expr"] = to_text(s.deriv.final)
+        e["normalized"] = to_text(s.normalized)
+        e["value"] = _f(s.s_value)
+        e["derivative_value"] = _f(s.d_value)
+        e["rank"] = rank
+        out[str(s.symbol)] = e
+    return out
+
+
+def _steps(a: Analysed) -> list:
+    name = a.q.name
+    Q = sympy.Symbol(name)
+    steps = []
+    if a.form.defs:
+        txt = (f"{name} is available as a sequence of {len(a.form.defs)} named intermediates; "
+               "each derivative is carried through the sequence by the chain rule (forward "
+               "mode), so it is a sequence too.")
+    else:
+        txt = f"Differentiate {name} = {to_text(a.form.final)} with respect to each part."
+    eqs = []
+    for s in a.sens:
+        if s.raw is None:
+            continue
+        dsym = sympy.Symbol(f"d{name}/d{s.symbol}")
+        e1 = Equation(dsym, s.deriv.final, check=s.raw)
+        e2 = Equation(sympy.Symbol(f"S_{s.symbol}"), s.normalized,
+                      check=s.symbol * s.raw / a.form.final)
+        for e in (e1, e2):      # checked against sympy's own derivative of Q
+            try:
+                ok, n = _agree_how(e.rhs, e.check)
+            except Exception:
+                ok, n = False, None
+            e.mark("points" if n is not None else "exact", ok, n)
+        eqs += [e1, e2]
+    st = Step(txt, eqs, [str(s.symbol) for s in a.sens], kind="sensitivity")
+    st.verify()
+    steps.append(st)
+    rows = [["symbol", f"d{name}/dx at nominal", "S = (x/Q) dQ/dx", "rank"]]
+    for k, s in enumerate(a.sens, 1):
+        rows.append([str(s.symbol), _g(s.d_value), _g(s.s_value), str(k)])
+    top = a.sens[0] if a.sens else None
+    summ = (f"At nominal values {name} = {_g(a.nominal_value)}; the parts ranked by |S| "
+            f"(a 1 % rise of x changes {name} by about S %)."
+            + (f" Largest: {top.symbol} (S = {_g(top.s_value)})." if top is not None else ""))
+    if a.nominal_value == 0:
+        summ += f" {name} is 0 at nominal, so normalized sensitivities are undefined there."
+    st2 = Step(summ, [], [], kind="value", table=rows)
+    st2.verify()
+    steps.append(st2)
+    return steps
+
+
+def _g(v) -> str:
+    f = _f(v)
+    return "n/a" if f is None else f"{f:.6g}"
+
+
+def _slug(text: str) -> str:
+    return "".join(c if c.isalnum() else "-" for c in text).strip("-").lower()
+
+
+@handler("sensitivity")
+def sensitivity(ctx: Context, req) -> RequestResult:
+    res = RequestResult(req)
+    items = analysed(ctx, req)
+    by = {a.q.name: sens_json(a) for a in items}
+    res.extra["sensitivity_of"] = items[0].q.name
+    res.extra["sensitivities"] = by[items[0].q.name]
+    res.extra["sensitivities_by_quantity"] = by
+    seqs = {a.q.name: {"sequence": [[str(n), to_text(x)] for n, x in a.form.defs],
+                       "in_sequence": to_text(a.form.final)} for a in items if a.form.defs}
+    if seqs:        # the names that sequence-form derivatives refer to
+        res.extra["quantity_sequences"] = seqs
+    figs = []
+    for a in items:
+        res.steps.extend(_steps(a))
+        from derive.export import plots
+        figs.append(plots.sensitivity_figure(
+            f"{_slug(req.text)}-{a.q.name}",
+            f"Normalized sensitivities of {a.q.name} ({req.text}), ranked by magnitude.",
+            [str(s.symbol) for s in a.sens], [_f(s.s_value) for s in a.sens]))
+    res.extra["figures"] = figs
+    return res
+

@@ -1,0 +1,432 @@
+"""Spread of a result over its parts' tolerances: ``find tolerance of Q ...``.
+
+Each part x with a nominal value x0 and a relative tolerance t varies over
+``[x0 - |x0| t, x0 + |x0| t]`` (the *box*); parts without a tolerance stay at nominal.
+Four methods, each stated in the record:
+
+- linear worst case: ``Q0 ± Σ |dQ/dx| |x0| t`` (first order, from the sensitivities);
+- root-sum-square: ``Q0 ± sqrt(Σ (dQ/dx |x0| t)²)``;
+- extreme values: the true minimum and maximum over the box. Monotonicity in each part is
+  proven where possible: the sign of dQ/dx is bounded over the whole box by interval
+  arithmetic (outward-rounded floats) with bisection of the box; a part proven monotone is
+  set to the endpoint that favours the max (or the min). If every part is proven, the
+  extremes are the two corners so found, evaluated exactly. Otherwise the unproven parts
+  are searched: all (or many) of their corners and bounded local optimisation
+  (scipy L-BFGS-B) from several seeded starts; the method string says which was done.
+- Monte Carlo: numpy on a lambdified form of the derived Q (or of its sequence), seeded,
+  uniform within tolerance or normal with tolerance = 3σ (not truncated), reporting mean,
+  standard deviation and the 0.135 %/99.865 % quantiles.
+
+Options are read from ``ctx.options`` when present: ``mc_samples`` (100 000), ``mc_seed``
+(1), ``mc_distribution`` ('uniform' or 'normal'). For ``thevenin``/``norton`` the top-level
+keys describe the first member and ``"tolerance_by_quantity"`` holds every member.
+"""
+from __future__ import annotations
+
+import itertools
+import math
+
+import numpy as np
+import sympy
+
+from derive.analyses.run import Context, RequestResult, handler
+from derive.errors import SheetError
+from derive.analyses import sensitivity as _sens     # module object: the two modules import each other
+from derive.derivation.steps import Step
+
+QUANTILES = (0.00135, 0.99865)
+MAX_BOXES = 256
+
+
+# -- interval arithmetic with outward rounding -----------------------------------------------
+def _widen(lo, hi, ulps=2):
+    for _ in range(ulps):
+        lo, hi = math.nextafter(lo, -math.inf), math.nextafter(hi, math.inf)
+    return lo, hi
+
+
+def _mul(a, b):
+    ps = [a[0] * b[0], a[0] * b[1], a[1] * b[0], a[1] * b[1]]
+    return _widen(min(ps), max(ps))
+
+
+def _pow(b, n):
+    lo, hi = b
+    if isinstance(n, int):
+        if n == 0:
+            return (1.0, 1.0)
+        if n < 0:
+            if lo <= 0 <= hi:
+                return None
+            r = _pow(b, -n)
+            return _widen(1 / r[1], 1 / r[0])
+        cands = [lo ** n, hi ** n]
+        if n % 2 == 0 and lo < 0 < hi:
+            return _widen(0.0, max(cands))
+        return _widen(min(cands), max(cands))
+    if lo < 0:
+        return None
+    cands = [lo ** n, hi ** n]
+    return _widen(min(cands), max(cands))
+
+
+def interval(expr, env: dict, memo: dict | None = None):
+    """An enclosure (lo, hi) of ``expr`` over ``env`` (Symbol -> (lo, hi)); None when it
+    cannot be bounded (division by an interval containing 0, unsupported function).
+
+    >>> x = sympy.Symbol('x')
+    >>> lo, hi = interval(x**2 - 2*x, {x: (0.0, 1.0)})
+    >>> lo <= -1.0 and hi >= 0.0
+    True
+    """
+    memo = {} if memo is None else memo
+    if expr in memo:
+        return memo[expr]
+    if expr.is_Symbol:
+        r = env[expr]
+    elif expr.is_Number:
+        v = float(expr)
+        r = (v, v) if expr.is_Integer and abs(v) < 2 ** 52 else _widen(v, v)
+    elif expr.is_Add or expr.is_Mul:
+        parts = [interval(a, env, memo) for a in expr.args]
+        if any(p is None for p in parts):
+            r = None
+        elif expr.is_Add:
+            r = _widen(sum(p[0] for p in parts), sum(p[1] for p in parts), len(parts))
+        else:
+            r = parts[0]
+            for p in parts[1:]:
+                r = _mul(r, p)
+    elif expr.is_Pow:
+        b = interval(expr.base, env, memo)
+        e = expr.exp
+        n = int(e) if e.is_Integer else (float(e) if e.is_Rational else None)
+        r = None if b is None or n is None else _pow(b, n)
+    else:
+        r = None
+    if r is not None and not (math.isfinite(r[0]) and math.isfinite(r[1])):
+        r = None
+    memo[expr] = r
+    return r
+
+
+def form_interval(form: Form, env: dict):
+    env = dict(env)
+    memo: dict = {}
+    for q, e in form.defs:
+        env[q] = interval(e, env, memo)
+        if env[q] is None:
+            return None
+    return interval(form.final, env, memo)
+
+
+def derivative_sign(dform: Form, box: dict, split: list) -> int | None:
+    """+1 or -1 when dQ/dx keeps that strict sign on the whole box (proven), else None.
+    ``box``: Symbol -> (lo, hi) floats; ``split``: the symbols the box may be bisected in."""
+    todo = [dict(box)]
+    seen, sign = 0, 0
+    while todo:
+        b = todo.pop()
+        seen += 1
+        r = form_interval(dform, b)
+        if r is not None and (r[0] > 0 or r[1] < 0):
+            s = 1 if r[0] > 0 else -1
+            if sign and s != sign:
+                return None
+            sign = s
+            continue
+        if seen + len(todo) >= MAX_BOXES or not split:
+            return None
+        y = max(split, key=lambda v: (b[v][1] - b[v][0]) / (box[v][1] - box[v][0]))
+        lo, hi = b[y]
+        mid = 0.5 * (lo + hi)
+        todo.append({**b, y: (lo, mid)})
+        todo.append({**b, y: (mid, hi)})
+    return sign or None
+
+
+def proven_bounded(form: Form, box: dict, split: list) -> bool:
+    """Whether a finite enclosure of Q is found on every part of a bisection of the box."""
+    todo, seen = [dict(box)], 0
+    while todo:
+        b = todo.pop()
+        seen += 1
+        if form_interval(form, b) is not None:
+            continue
+        if seen + len(todo) >= MAX_BOXES or not split:
+            return False
+        y = max(split, key=lambda v: (b[v][1] - b[v][0]) / (box[v][1] - box[v][0]))
+        lo, hi = b[y]
+        todo += [{**b, y: (lo, 0.5 * (lo + hi))}, {**b, y: (0.5 * (lo + hi), hi)}]
+    return True
+
+
+# -- the box and the methods ----------------------------------------------------------------
+def box_of(ctx: Context, symbols) -> dict:
+    """Symbol -> (nominal, half-width) exact, for parts with a nonzero tolerance."""
+    out = {}
+    for x in symbols:
+        info = ctx.circuit.symbols.get(str(x))
+        if info is None or info.nominal is None or not info.tolerance:
+            continue
+        x0 = sympy.Rational(info.nominal.numerator, info.nominal.denominator)
+        t = sympy.Rational(info.tolerance.numerator, info.tolerance.denominator)
+        out[x] = (x0, abs(x0) * t)
+    return out
+
+
+def linear(a, box: dict):
+    """(worst-case half-width, RSS half-width, rows of contributions)."""
+    wc, ss, rows = 0.0, 0.0, []
+    for s in a.sens:
+        if s.symbol not in box or s.d_value is None:
+            continue
+        c = abs(float(s.d_value)) * float(box[s.symbol][1])
+        wc += c
+        ss += c * c
+        rows.append((s.symbol, c))
+    return wc, math.sqrt(ss), rows
+
+
+def _vec(form: Form):
+    """A numpy evaluator of ``form``: f(env of arrays or floats) -> array."""
+    steps = []
+    for q, e in list(form.defs) + [(None, form.final)]:
+        args = sorted(e.free_symbols, key=str)
+        steps.append((q, args, sympy.lambdify(args, e, "numpy")))
+
+    def f(env):
+        env = dict(env)
+        for q, args, fn in steps:
+            v = fn(*[env[a] for a in args])
+            if q is None:
+                return v
+            env[q] = v
+    return f
+
+
+def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
+    """(low, high, method, monotone) of ``form`` over ``box`` (see module doc).
+    ``dforms``: Symbol -> derivative Form; ``nominal``: Symbol -> Rational for all parts."""
+    fbox = {x: _widen(float(c - h), float(c + h)) for x, (c, h) in box.items()}
+    env = {x: _widen(float(v), float(v)) for x, v in nominal.items()}
+    env.update(fbox)
+    mono, hi_pt, lo_pt, free = {}, {}, {}, []
+    for x, (c, h) in box.items():
+        d = dforms.get(x)
+        if d is None or (not d.defs and d.final == 0):
+            mono[x] = "constant"
+            hi_pt[x] = lo_pt[x] = c
+            continue
+        sgn = derivative_sign(d, env, list(box))
+        if sgn is None:
+            mono[x] = "not proven"
+            free.append(x)
+            continue
+        mono[x] = "increasing" if sgn > 0 else "decreasing"
+        hi_pt[x], lo_pt[x] = (c + h, c - h) if sgn > 0 else (c - h, c + h)
+    base = dict(nominal)
+    if not free:
+        lo = _real(form.value({**base, **lo_pt}))
+        hi = _real(form.value({**base, **hi_pt}))
+        method = ("corners: monotone in every toleranced part (sign of dQ/dx proven constant "
+                  "over the box by interval arithmetic)" if box else "no toleranced parts")
+        return float(lo), float(hi), method, mono
+    affine = [x for x in free if _affine(dforms[x], x)]
+    if len(affine) == len(free) and len(free) <= 12:
+        vals = []
+        for signs in itertools.product((-1, 1), repeat=len(free)):
+            pt = {x: box[x][0] + sg * box[x][1] for x, sg in zip(free, signs)}
+            vals.append((_real(form.value({**base, **lo_pt, **pt})),
+                         _real(form.value({**base, **hi_pt, **pt}))))
+        for x in free:
+            mono[x] = "affine"
+        method = ("corners: monotone (proven by interval arithmetic on dQ/dx) or affine "
+                  f"(dQ/dx does not depend on the part itself: {', '.join(map(str, free))}) in "
+                  f"every toleranced part, so the extremes are corners; {len(vals)} corners "
+                  "evaluated exactly")
+        return (float(min(v[0] for v in vals)), float(max(v[1] for v in vals)), method, mono)
+    f = _vec(form)
+    fl = {x: float(v) for x, v in base.items()}
+    best = {}
+    for sense, fixed in ((1, lo_pt), (-1, hi_pt)):
+        env0 = {x: np.float64(v) for x, v in {**fl, **fixed}.items()}
+
+        def obj(u, env0=env0, sense=sense):
+            e = dict(env0)
+            for x, ui in zip(free, u):
+                e[x] = np.float64(float(box[x][0]) + ui * float(box[x][1]))
+            with np.errstate(all="ignore"):
+                v = float(f(e))
+            return sense * v if math.isfinite(v) else 1e300
+        rng = np.random.default_rng(seed)
+        k = len(free)
+        corners = list(itertools.product((-1.0, 1.0), repeat=k)) if k <= 10 else \
+            [tuple(rng.choice((-1.0, 1.0), k)) for _ in range(1024)]
+        vals = [obj(np.array(cn)) for cn in corners]
+        starts = [np.zeros(k)] + [rng.uniform(-1, 1, k) for _ in range(8)]
+        starts.append(np.array(corners[int(np.argmin(vals))]))
+        from scipy.optimize import minimize
+        for st in starts:
+            r = minimize(obj, st, method="L-BFGS-B", bounds=[(-1.0, 1.0)] * k)
+            vals.append(float(r.fun))
+        best[sense] = sense * min(vals)
+    bounded = proven_bounded(form, env, list(box))
+    method = (f"corners and interior search: monotonicity not proven for "
+              f"{', '.join(map(str, free))} ({len(corners)} corners and {len(starts)} bounded "
+              "local searches, scipy L-BFGS-B, per limit)"
+              + (f"; the other parts proven monotone and set at their corners"
+                 if len(free) < len(box) else "")
+              + ("" if bounded else "; WARNING: boundedness of Q on the box is not proven (a "
+                 "denominator may vanish inside it), so Q may be unbounded there and these "
+                 "limits are only the extremes found"))
+    return best[1], best[-1], method, mono
+
+
+class Unbounded(ArithmeticError):
+    """Q is not a finite real number somewhere on the box."""
+
+
+def _real(v) -> float:
+    try:
+        f = complex(v)
+    except (TypeError, ValueError):
+        raise Unbounded from None
+    if f.imag != 0 or not math.isfinite(f.real):
+        raise Unbounded
+    return f.real
+
+
+def _clean(obj):
+    """JSON-safe: non-finite floats become None."""
+    if isinstance(obj, dict):
+        return {k: _clean(v) for k, v in obj.items()}
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return None
+    return obj
+
+
+def _affine(dform: Form, x) -> bool:
+    """Whether Q is affine in x (dQ/dx free of x), for single expressions."""
+    if dform.defs:
+        return False
+    return x not in dform.final.free_symbols or sympy.cancel(sympy.diff(dform.final, x)) == 0
+
+
+def monte_carlo(form: Form, nominal: dict, box: dict, samples=100_000, seed=1,
+                distribution="uniform"):
+    """(values array, dict for JSON) by seeded sampling of the box."""
+    rng = np.random.default_rng(seed)
+    env = {x: float(v) for x, v in nominal.items()}
+    order = sorted(box, key=str)
+    # one draw for all parts (row k belongs to order[k]), scaled in place
+    if distribution == "normal":
+        u = rng.standard_normal((len(order), samples))
+    else:
+        u = rng.random((len(order), samples))
+    for k, x in enumerate(order):
+        c, h = float(box[x][0]), float(box[x][1])
+        row = u[k]
+        if distribution == "normal":
+            row *= h / 3.0
+            row += c
+        else:
+            row *= 2.0 * h
+            row += c - h
+        env[x] = row
+    with np.errstate(all="ignore"):
+        v = np.broadcast_to(np.asarray(_vec(form)(env), dtype=float), (samples,))
+    finite = np.isfinite(v)
+    bad = int(samples - finite.sum())
+    if bad:
+        v = v[finite]
+    if v.size < 2:
+        raise ZeroDivisionError("no finite Monte Carlo sample")
+    lo, hi = np.quantile(v, QUANTILES)
+    out = {"samples": int(samples), "seed": int(seed), "distribution": distribution,
+           "mean": float(v.mean()), "std": float(v.std(ddof=1)),
+           "low": float(lo), "high": float(hi)}
+    if bad:
+        out["non_finite_samples"] = bad
+    return v, out
+
+
+def spread_of(ctx: Context, a, req) -> tuple:
+    """(JSON dict, steps, Monte Carlo values) of one analysed quantity."""
+    name, unit = a.q.name, a.q.unit
+    if a.nominal_value is None:
+        missing = sorted(str(x) for x in a.form.base_symbols() if x not in ctx.nominal)
+        raise SheetError(f"the tolerance of {name} needs nominal values of: {', '.join(missing)}",
+                         req.loc.line, req.loc.col)
+    q0 = _real(a.nominal_value)
+    box = box_of(ctx, a.form.base_symbols())
+    opts = ctx.options
+    n = getattr(opts, "mc_samples", 100_000)
+    seed = getattr(opts, "mc_seed", 1)
+    dist = getattr(opts, "mc_distribution", "uniform")
+    wc, rss, rows = linear(a, box)
+    lo, hi, method, mono = extremes(a.form, {s.symbol: s.deriv for s in a.sens}, ctx.nominal, box,
+                                    seed)
+    values, mc = monte_carlo(a.form, ctx.nominal, box, n, seed, dist)
+    out = {"spread": {"nominal": q0, "low": lo, "high": hi, "method": method},
+           "worst_case_linear": {"low": q0 - wc, "high": q0 + wc},
+           "rss": {"low": q0 - rss, "high": q0 + rss, "sigma_equivalent": rss / 3.0},
+           "monte_carlo": mc,
+           "monotone": {str(x): m for x, m in mono.items()},
+           "contributions": {str(x): c for x, c in rows}}
+    u = f" {unit}" if unit else ""
+    table = [["symbol", "tolerance", "S at nominal", f"|dQ/dx|·|x0|·t ({unit or '-'})",
+              "share of worst case", "on the box"]]
+    sval = {s.symbol: s.s_value for s in a.sens}
+    for x, c in sorted(rows, key=lambda r: -r[1]):
+        t = ctx.circuit.symbols[str(x)].tolerance
+        table.append([str(x), f"±{float(t) * 100:g} %", _sens._g(sval.get(x)), f"{c:.6g}",
+                      f"{(c / wc * 100 if wc else 0):.1f} %", mono.get(x, "")])
+    steps = [
+        Step(f"Linear worst case: {name} = {q0:.6g}{u} ± Σ|d{name}/dx|·|x0|·t = ± {wc:.6g}{u}, "
+             f"so {q0 - wc:.6g} to {q0 + wc:.6g}{u} (first order in the tolerances).",
+             kind="tolerance", table=table),
+        Step(f"Root-sum-square: ± sqrt(Σ(d{name}/dx·x0·t)²) = ± {rss:.6g}{u}, so "
+             f"{q0 - rss:.6g} to {q0 + rss:.6g}{u}.", kind="tolerance"),
+        Step(f"Extreme values over the box of tolerances: {lo:.6g} to {hi:.6g}{u}. "
+             f"Method: {method}.", kind="tolerance"),
+        Step(f"Monte Carlo: {mc['samples']} samples, seed {mc['seed']}, {dist} within "
+             f"tolerance{' (tolerance = 3σ)' if dist == 'normal' else ''}: mean "
+             f"{mc['mean']:.6g}{u}, standard deviation {mc['std']:.6g}{u}, 0.135 %/99.865 % "
+             f"quantiles {mc['low']:.6g} and {mc['high']:.6g}{u}.", kind="tolerance"),
+    ]
+    for st in steps:
+        st.verify()
+    return out, steps, values
+
+
+@handler("tolerance")
+def tolerance(ctx: Context, req) -> RequestResult:
+    from derive.export import plots
+    res = RequestResult(req)
+    by, figs = {}, []
+    for a in _sens.analysed(ctx, req):
+        try:
+            out, steps, values = spread_of(ctx, a, req)
+        except (Unbounded, ZeroDivisionError):
+            raise SheetError(f"the tolerance of {a.q.name} cannot be given: it is not finite "
+                             "everywhere on the box of tolerances (a denominator vanishes "
+                             "there); narrow the tolerances", req.loc.line, req.loc.col) from None
+        out = _clean(out)
+        by[a.q.name] = out
+        res.steps.extend(steps)
+        counts, edges = np.histogram(values, bins=60)
+        marks = {"linear worst case": (out["worst_case_linear"]["low"],
+                                       out["worst_case_linear"]["high"]),
+                 "extreme values": (out["spread"]["low"], out["spread"]["high"])}
+        figs.append(plots.histogram_figure(
+            f"{_sens._slug(req.text)}-{a.q.name}",
+            f"Monte Carlo spread of {a.q.name} ({out['monte_carlo']['samples']} samples) with "
+            "the linear worst-case and extreme-value limits.", counts, edges, a.q.name, a.q.unit,
+            marks))
+    first = next(iter(by))
+    res.extra.update(by[first])
+    res.extra["tolerance_of"] = first
+    res.extra["tolerance_by_quantity"] = by
+    res.extra["figures"] = figs
+    return res

@@ -1,0 +1,1 @@
+"""Stage 2: the sheet model built into a validated, flattened circuit."""

@@ -1,0 +1,1 @@
+"""Stage 5: derivation steps and their verification."""

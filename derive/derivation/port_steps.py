@@ -1,0 +1,490 @@
+"""Steps of a hand derivation for port, gain and current requests, every one verified.
+
+Where the network seen from the port reduces by series and parallel combination and source
+transformations, the reduction is shown one move at a time (:mod:`derive.forms.series_parallel` records the
+moves); otherwise the nodal equations, their matrix form and Cramer's rule
+(:mod:`derive.derivation.nodal_steps`). Then the Thévenin/Norton cross-check and the values at
+nominal values. Every equation is checked against the solver's exact result before the
+steps are returned; a failed check is a bug and raises.
+
+>>> import derive
+>>> rec = derive.derive_text('''voltage source V between a and gnd = 10 V
+... resistor R1 between a and b = 1 kohm
+... resistor R2 between b and gnd = 4 kohm
+... port out between b and gnd
+... find thevenin at out''')
+>>> steps = rec.results[0].steps
+>>> [s.kind for s in steps]
+['port', 'reduction', 'reduction', 'result', 'check', 'value', 'value']
+>>> all(s.verified for s in steps)
+True
+"""
+from __future__ import annotations
+
+import flint
+import sympy
+
+from derive.solver import convert as edge
+from derive.forms import select as forms
+from derive.forms import series_parallel as reduce
+from derive.derivation.nodal_steps import Nodal, cramer_step, equation_steps
+from derive.derivation.steps import Equation, NotRational, Program, Step, exact_value, fmpq_of, to_float, to_rational
+from derive.sheet.units import format_eng
+
+TWIN = {"rn": "rth", "resistance": "rth", "impedance": "rth", "voltage": "vth"}
+
+
+class StepFailed(AssertionError):
+    """A displayed equation did not verify: a bug in derive, never the user's sheet.
+    ``steps`` holds the steps as verified (the failing ones with ``verified`` false)."""
+
+    def __init__(self, message, steps=None):
+        super().__init__(message)
+        self.steps = list(steps or [])
+
+
+def port_steps(ctx, req, out) -> list:
+    """The verified steps of a ``_basic`` request result ``out``."""
+    refs = {n: (edge.to_sympy(q.ratio) if q.ratio is not None else None)
+            for n, q in out.quantities.items()}
+    steps = []
+    if req.quantity == "current":
+        steps += _current_steps(ctx, req, out, refs)
+    else:
+        red = _reduction_steps(ctx, req, out, refs)
+        steps += red if red is not None else _nodal_port_steps(ctx, req, out, refs)
+        if req.quantity in ("thevenin", "norton"):
+            steps += _cross_check(ctx, req)
+    for q in out.quantities.values():
+        steps.append(_value_step(ctx, req, q))
+    failed = [st for st in steps if not st.verify()]
+    if failed:
+        st = failed[0]
+        bad = [e for e in st.equations if not e.verified]
+        raise StepFailed(f"internal check failed in the derivation of {req.text!r}: "
+                         f"{st.text} ({bad[0].lhs} = {bad[0].rhs})", steps)
+    return steps
+
+
+def _check(ctx, req, eq: Equation, ref, nodal_form=None):
+    """Verify ``eq.rhs`` against the solver's exact result ``ref`` (or, where the result was
+    not expanded, an exact solve of the nodal equations at random rational points)."""
+    if ref is not None:
+        eq.check = ref
+        return eq
+    from derive.derivation.nodal_steps import _random_solve_check
+    nodal = _nodal(ctx)
+    if len(nodal_form) == 4:        # isc: open-circuit voltage over resistance seen
+        f1, b1, f2, b2 = nodal_form
+        eq.mark("system", *_random_solve_check(nodal, f1, b1, eq.rhs, defs=eq.defs,
+                                               over=(f2, b2)))
+        return eq
+    form, b = nodal_form
+    eq.mark("system", *_random_solve_check(nodal, form, b, eq.rhs, defs=eq.defs))
+    return eq
+
+
+def _inline(e, defs):
+    for s, x in reversed(list(defs.items())):
+        e = e.xreplace({s: x})
+    return e
+
+
+def _nodal(ctx, begin=False) -> Nodal:
+    if "nodal" not in ctx.cache:
+        ctx.cache["nodal"] = Nodal(ctx)
+    if begin:
+        ctx.cache["nodal"].begin()
+    return ctx.cache["nodal"]
+
+
+def _nodal_forms(ctx, req, base):
+    """(linear form in the unknowns, right-hand side) of a port quantity."""
+    nodal = _nodal(ctx)
+    plus, minus = ctx.port(req.port)
+    form = nodal.v(plus) - nodal.v(minus)
+    if base == "rth":
+        return form, nodal.test_vector(plus, minus)
+    if base == "gain":
+        return form, nodal.rhs_for(only=req.source)
+    if base == "isc":           # vth/rth: both linear forms with their right-hand sides
+        return form, nodal.b, form, nodal.test_vector(plus, minus)
+    return form, nodal.b
+
+
+# ------------------------------------------------------------------ reduction
+def _label(b) -> str:
+    if b.members == [b.name]:
+        return b.name
+    return "the equivalent of " + ", ".join(b.members[:-1]) + " and " + b.members[-1]
+
+
+def _reduction_steps(ctx, req, out, refs):
+    bases = {n: TWIN.get(n, n) for n in out.quantities}
+    need_src = any(b in ("vth", "isc", "gain") for b in bases.values())
+    res = reduce.reduction(ctx, req.port, zero=not need_src)
+    if res is None or res[0] is None or res[0].ideal_current:
+        return None
+    final, moves, defs = res
+    if "isc" in bases.values() and final.Z == 0:
+        return None
+    c = ctx.circuit
+    subs = ctx.numeric_subs()
+    srcs = [e.name for e in c.elements if e.independent_source]
+    if req.quantity == "gain":
+        env = reduce.source_values(c, subs, only=req.source)
+    else:
+        env = reduce.source_values(c, subs, none=not need_src)
+    defs = {s: e.xreplace(env) for s, e in defs}
+    plus, minus = ctx.port(req.port)
+    steps = [Step(_intro(c, req, plus, minus, need_src, srcs), [], [], kind="port")]
+    for m in moves:
+        steps.append(_move_step(m, env, defs))
+    E, Z = final.E.xreplace(env), final.Z
+    eqs = []
+    for n, q in out.quantities.items():
+        base = bases[n]
+        rhs = {"vth": E, "gain": E, "rth": Z}.get(base, E / Z if Z != 0 else None)
+        eq = Equation(sympy.Symbol(n), rhs, defs=dict(defs))
+        eqs.append(_check(ctx, req, eq, refs[n], (None if refs[n] is not None
+                                                  else _nodal_forms(ctx, req, base))))
+        if q.expr is not None and (q.expr != rhs):
+            e2 = Equation(sympy.Symbol(n), q.expr)
+            eqs.append(_check(ctx, req, e2, refs[n], (None if refs[n] is not None
+                                                      else _nodal_forms(ctx, req, base))))
+    what = (f"The port {req.port} now sees a single branch from {plus} to {minus}: its "
+            "open-circuit voltage and its impedance are the results" if need_src else
+            f"The port {req.port} now sees a single impedance between {plus} and {minus}")
+    if any(b == "isc" for b in bases.values()):
+        what += "; the short-circuit current is the branch's voltage over its impedance"
+    steps.append(Step(what + ". Substituted back and compared with the exact nodal "
+                      "solution:", eqs, [], kind="result"))
+    return steps
+
+
+def _intro(c, req, plus, minus, need_src, srcs):
+    head = f"Port {req.port}: + at node {plus}, - at node {minus}."
+    if req.quantity == "gain":
+        others = [s for s in srcs if s != req.source]
+        return (head + f" The gain is the open-circuit voltage per unit of {req.source}: "
+                f"{req.source} is set to 1" + (", and " + ", ".join(others) +
+                                               " to zero" if others else "") +
+                ". The network reduces by series and parallel combination:")
+    if not need_src:
+        return head + " " + _zeroed_text(c) + " The rest reduces by series and parallel " \
+            "combination:"
+    return head + " The network seen from the port reduces by series and parallel " \
+        "combination and source transformations, one move at a time:"
+
+
+def _zeroed_text(c) -> str:
+    vs = [e.name for e in c.elements if e.independent_source and e.kind == "vsource"]
+    cs = [e.name for e in c.elements if e.independent_source and e.kind == "isource"]
+    parts = []
+    if vs:
+        parts.append("voltage source" + ("s " if len(vs) > 1 else " ") + ", ".join(vs) +
+                     (" become short circuits" if len(vs) > 1 else " becomes a short circuit"))
+    if cs:
+        parts.append("current source" + ("s " if len(cs) > 1 else " ") + ", ".join(cs) +
+                     (" become open circuits" if len(cs) > 1 else " becomes an open circuit"))
+    if not parts:
+        return "The circuit has no independent sources to set to zero."
+    return "Independent sources set to zero: " + "; ".join(parts) + "."
+
+
+def _zname(r, defs):
+    return r.Z if r.Z in defs else sympy.Symbol(f"Zeq{r.name}")
+
+
+def _vname(r, el, defs):
+    return el if el in defs else sympy.Symbol(f"Veq{r.name}")
+
+
+def _move_step(m, env, defs) -> Step:
+    kind, parts, r = m["move"], m["parts"], m["result"]
+    if kind == "drop":
+        b = parts[0]
+        return Step(f"Nothing else connects at node {m['node']}, so {_label(b)} carries no "
+                    "current and does not affect the port; it is removed.", [], b.members,
+                    kind="reduction")
+    x, y = parts
+    members = x.members + y.members
+    if kind == "series":
+        if x.b != m["node"]:
+            x = x.flipped()
+        if y.a != m["node"]:
+            y = y.flipped()
+        if x.ideal_current or y.ideal_current:
+            i, t = (x, y) if x.ideal_current else (y, x)
+            return Step(f"{_label(i)} is a current source in series with {_label(t)} through "
+                        f"node {m['node']}: the branch current stays {i.K.xreplace(env)}, "
+                        f"whatever {_label(t)} is; {_label(t)} is absorbed.", [], members,
+                        kind="reduction")
+        zl = _zname(r, defs)
+        eqs = [Equation(zl, x.Z + y.Z, check=r.Z, defs=_with(defs, zl, r.Z))] \
+            if r.Z in defs else []
+        ex, ey = x.E.xreplace(env), y.E.xreplace(env)
+        el = r.E.xreplace(env)
+        if ex != 0 and ey != 0 and el in defs:
+            eqs.append(Equation(_vname(r, el, defs), ex + ey, check=el, defs=defs))
+        if not eqs:
+            return Step(f"{_label(x)} and {_label(y)} are in series: nothing else connects at "
+                        f"node {m['node']}, so they form one branch, a source {el} behind "
+                        f"{r.Z}.", [], members, kind="reduction")
+        return Step(f"{_label(x)} and {_label(y)} are in series: nothing else connects at node "
+                    f"{m['node']}, so they carry the same current; impedances (and source "
+                    "voltages) add.", eqs, members, kind="reduction")
+    if y.a != x.a:
+        y = y.flipped()
+    between = f"between nodes {x.a} and {x.b}"
+    if x.ideal_current and y.ideal_current:
+        return Step(f"{_label(x)} and {_label(y)} are current sources in parallel {between}: "
+                    "their currents add.", [], members, kind="reduction")
+    if x.ideal_current or y.ideal_current:
+        i, t = (x, y) if x.ideal_current else (y, x)
+        k = i.K.xreplace(env)
+        el = r.E.xreplace(env)
+        lhs = _vname(r, el, defs)
+        return Step(f"Source transformation: the current source {_label(i)} ({k}) in parallel "
+                    f"with {_label(t)} {between} becomes a voltage source in series with "
+                    f"{_label(t)}.", [Equation(lhs, t.E.xreplace(env) - k * t.Z,
+                                               check=el, defs=defs)], members,
+                    kind="reduction")
+    if reduce.is_open(x) or reduce.is_open(y):
+        o, k = (x, y) if reduce.is_open(x) else (y, x)
+        return Step(f"{_label(o)} has infinite impedance (an open circuit) {between}: it "
+                    f"carries no current in parallel with {_label(k)} and is removed.", [],
+                    members, kind="reduction")
+    if x.Z == 0 or y.Z == 0:
+        v, o = (x, y) if x.Z == 0 else (y, x)
+        return Step(f"{_label(v)} is an ideal voltage source directly across {_label(o)} "
+                    f"{between}: the voltage there is fixed whatever {_label(o)} draws, so "
+                    f"{_label(o)} does not affect the port and is removed.", [], members,
+                    kind="reduction")
+    zl = _zname(r, defs)
+    d = _with(defs, zl, r.Z)
+    eqs = [Equation(zl, x.Z * y.Z / (x.Z + y.Z), check=r.Z, defs=d)]
+    ex, ey = x.E.xreplace(env), y.E.xreplace(env)
+    text = f"{_label(x)} and {_label(y)} are in parallel {between}"
+    if ex != 0 or ey != 0:
+        srcs = [f"{_label(b)} (voltage {e} behind {b.Z}) becomes a current source {e}/{b.Z} "
+                f"in parallel with {b.Z}" for b, e in ((x, ex), (y, ey)) if e != 0]
+        text = ("Source transformation: " + "; ".join(srcs) + ". " + text +
+                ": the currents add, the impedances combine in parallel, and the result "
+                "transforms back into a voltage source behind the parallel impedance")
+        el = r.E.xreplace(env)
+        lhs = _vname(r, el, defs)
+        eqs.append(Equation(lhs, zl * (ex / x.Z + ey / y.Z), check=el, defs=d))
+    return Step(text + ".", eqs, members, kind="reduction")
+
+
+def _with(defs, sym, value):
+    d = dict(defs)
+    if sym not in d:
+        d[sym] = value
+    return d
+
+
+# ------------------------------------------------------------------ nodal
+def _nodal_port_steps(ctx, req, out, refs):
+    nodal = _nodal(ctx, begin=True)
+    plus, minus = ctx.port(req.port)
+    why = ("The network does not reduce by series and parallel combination alone "
+           "(dependent sources, op-amps or a bridge), so it is solved by nodal analysis.")
+    if any(e.dependent or e.kind == "nullor" for e in ctx.circuit.elements):
+        why = ("The circuit has dependent sources or op-amps, so it is solved by (modified) "
+               "nodal analysis.")
+    steps = [Step(f"Port {req.port}: + at node {plus}, - at node {minus}. " + why, [],
+                  kind="port")]
+    steps += equation_steps(nodal)
+    names = list(out.quantities)
+    if "isc" in names:          # isc = vth/rth: both first (rth too when not requested)
+        names = ["vth"] + [n for n in names if n not in ("isc", "vth")] + ["isc"]
+        if not any(TWIN.get(m, m) == "rth" for m in names):
+            names.insert(1, "rth")
+    for n in names:
+        base = TWIN.get(n, n)
+        q = out.quantities.get(n)
+        ref = (refs.get(n) if refs.get(n) is not None else _ref(q)) if q is not None \
+            else _exact(ctx, req, n)
+        if base in ("vth", "gain", "rth"):
+            form, b = _nodal_forms(ctx, req, base)
+            why = {"vth": f"Open-circuit voltage of port {req.port}: the difference of its node "
+                          "voltages.",
+                   "gain": f"Gain from {req.source}: {req.source} set to 1, the other "
+                           "independent sources to zero; the port's open-circuit voltage.",
+                   "rth": f"Resistance seen into port {req.port}: {_zeroed_text(ctx.circuit)} "
+                          "Dependent sources stay. A 1 A test current is driven into node "
+                          f"{plus} and out of node {minus}; the port voltage is then the "
+                          "resistance."}[base]
+            steps.append(cramer_step(nodal, n, form, b, ref, why,
+                                     tag={"vth": "", "gain": "g", "rth": "t"}[base]))
+        elif base == "isc":
+            v, r = _exact(ctx, req, "vth"), _exact(ctx, req, "rth")
+            rname = next(m for m in names if TWIN.get(m, m) == "rth")
+            syms = {sympy.Symbol("vth"): v, sympy.Symbol(rname): r}
+            eq = Equation(sympy.Symbol(n), sympy.Symbol("vth") / sympy.Symbol(rname),
+                          check=ref, defs=syms)
+            # the solver's short-circuit solution (port shorted) against the quotient of its
+            # open-circuit and test-source solutions
+            sc = Equation(sympy.Symbol(n), ref, check=v / r)
+            steps.append(Step("Short-circuit current: the open-circuit voltage over the "
+                              "resistance seen into the port (both found above), compared with "
+                              "the solver's short-circuit solution.", [eq, sc],
+                              kind="result"))
+    return steps
+
+
+def _ref(q):
+    """The closed form of a result, or (sequence, result) where only a sequence exists."""
+    return q.expr if q.expr is not None else (list(q.sequence), q.in_sequence)
+
+
+def _exact(ctx, req, name):
+    return edge.to_sympy(forms.exact_ratio(ctx, req, name))
+
+
+def _current_steps(ctx, req, out, refs):
+    nodal = _nodal(ctx, begin=True)
+    e = ctx.circuit.element(req.element)
+    q = out.quantities["current"]
+    ref = refs["current"] if refs["current"] is not None else _ref(q)
+    form = nodal.current(e.name).xreplace(nodal.src_values)
+    ends = f"from {e.nodes[0]} to {e.nodes[1]}" if e.kind != "nullor" else ""
+    cur = Equation(sympy.Symbol("current"), form)
+    cur.mark("system", _through_agrees(nodal, e.name, form))
+    steps = [Step(f"Current through {e.name} in its reference direction ({ends}), in terms "
+                  "of the nodal unknowns:", [cur], [e.name], kind="port")]
+    steps += equation_steps(nodal)
+    steps.append(cramer_step(nodal, "current", form, nodal.b, ref,
+                             f"Solving for the unknowns that the current of {e.name} needs."))
+    return steps
+
+
+def _through_agrees(nodal, name, form) -> bool:
+    """The element's current in the unknowns equals the stamped system's own linear form
+    of that current (:meth:`derive.solver.stamping.System.through`)."""
+    from derive.forms.elimination import _entry_expr
+    try:
+        sysm = nodal.system
+        lf = sysm.through(name)
+        ref = sympy.Add(*[_entry_expr(sysm, p) * nodal.unknowns[i]
+                          for i, p in lf.coef.items() if not _zero_poly(p)])
+        if not _zero_poly(lf.const):
+            ref += _entry_expr(sysm, lf.const)
+        d = sympy.expand(form - ref)
+        return d == 0 or sympy.cancel(sympy.together(d)) == 0
+    except Exception:
+        return False
+
+
+def _zero_poly(p) -> bool:
+    return p == 0 if isinstance(p, int) else p.is_zero()
+
+
+# ------------------------------------------------------------------ checks, values
+def _cross_check(ctx, req):
+    if not forms.expandable(ctx):
+        return []
+    r = forms.exact_ratio(ctx, req, "rth")
+    if r.is_zero:
+        return []
+    v, i, z = (_exact(ctx, req, n) for n in ("vth", "isc", "rth"))
+    V, I, R = (sympy.Symbol(n) for n in ("vth", "isc", "rth"))
+    eq = Equation(V, I * R, check=V, defs={V: v, I: i, R: z})
+    return [Step("Cross-check: the open-circuit voltage equals the short-circuit current "
+                 "times the resistance seen into the port (each found independently).",
+                 [eq], kind="check")]
+
+
+def _ratio_value(ratio, nominal):
+    """The solver's exact ratio at nominal values (sympy Rational), from its own ring
+    polynomials in python-flint ``fmpq``; None where some value is missing or irrational."""
+    if ratio is None:
+        return None
+    vals = []
+    for v in ratio.system.vars:
+        x = v.expr.xreplace(nominal)
+        if not x.is_Rational:
+            return None
+        if v.kind == "recip":
+            if x == 0:
+                return None
+            x = 1 / x
+        vals.append(fmpq_of(x))
+    if vals:
+        num, den = ratio.num(*vals), ratio.den(*vals)
+    else:
+        n, d = ratio.num.to_dict(), ratio.den.to_dict()
+        num = flint.fmpq(n.get((0,), 0)) if n else flint.fmpq(0)
+        den = flint.fmpq(d.get((0,), 1)) if d else flint.fmpq(1)
+    if den == 0:
+        return None
+    return to_rational(num / den)
+
+
+def _nodal_value(ctx, req, name, nominal):
+    """The quantity at nominal values from an exact solve of the nodal equations there."""
+    nodal = _nodal(ctx)
+    base = TWIN.get(name, name)
+    if base == "isc":
+        v, r = (_nodal_value(ctx, req, n, nominal) for n in ("vth", "rth"))
+        return None if v is None or not r else v / r
+    if req.quantity == "current":
+        form = nodal.current(req.element).xreplace(nodal.src_values)
+        b = nodal.b
+    elif base in ("vth", "gain", "rth"):
+        form, b = _nodal_forms(ctx, req, base)
+    else:
+        return None
+    n = nodal.A.shape[0]
+    try:
+        prog = Program(list(nodal.A) + list(b))
+        fprog = Program([form])
+        vals = prog.run(nominal)
+        x = flint.fmpq_mat(n, n, vals[:n * n]).solve(flint.fmpq_mat(n, 1, vals[n * n:]))
+        env = dict(nominal)
+        env.update({u: x[i, 0] for i, u in enumerate(nodal.unknowns)})
+        return to_rational(fprog.run(env)[0])
+    except (KeyError, ZeroDivisionError, NotRational):
+        return None
+
+
+def _value_step(ctx, req, q) -> Step:
+    nominal = ctx.nominal
+    used = set(q.expr.free_symbols) if q.expr is not None else set()
+    for _, e in q.sequence:
+        used |= e.free_symbols
+    used -= {s for s, _ in q.sequence}
+    info = ctx.circuit.symbols
+    rows = [["symbol", "nominal value"]]
+    for s in sorted(used, key=str):
+        si = info.get(str(s))
+        val = nominal.get(s)
+        rows.append([si.display if si else str(s),
+                     format_eng(to_float(val), si.unit if si else None) if val is not None
+                     else "none (kept symbolic)"])
+    if q.value is None:
+        return Step(f"{q.name} has no single value: some symbols have no nominal value (or the "
+                    "result depends on s).", [], kind="value", table=rows)
+    # one exact path: the displayed closed form (or sequence) at nominal, in fmpq
+    exact = exact_value(q.expr, nominal) if q.expr is not None else \
+        exact_value(q.in_sequence, nominal, dict(q.sequence))
+    if exact is None:       # not a rational value (complex, roots): shown, nothing claimed
+        shown = str(q.value) if isinstance(q.value, complex) else format_eng(q.value, q.unit)
+        return Step(f"At nominal values: {q.name} = {shown}.", [], kind="value", table=rows)
+    q.value = to_float(exact)
+    shown = format_eng(q.value, q.unit)
+    # an independent exact value: the solver's ratio, else an exact nodal solve at nominal
+    indep, method = _ratio_value(q.ratio, nominal), "exact"
+    if indep is None:
+        indep, method = _nodal_value(ctx, req, q.name, nominal), "system"
+    if indep is not None and indep != exact:
+        raise StepFailed(f"value of {q.name} at nominal values disagrees with an independent "
+                         f"exact computation ({exact} against {indep})")
+    eqs = []        # no independent value (e.g. a resistance of nominal 0): shown, not claimed
+    if indep is not None and len(str(exact)) <= 24:
+        eq = Equation(sympy.Symbol(q.name), exact)
+        eq.mark(method, indep == exact)
+        eqs.append(eq)
+    return Step(f"At nominal values: {q.name} = {shown}.", eqs, kind="value", table=rows)

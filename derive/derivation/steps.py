@@ -1,0 +1,404 @@
+"""The derivation model: ordered, verified steps between the solver and the exporters.
+
+A :class:`Step` says in one sentence what was done and why, the equations it establishes
+(each an :class:`Equation`, ``lhs = rhs`` as sympy expressions), and the elements involved.
+Every equation carries how it was verified (``Equation.verified_by``):
+
+``"exact"``
+    the difference ``rhs - check`` cancelled to zero exactly (sympy, small expressions), or
+    both sides are constants with the same exact value;
+``"points"``
+    ``rhs`` and ``check`` evaluated in exact rational arithmetic (python-flint ``fmpq``) at
+    ``Equation.points`` random rational points and equal at every one (a wrong identity of
+    rational functions passes only with negligible probability, Schwartz–Zippel lemma);
+    points where a side is undefined are replaced by new ones (bounded), and with no usable
+    point the equation is *not* verified;
+``"system"``
+    the equation is a row of the stamped nodal system, or follows directly from it, and was
+    checked against it (exactly, or by exact solves at ``points`` random rational points);
+``"definition"``
+    the equation only gives a name to an expression (``lhs`` a plain symbol) and asserts
+    nothing that could be checked; a derived result is never a definition;
+``None``
+    not verified (no independent check, a failed check, or an error while checking).
+
+``Step.verified`` is true only when every equation is verified (definitions included); a
+step without equations is vacuously verified and has an empty ``verified_by`` list in JSON.
+In JSON every step carries ``"verified_by"``: one entry per equation, in order, each an
+object ``{"method": "exact" | "points" | "system" | "definition" | null}`` with
+``"points": n`` where random points were used.
+
+>>> import sympy
+>>> R1, R2 = sympy.symbols('R1 R2')
+>>> st = Step("Combine R1 and R2 in parallel.",
+...           [Equation(sympy.Symbol('Rp'), R1*R2/(R1 + R2), R1/(1 + R1/R2))], ["R1", "R2"])
+>>> st.verify()
+True
+>>> st.equations[0].verified_by
+'exact'
+>>> Step("Nothing checks this.", [Equation(sympy.Symbol('Rp'), R1 + R2)]).verify()
+False
+"""
+from __future__ import annotations
+
+import random
+from dataclasses import dataclass, field
+from fractions import Fraction
+from typing import Callable, Optional
+
+import flint
+import sympy
+
+METHODS = ("exact", "points", "system", "definition")
+EXACT_OPS = 400         # difference cancelled exactly up to this many operations
+POINTS = 3              # random rational points of an evaluation check
+ATTEMPTS = 10           # draws per wanted point before a check gives up
+
+
+@dataclass
+class Equation:
+    """``lhs = rhs``; ``check`` (optional) is an independent expression that must equal
+    ``rhs`` (e.g. the same quantity from the full nodal solution). ``defs`` are named
+    intermediates (Symbol -> expr) that ``rhs``/``check`` may use. ``definition`` marks an
+    equation that only names an expression. ``verified``/``verified_by``/``points`` say
+    whether and how it was verified (see the module docstring)."""
+    lhs: sympy.Expr
+    rhs: sympy.Expr
+    check: Optional[sympy.Expr] = None
+    defs: dict = field(default_factory=dict)
+    verified: Optional[bool] = None
+    verified_by: Optional[str] = None
+    points: Optional[int] = None
+    definition: bool = False
+
+    def mark(self, method: Optional[str], ok: bool, points: Optional[int] = None) -> bool:
+        """Record the outcome of a check made elsewhere: ``method`` is kept only if ``ok``."""
+        ok = bool(ok) and method in METHODS
+        self.verified = ok
+        self.verified_by = method if ok else None
+        self.points = points if ok else None
+        return ok
+
+    def run_check(self) -> bool:
+        """Verify (once): against ``check``, or as a definition; otherwise not verified."""
+        if self.verified is not None:
+            if self.verified and self.verified_by not in METHODS:
+                self.mark(None, False)          # a claim without a method is no claim
+            return bool(self.verified)
+        if self.check is not None:
+            try:
+                method, ok, n = compare(self.rhs, self.check, self.defs)
+            except Exception:                   # never verified through an error
+                return self.mark(None, False)
+            return self.mark(method, ok, n)
+        if self.definition and isinstance(self.lhs, sympy.Symbol):
+            return self.mark("definition", True)
+        return self.mark(None, False)
+
+    def method_json(self) -> dict:
+        d = {"method": self.verified_by if self.verified else None}
+        if self.verified and self.points is not None:
+            d["points"] = int(self.points)
+        return d
+
+
+@dataclass
+class Figure:
+    """A plot that an exporter may draw: ``draw(path)`` writes an image file."""
+    name: str
+    caption: str
+    draw: Callable[[str], None]
+
+
+@dataclass
+class Step:
+    text: str
+    equations: list = field(default_factory=list)
+    elements: list = field(default_factory=list)
+    verified: Optional[bool] = None
+    kind: str = "step"          # free label for templates: 'reduction', 'nodal', 'value', ...
+    table: Optional[list] = None   # optional rows (list of lists of str) to show as a table
+
+    def verify(self) -> bool:
+        ok = True
+        for eq in self.equations:
+            ok = eq.run_check() and ok
+        self.verified = ok
+        return ok
+
+    def to_json(self) -> dict:
+        from derive.export.printing import to_text
+        out = {"text": self.text,
+               "equations": [f"{to_text(e.lhs)} = {to_text(e.rhs)}" for e in self.equations],
+               "elements": list(self.elements),
+               "verified": bool(self.verified) and all(e.verified for e in self.equations),
+               "verified_by": [e.method_json() for e in self.equations]}
+        if self.table:
+            out["table"] = [[str(c) for c in row] for row in self.table]
+        return out
+
+
+# ------------------------------------------------------------------ exact evaluation
+class NotRational(Exception):
+    """An expression that is not a rational function of its symbols (roots, floats, ...)."""
+
+
+class Program:
+    """Sympy expressions compiled once into straight-line exact rational arithmetic.
+
+    ``roots`` are the expressions to evaluate; a symbol that is a key of ``defs`` stands for
+    its expression (compiled in dependency order, so the order of ``defs`` does not matter).
+    :meth:`run` evaluates at a point (Symbol -> number) in python-flint ``fmpq``; a division
+    by zero raises :class:`ZeroDivisionError`.
+
+    >>> a, b, q = sympy.symbols('a b q')
+    >>> p = Program([q/(a - b)], {q: a**2 - b**2})
+    >>> p.run({a: sympy.Rational(3), b: sympy.Rational(1, 2)})[0]
+    7/2
+    """
+
+    def __init__(self, roots, defs: dict | None = None):
+        self.defs = dict(defs or {})
+        self.ops: list = []
+        self.inputs: dict = {}
+        self._reg: dict = {}
+        self._open: set = set()
+        self.out = [self._compile(e) for e in roots]
+
+    def _emit(self, op) -> int:
+        self.ops.append(op)
+        return len(self.ops) - 1
+
+    def _compile(self, e) -> int:
+        if e in self._reg:
+            return self._reg[e]
+        stack = [(e, False)]
+        while stack:
+            x, done = stack.pop()
+            if x in self._reg:
+                continue
+            if x.is_Symbol and x in self.defs:
+                target = self.defs[x]
+                if done:
+                    self._reg[x] = self._reg[target]
+                    self._open.discard(x)
+                    continue
+                if x in self._open:
+                    raise NotRational(f"named intermediate {x} depends on itself")
+                self._open.add(x)
+                stack.append((x, True))
+                stack.append((target, False))
+                continue
+            if x.is_Symbol:
+                self._reg[x] = self._emit(("in", x))
+                self.inputs[x] = self._reg[x]
+                continue
+            if x.is_Rational:
+                self._reg[x] = self._emit(("const", flint.fmpq(int(x.p), int(x.q))))
+                continue
+            if x.is_Add or x.is_Mul:
+                kids = x.args
+            elif x.is_Pow and x.exp.is_Integer:
+                kids = (x.base,)
+            else:
+                raise NotRational(f"not a rational function: {type(x).__name__}")
+            if not done:
+                stack.append((x, True))
+                stack.extend((k, False) for k in kids if k not in self._reg)
+                continue
+            if x.is_Add:
+                self._reg[x] = self._emit(("add", [self._reg[k] for k in kids]))
+            elif x.is_Mul:
+                self._reg[x] = self._emit(("mul", [self._reg[k] for k in kids]))
+            else:
+                self._reg[x] = self._emit(("pow", self._reg[x.base], int(x.exp)))
+        return self._reg[e]
+
+    def symbols(self) -> set:
+        return set(self.inputs)
+
+    def run(self, point: dict) -> list:
+        vals = [None] * len(self.ops)
+        for i, op in enumerate(self.ops):
+            k = op[0]
+            if k == "in":
+                vals[i] = fmpq_of(point[op[1]])
+            elif k == "const":
+                vals[i] = op[1]
+            elif k == "add":
+                s = vals[op[1][0]]
+                for j in op[1][1:]:
+                    s = s + vals[j]
+                vals[i] = s
+            elif k == "mul":
+                s = vals[op[1][0]]
+                for j in op[1][1:]:
+                    s = s * vals[j]
+                vals[i] = s
+            else:
+                b, n = vals[op[1]], op[2]
+                if n < 0:
+                    if b == 0:
+                        raise ZeroDivisionError("power of zero with a negative exponent")
+                    vals[i] = (1 / b) ** (-n)
+                else:
+                    vals[i] = b ** n
+        return [vals[r] for r in self.out]
+
+
+def fmpq_of(v) -> flint.fmpq:
+    """An exact rational (sympy Rational, int, Fraction or fmpq) as ``fmpq``; anything else
+    (a float, a root) raises :class:`NotRational`."""
+    if isinstance(v, flint.fmpq):
+        return v
+    if isinstance(v, int):
+        return flint.fmpq(v)
+    if isinstance(v, Fraction):
+        return flint.fmpq(v.numerator, v.denominator)
+    if isinstance(v, sympy.Basic) and v.is_Rational:
+        return flint.fmpq(int(v.p), int(v.q))
+    raise NotRational(f"not an exact rational: {v!r}")
+
+
+def to_rational(v) -> sympy.Rational:
+    """``fmpq`` → sympy Rational."""
+    return sympy.Rational(int(v.p), int(v.q))
+
+
+def to_float(v) -> float:
+    """An exact rational as the nearest float (the only place a value becomes a float)."""
+    v = fmpq_of(v)
+    return float(Fraction(int(v.p), int(v.q)))
+
+
+def exact_value(expr, point: dict, defs: dict | None = None):
+    """``expr`` (with named intermediates ``defs``) at ``point``, exactly, as a sympy
+    Rational; None where a symbol has no value, the expression is not rational or it is
+    undefined there."""
+    try:
+        prog = Program([expr], defs)
+        if not prog.symbols() <= set(point):
+            return None
+        return to_rational(prog.run(point)[0])
+    except (NotRational, ZeroDivisionError):
+        return None
+
+
+def random_point(rnd: random.Random, syms) -> dict:
+    """Positive random rationals for ``syms`` (sorted by name, so the draw is repeatable)."""
+    return {x: sympy.Rational(rnd.randint(1, 10**6), rnd.randint(1, 10**3))
+            for x in sorted(syms, key=str)}
+
+
+def _free(a, b, defs) -> set:
+    syms = set(a.free_symbols) | set(b.free_symbols)
+    for v in defs.values():
+        syms |= v.free_symbols
+    return syms - set(defs)
+
+
+def _is_rational_function(e) -> bool:
+    for x in sympy.preorder_traversal(e):
+        if x.is_Symbol or x.is_Rational:
+            continue
+        if x.is_Add or x.is_Mul or (x.is_Pow and x.exp.is_Integer):
+            continue
+        return False
+    return True
+
+
+def _sympy_point(exprs, defs, pt):
+    """Exact (algebraic) values by sympy substitution, for expressions with roots."""
+    env = dict(pt)
+    pending = dict(defs)
+    while pending:
+        ready = [k for k, v in pending.items() if not (v.free_symbols & set(pending))]
+        if not ready:
+            raise NotRational("named intermediates depend on each other in a cycle")
+        for k in ready:
+            env[k] = pending.pop(k).xreplace(env)
+    out = [e.xreplace(env) for e in exprs]
+    for v in out:
+        if v.has(sympy.zoo, sympy.nan, sympy.oo, -sympy.oo):
+            raise ZeroDivisionError("undefined at this point")
+        if v.has(sympy.Float) or v.free_symbols:
+            raise NotRational("not an exact value")
+    return out
+
+
+def _algebraic_zero(d) -> bool:
+    """Whether an exact algebraic number is zero (False where sympy cannot tell)."""
+    if d == 0:
+        return True
+    for f in (lambda x: sympy.expand(sympy.radsimp(x)), sympy.simplify):
+        try:
+            if f(d) == 0:
+                return True
+        except Exception:
+            return False
+    return False
+
+
+def compare(a, b, defs: dict | None = None, points: int = POINTS,
+            seed: int = 20261202) -> tuple:
+    """(method, equal, points used) for the claim that ``a`` and ``b`` are the same function.
+
+    Small expressions without named intermediates: exact cancellation of ``a - b``
+    (``"exact"``). Otherwise ``"points"``: evaluation in exact rational arithmetic at
+    ``points`` random rational points (named intermediates in ``defs`` are evaluated in
+    dependency order); a point where either side is undefined is replaced by a new draw, at
+    most ``ATTEMPTS * points`` draws; with no usable point the claim is not verified.
+    Expressions with roots are evaluated by exact sympy substitution instead of flint.
+    """
+    defs = defs or {}
+    if not defs and sympy.count_ops(a) + sympy.count_ops(b) < EXACT_OPS:
+        try:
+            zero = sympy.cancel(sympy.together(a - b)) == 0
+        except Exception:
+            zero = None
+        if zero:
+            return "exact", True, None
+        if zero is False and _is_rational_function(a) and _is_rational_function(b):
+            return "exact", False, None
+    syms = _free(a, b, defs)
+    try:
+        prog = Program([a, b], defs)
+        run = lambda pt: prog.run(pt)
+        same = lambda va, vb: va == vb
+    except NotRational:
+        run = lambda pt: _sympy_point([a, b], defs, pt)
+        same = lambda va, vb: _algebraic_zero(va - vb)
+    if not syms:
+        try:
+            va, vb = run({})
+        except ZeroDivisionError:
+            return "exact", False, None
+        return "exact", bool(same(va, vb)), None
+    rnd = random.Random(seed)
+    used = 0
+    for _ in range(ATTEMPTS * points):
+        if used == points:
+            break
+        pt = random_point(rnd, syms)
+        try:
+            va, vb = run(pt)
+        except ZeroDivisionError:
+            continue
+        if not same(va, vb):
+            return "points", False, None
+        used += 1
+    return "points", used > 0, used
+
+
+def equal(a, b, defs: dict | None = None, points: int = POINTS, seed: int = 20261202) -> bool:
+    """Whether ``a`` and ``b`` are the same function (see :func:`compare`)."""
+    return compare(a, b, defs, points, seed)[1]
+
+
+def count_methods(equations) -> dict:
+    """{method or None: number of equations} over ``equations``."""
+    out: dict = {}
+    for e in equations:
+        m = e.verified_by if e.verified else None
+        out[m] = out.get(m, 0) + 1
+    return out

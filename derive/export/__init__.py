@@ -1,0 +1,1 @@
+"""Stage 7: records (JSON, Markdown, LaTeX/PDF), code, plots, files."""

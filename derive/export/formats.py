@@ -1,0 +1,38 @@
+"""Dispatch from a record to an output format (``derive record --format``, ``derive code``,
+``derive check``). Each format lives in its own module."""
+from __future__ import annotations
+
+from derive.errors import DeriveError
+
+
+def render(record, fmt: str, args=None):
+    """The record in format ``fmt`` ('md', 'json', 'tex', 'pdf') as str or bytes."""
+    template = getattr(args, "template", None) if args is not None else None
+    if fmt == "json":
+        return record.to_json()
+    if fmt == "md":
+        from derive.export.markdown import record_markdown
+        return record_markdown(record, template, getattr(args, "output", None))
+    if fmt in ("tex", "pdf"):
+        try:
+            from derive.export import latex as export_latex
+        except ImportError:
+            raise DeriveError("LaTeX and PDF records are not available yet")
+        return export_latex.render(record, fmt, args)
+    raise DeriveError(f"unknown format {fmt!r}")
+
+
+def render_code(record, lang: str, args=None) -> dict:
+    try:
+        from derive.export import code as export_code
+    except ImportError:
+        raise DeriveError("code generation is not available yet")
+    return export_code.render(record, lang, args)
+
+
+def check_lines(record):
+    try:
+        from derive.analyses import claims
+    except ImportError:
+        raise DeriveError("claim checks are not available yet")
+    return claims.check_lines(record)

@@ -1,0 +1,195 @@
+"""What a design-calculation record shows, ready for the Markdown and LaTeX exporters.
+
+:func:`view` turns a :class:`derive.Record` into plain data: title and notes (user text, left
+raw: each exporter escapes it), the element table, modelling assumptions, cautions, the
+results summary and every request's steps with their equations as LaTeX lines. Exporters
+only lay this out.
+"""
+from __future__ import annotations
+
+import sympy
+
+from derive.circuit.build import UNIT_OF_KIND
+from derive.export.printing import equation_lines, to_latex
+from derive.sheet.units import format_eng
+
+KIND_WORD = {"vsource": "voltage source", "isource": "current source", "nullor": "ideal op-amp"}
+
+# Extra-low voltage limits of IEC 61140 (from memory): 50 V a.c. r.m.s., 120 V ripple-free
+# d.c. A sheet does not say whether a source is ripple-free, so the lower figure is used.
+ELV_LIMIT = 50
+
+
+def _value_text(v, unit):
+    if v is None:
+        return ""
+    if isinstance(v, complex):
+        return str(v)
+    return format_eng(v, unit)
+
+
+def elements(circuit) -> list:
+    rows = []
+    nominal = circuit.nominal_values()
+    for e in circuit.elements:
+        kind = KIND_WORD.get(e.kind, e.kind)
+        if e.dependent:
+            kind = "dependent " + kind
+        sym = to_latex(e.value) if e.value is not None else ""
+        if e.dependent:
+            sym = " + ".join(to_latex(c) + r"\cdot " + _ctl(ctl) for c, ctl in e.controls)
+        nom = ""
+        if e.value is not None:
+            v = e.value.xreplace(nominal)
+            if v.is_number:
+                nom = _value_text(float(v), UNIT_OF_KIND.get(e.kind))
+        info = circuit.symbols.get(e.key)
+        tol = ""
+        if info is not None and info.tolerance is not None:
+            tol = f"±{float(info.tolerance) * 100:g} %"
+        rows.append({"name": e.name, "kind": kind, "terminals": ", ".join(e.nodes),
+                     "symbol": sym, "nominal": nom, "tolerance": tol})
+    return rows
+
+
+def _ctl(ctl):
+    if ctl.kind == "across":
+        return r"v(\mathrm{%s}, \mathrm{%s})" % tuple(n.replace("_", r"\_") for n in ctl.nodes)
+    return r"i(\mathrm{%s})" % ctl.element.replace("_", r"\_")
+
+
+def assumptions(circuit) -> list:
+    kinds = {e.kind for e in circuit.elements}
+    out = ["The circuit is linear and lumped: every element obeys its ideal constitutive law, "
+           "wires have no resistance, and nothing couples except through the drawn "
+           "connections.",
+           "Sources are ideal: a voltage source holds its voltage and a current source its "
+           "current whatever the load."]
+    if "nullor" in kinds:
+        out.append("Op-amps marked ideal have infinite gain, no input current and zero output "
+                   "resistance (no voltage between their inputs), and stay in their linear "
+                   "range.")
+    if any(e.internal and e.dependent for e in circuit.elements):
+        out.append("Finite-gain op-amps are modelled by a voltage-controlled source (and "
+                   "resistances where given); they stay in their linear range.")
+    if any(e.dependent and not e.internal for e in circuit.elements):
+        out.append("Dependent sources are small-signal models, valid about their operating "
+                   "point.")
+    if kinds & {"capacitor", "inductor", "impedance", "admittance"}:
+        out.append("Results with s are Laplace-domain transfer functions with zero initial "
+                   "conditions.")
+    return out
+
+
+def cautions(circuit) -> list:
+    """Cautions for hazardous voltages or stored energy (empty where none apply)."""
+    nominal = circuit.nominal_values()
+    high = []
+    for e in circuit.elements:
+        if e.kind == "vsource" and e.independent_source and e.value is not None:
+            v = e.value.xreplace(nominal)
+            if v.is_number and abs(float(v)) > ELV_LIMIT:
+                high.append(f"{e.name} ({format_eng(float(v), 'V')})")
+    words = " ".join([circuit.sheet.title or ""] + list(circuit.sheet.notes)).lower()
+    out = []
+    if high:
+        out.append("This circuit has sources above extra-low voltage (" + ", ".join(high) +
+                   "; limits of 50 V a.c. or 120 V ripple-free d.c. after IEC 61140, from "
+                   "memory). Contact with it can injure or kill. This record is a calculation "
+                   "only, not a safety assessment: insulation, clearances, creepage, fusing "
+                   "and protective earthing must follow the local electrical codes and the "
+                   "applicable product standards, and work on it is for qualified persons "
+                   "following licensed practice.")
+    if any(w in words for w in ("battery", "batteries", "mains", "cell pack")):
+        out.append("Batteries and mains supplies can deliver large fault currents and stored "
+                   "energy even at modest voltages: provide overcurrent protection close to "
+                   "the source and follow the local codes and the battery maker's handling "
+                   "instructions.")
+    return out
+
+
+def equation_view(eq) -> dict:
+    if isinstance(eq.lhs, sympy.MatMul) or isinstance(eq.rhs, sympy.MatrixBase):
+        lines = [to_latex(eq.lhs) + " &= " + to_latex(eq.rhs)]
+    else:
+        lines = equation_lines(eq.lhs, eq.rhs)
+    return {"lines": lines, "verified": bool(eq.verified),
+            "verified_by": eq.verified_by if eq.verified else None}
+
+
+def step_view(st) -> dict:
+    if isinstance(st, dict):
+        return {"text": st.get("text", ""), "equations": [], "table": None,
+                "verified": bool(st.get("verified")), "kind": "step"}
+    table = None
+    if st.table:
+        table = {"head": [str(c) for c in st.table[0]],
+                 "rows": [[str(c) for c in r] for r in st.table[1:]]}
+    eqs = [equation_view(e) for e in st.equations]
+    return {"text": st.text, "equations": eqs, "table": table,
+            "verified": bool(st.verified) and all(e["verified"] for e in eqs), "kind": st.kind}
+
+
+METHOD_WORDS = [("exact", "exactly (the difference cancels)"),
+                ("points", "at random rational points (exact rational arithmetic)"),
+                ("system", "against the stamped nodal system")]
+
+
+def verification_sentence(steps) -> str:
+    """How the displayed equations were verified, counted by method (empty if none)."""
+    counts: dict = {}
+    for s in steps:
+        for e in s["equations"]:
+            m = e["verified_by"] if e["verified"] else None
+            counts[m] = counts.get(m, 0) + 1
+    total = sum(counts.values())
+    if not total:
+        return ""
+    parts = [f"{counts[m]} {w}" for m, w in METHOD_WORDS if counts.get(m)]
+    head = f"Of the {total} equation{'s' if total != 1 else ''} displayed below, derive checked "
+    if parts:
+        text = head + (", ".join(parts[:-1]) + " and " + parts[-1] if len(parts) > 1
+                       else parts[0])
+    else:
+        text = f"Of the {total} equation{'s' if total != 1 else ''} displayed below, derive " \
+               "checked none"
+    n_def = counts.get("definition", 0)
+    if n_def:
+        text += f"; {n_def} {'are definitions' if n_def != 1 else 'is a definition'} (only " \
+                "naming a quantity)"
+    n_bad = counts.get(None, 0)
+    if n_bad:
+        text += f"; {n_bad} {'were' if n_bad != 1 else 'was'} not verified, and the steps " \
+                "holding them are not marked verified"
+    return text + "."
+
+
+def quantity_view(q) -> dict:
+    d = {"name": q.name, "latex_name": to_latex(sympy.Symbol(q.name)),
+         "value": _value_text(q.value, q.unit), "unit": q.unit}
+    if q.expr is not None:
+        d["lines"] = equation_lines(sympy.Symbol(q.name), q.expr)
+        d["latex"] = to_latex(q.expr)
+    else:
+        d["lines"] = []
+        d["latex"] = None
+    d["sequence"] = [equation_lines(s, e) for s, e in q.sequence] if q.expr is None else []
+    return d
+
+
+def view(record) -> dict:
+    c = record.circuit
+    results = []
+    for r in record.results:
+        figs = r.extra.get("figures") or []
+        results.append({"request": r.request.text, "notes": list(r.notes),
+                        "quantities": [quantity_view(q) for q in r.quantities.values()],
+                        "steps": [step_view(s) for s in r.steps],
+                        "figures": list(figs)})
+    all_steps = [s for r in results for s in r["steps"]]
+    return {"title": c.sheet.title or "Design calculation", "notes": list(c.sheet.notes),
+            "elements": elements(c), "assumptions": assumptions(c), "cautions": cautions(c),
+            "results": results,
+            "all_verified": all(s["verified"] for s in all_steps),
+            "n_equations": sum(len(s["equations"]) for s in all_steps),
+            "verification": verification_sentence(all_steps)}

@@ -1,0 +1,1 @@
+"""Stage 4: exact results in their best closed form (expanded, series-parallel, elimination sequence)."""

@@ -1,0 +1,219 @@
+"""Exact results as a short sequence of named intermediate quantities (node elimination).
+
+When the expanded rational function would be too large (a 4x4 resistor grid has 100 352
+spanning trees), a quantity ``c^T A^-1 b`` is found by eliminating the unknowns of the
+bordered system ``[[A, b], [c^T, 0]]`` one at a time (Gaussian elimination, pivots chosen
+to keep the fill low). Every updated matrix entry gets a name, ``q1 = Y22 - Y21*Y12/Y11``,
+the way a hand derivation introduces ``Rp = R2 || R3``; the result is the last entry.
+Each entry uses only names defined before it, so the sequence evaluates in order.
+"""
+from __future__ import annotations
+
+import random
+
+import sympy
+
+from derive.solver import convert as edge
+
+
+def _entry_expr(system, p):
+    """A ring polynomial entry as a sympy expression in circuit symbols (1/R for recips)."""
+    vals = [1 / v.expr if v.kind == "recip" else v.expr for v in system.vars]
+    return edge.poly_expr(p, vals)
+
+
+def _probe_point(syms):
+    rnd = random.Random(7)
+    return {s: sympy.Rational(rnd.randint(11, 97), rnd.randint(3, 17)) for s in syms}
+
+
+def eliminate(entries: dict, n: int, reserved: set, prefix="q"):
+    """Eliminate unknowns 0..n-1 of the (n+1)x(n+1) sparse system ``entries``.
+
+    Returns (sequence, final) with the last diagonal entry named; ``sequence`` is a list of
+    (Symbol, expr). Pivots are chosen by Markowitz cost among entries that are nonzero at a
+    probe point (so no pivot is identically zero).
+    """
+    rows: dict = {}
+    cols: dict = {}
+    for (i, j), v in entries.items():
+        if v != 0:
+            rows.setdefault(i, {})[j] = v
+            cols.setdefault(j, set()).add(i)
+    syms = set()
+    for v in entries.values():
+        syms |= v.free_symbols
+    point = _probe_point(syms)
+    seq = []
+    names = [0]
+    taken = {str(s) for s in syms} | set(reserved)
+
+    numval_sym: dict = {}
+
+    def name(expr):
+        if expr.is_Atom or (expr.is_Mul and len(expr.args) == 2 and expr.args[0].is_Number
+                             and expr.args[1].is_Atom) or len(str(expr)) <= 12:
+            return expr
+        names[0] += 1
+        while f"{prefix}{names[0]}" in taken:
+            names[0] += 1
+        s = sympy.Symbol(f"{prefix}{names[0]}")
+        seq.append((s, expr))
+        value = expr.xreplace(numval_sym).xreplace(point)
+        numval_sym[s] = sympy.nsimplify(value) if value.is_number and not value.is_Rational else value
+        return s
+
+    remaining = set(range(n))
+    rem_cols = set(range(n))
+    while remaining:
+        best = None
+        for r in remaining:
+            row = rows.get(r, {})
+            for c, v in row.items():
+                if c not in rem_cols:
+                    continue
+                val = v.xreplace(numval_sym).xreplace(point)
+                if val == 0:
+                    continue
+                cost = (len(row) - 1) * (len(cols.get(c, ())) - 1)
+                key = (cost, len(str(v)))
+                if best is None or key < best[0]:
+                    best = (key, r, c)
+        if best is None:
+            raise ZeroDivisionError("singular system")
+        _, r, c = best
+        p = rows[r][c]
+        prow = {j: v for j, v in rows[r].items() if j != c}
+        pcol = [i for i in cols.get(c, ()) if i != r]
+        for i in pcol:
+            f = rows[i].pop(c)
+            for j, x in prow.items():
+                old = rows[i].get(j, sympy.Integer(0))
+                new = old - f * x / p
+                if new == 0:
+                    rows[i].pop(j, None)
+                    cols.get(j, set()).discard(i)
+                else:
+                    rows[i][j] = name(new)
+                    cols.setdefault(j, set()).add(i)
+        for j in list(rows[r]):
+            cols.get(j, set()).discard(r)
+        del rows[r]
+        cols.pop(c, None)
+        remaining.discard(r)
+        rem_cols.discard(c)
+    final = rows.get(n, {}).get(n, sympy.Integer(0))
+    return seq, final
+
+
+def bordered_entries(system, col: dict, row: dict):
+    ent = {}
+    for i, r in enumerate(system.A.rows):
+        for j, v in r.items():
+            ent[(i, j)] = _entry_expr(system, v)
+    n = system.n
+    for i, v in col.items():
+        ent[(i, n)] = _entry_expr(system, v) if not isinstance(v, int) else sympy.Integer(v)
+    for j, v in row.items():
+        ent[(n, j)] = _entry_expr(system, v) if not isinstance(v, int) else sympy.Integer(v)
+    return ent
+
+
+def quantity_sequence(ctx, req, name):
+    """(sequence, final expression, value at nominal) for a port/branch quantity."""
+    from derive.forms.select import system_of
+    system = system_of(ctx)
+    base = {"rn": "rth", "resistance": "rth", "impedance": "rth", "voltage": "vth"}.get(name, name)
+    port = ctx.port(req.port) if req.port else None
+    reserved = set(ctx.circuit.symbols)
+    sign = -1
+    if base in ("vth", "gain", "isc"):
+        u = system.port_vector(*port)
+        b = system.rhs(only=req.source if base == "gain" else None)
+        seq, final = eliminate(bordered_entries(system, b, u), system.n, reserved)
+        final = -final
+        if base == "isc":
+            seq2, f2 = eliminate(bordered_entries(system, u, u), system.n,
+                                 reserved | {str(s) for s, _ in seq}, prefix="p")
+            seq = seq + seq2
+            final = final / (-f2)
+    elif base == "rth":
+        u = system.port_vector(*port)
+        seq, final = eliminate(bordered_entries(system, u, u), system.n, reserved)
+        final = -final
+    elif base == "current":
+        f = system.through(req.element)
+        b = system.rhs()
+        seq, final = eliminate(bordered_entries(system, b, f.coef), system.n, reserved)
+        final = _entry_expr(system, f.const) - final if not isinstance(f.const, int) else -final
+    else:
+        raise KeyError(name)
+    return seq, final, evaluate(seq, final, ctx.nominal)
+
+
+def evaluate(seq, final, nominal):
+    """Value of a sequence's result at nominal values (None if a symbol *of the result* has
+    none): exact rational arithmetic (:func:`exact_value`), a float only at the end."""
+    v = exact_value(seq, final, nominal)
+    return None if v is None else edge.exact_number(v)
+
+
+CANCEL_LIMIT = 4000     # operations: larger leftovers in missing symbols are not cancelled
+
+
+def exact_value(seq, final, point: dict):
+    """The exact value (a sympy number) of ``final`` after the named entries ``seq``, at
+    ``point`` (Symbol -> exact number); None where the result depends on a symbol that
+    ``point`` does not give.
+
+    Only the entries the result needs are evaluated. A symbol without a value that still
+    occurs may cancel (an element in series with a current source, a part across an ideal
+    voltage source): two exact evaluations with random rational values for the missing
+    symbols prove a dependence when they differ; otherwise the leftover is cancelled
+    exactly and decides.
+    """
+    needed = set(final.free_symbols)
+    for s, e in reversed(seq):
+        if s in needed:
+            needed |= e.free_symbols
+    names = {s for s, _ in seq}
+    used = [(s, e) for s, e in seq if s in needed]
+    missing = {x for x in needed - names if x not in point}
+
+    def run(env):
+        for s, e in used:
+            env[s] = e.xreplace(env)
+        return final.xreplace(env)
+
+    if missing:
+        rnd = random.Random(11)
+        probes = []
+        for _ in range(2):
+            env = dict(point)
+            env.update({x: sympy.Rational(rnd.randint(10 ** 5, 10 ** 6), rnd.randint(1, 997))
+                        for x in missing})
+            probes.append(run(env))
+        if all(p.is_Rational for p in probes) and probes[0] != probes[1]:
+            return None          # proven: the result depends on a missing symbol
+    v = run(dict(point))
+    if v.free_symbols:
+        if sympy.count_ops(v) > CANCEL_LIMIT:
+            return None
+        v = sympy.cancel(sympy.together(v))
+        if v.free_symbols:
+            return None
+    if not v.is_number or _bad(v):
+        return None
+    return v
+
+
+def _bad(v) -> bool:
+    return v.has(sympy.zoo, sympy.nan, sympy.oo, -sympy.oo)
+
+
+def inline(seq, final):
+    """The sequence substituted back into one expression (for short sequences)."""
+    e = final
+    for s, x in reversed(seq):
+        e = e.xreplace({s: x})
+    return e

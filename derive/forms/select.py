@@ -1,0 +1,162 @@
+"""Port and branch quantities in their best exact form.
+
+For each quantity the expanded cancelled rational function is computed when the
+determinants are of moderate size (estimated before expanding); a nested series-parallel
+form is derived where the network reduces that way; otherwise a sequence of named
+intermediate quantities (node elimination). The shortest exact form becomes ``expr``.
+"""
+from __future__ import annotations
+
+import sympy
+
+from derive.solver import convert as edge
+from derive.errors import SheetError
+from derive.solver.determinant import estimate_det_terms
+from derive.solver.stamping import System
+from derive.solver.cramer import Solver
+
+GROUPS = {"thevenin": ["vth", "rth"], "norton": ["isc", "rn"]}
+UNITS = {"vth": "V", "rth": "ohm", "isc": "A", "rn": "ohm", "resistance": "ohm",
+         "impedance": "ohm", "voltage": "V", "current": "A"}
+TWIN = {"rn": "rth", "resistance": "rth", "impedance": "rth", "voltage": "vth"}
+
+
+def system_of(ctx) -> System:
+    if "system" not in ctx.cache:
+        ctx.cache["system"] = System(ctx.circuit, ctx.numeric_subs())
+    return ctx.cache["system"]
+
+
+def _solver(ctx, req) -> Solver:
+    system = system_of(ctx)
+    return Solver(system, ctx.options.max_terms, req.loc)
+
+
+def expandable(ctx) -> bool:
+    if "expandable" not in ctx.cache:
+        ctx.cache["expandable"] = estimate_det_terms(system_of(ctx).A) <= ctx.options.expand_limit
+    return ctx.cache["expandable"]
+
+
+def gain_unit(ctx, source):
+    e = ctx.circuit.element(source)
+    return "V/V" if e.kind == "vsource" else "ohm"
+
+
+def names_for(req):
+    return GROUPS.get(req.quantity, [req.quantity])
+
+
+def port_quantities(ctx, req) -> list:
+    """Results of a thevenin/norton/vth/.../current/gain request (a list of QuantityResult)."""
+    from derive.analyses.run import QuantityResult
+    out = []
+    for name in names_for(req):
+        unit = gain_unit(ctx, req.source) if name == "gain" else UNITS[name]
+        ratio = exact_ratio(ctx, req, name) if expandable(ctx) else None
+        q = QuantityResult(name, None, None, unit, ratio=ratio)
+        if ratio is not None:
+            q.value = edge.value_at(ratio, ctx.nominal)
+            if ratio.terms() <= READABLE_TERMS:
+                q.expr = edge.to_sympy(ratio)
+        compact(ctx, req, q)
+        if q.expr is None and ratio is not None and ratio.terms() <= LARGEST_EXPANDED:
+            q.expr, q.form = edge.to_sympy(ratio), "expanded"
+        if q.expr is None and not q.sequence:
+            raise SheetError(f"no closed form of {name} could be derived", req.loc.line, req.loc.col)
+        out.append(q)
+    if req.quantity in ("thevenin", "norton") and expandable(ctx):
+        cross_check(ctx, req)
+    return out
+
+
+def _reactive(ctx) -> bool:
+    return any(e.kind in ("capacitor", "inductor", "impedance", "admittance")
+               for e in ctx.circuit.elements)
+
+
+def exact_ratio(ctx, req, name):
+    """The exact Ratio of quantity ``name`` of a request (None where it does not exist)."""
+    key = ("ratio", name, req.port, req.element, req.source)
+    if key in ctx.cache:
+        return ctx.cache[key]
+    solver = _solver(ctx, req)
+    port = ctx.port(req.port) if req.port else None
+    base = TWIN.get(name, name)
+    if base == "vth":
+        r = solver.vth(port)
+    elif base == "rth":
+        r = solver.rth(port)
+    elif base == "isc":
+        r = solver.isc(port)
+        if r is None:
+            raise SheetError(f"port {req.port!r} is directly across an ideal voltage source: "
+                             "its resistance is 0 and no finite short-circuit current exists",
+                             req.loc.line, req.loc.col)
+    elif base == "current":
+        r = solver.current(req.element)
+    elif base == "gain":
+        r = solver.vth(port, only=req.source)
+    else:
+        raise KeyError(name)
+    ctx.cache[key] = r
+    return r
+
+
+def cross_check(ctx, req):
+    """vth = isc * rth, exactly, wherever both exist."""
+    solver = _solver(ctx, req)
+    port = ctx.port(req.port)
+    rth = solver.rth(port)
+    if rth.is_zero:
+        return True
+    isc = solver.isc(port)
+    vth = solver.vth(port)
+    if isc is None or not vth.equals(isc * rth):
+        raise AssertionError(f"internal check failed: vth != isc*rth at port {req.port}")
+    return True
+
+
+def compact(ctx, req, q):
+    """Attach the series-parallel or elimination-sequence form when it is better."""
+    from derive.forms import series_parallel as reduce
+    from derive.forms import elimination as sequence
+    if req.quantity != "current":
+        sp = reduce.port_form(ctx, req, q.name)
+        if sp is not None:
+            defs, final = sp
+            nested = sequence.inline(defs, final) if _inline_size(defs, final) <= INLINE_LIMIT \
+                else None
+            if nested is not None and (q.expr is None or len(str(nested)) < len(str(q.expr))):
+                q.expr, q.form = nested, "series-parallel"
+            elif q.expr is None:
+                q.form = "series-parallel"
+            if q.expr is None or (defs and len(defs) > 1 and q.form == "series-parallel"):
+                q.sequence, q.in_sequence = defs, final
+            if q.ratio is None:
+                q.value = sequence.evaluate(defs, final, ctx.nominal)
+            return
+    if q.expr is None:
+        seq, final, value = sequence.quantity_sequence(ctx, req, q.name)
+        q.sequence, q.in_sequence, q.form = seq, final, "sequence"
+        q.value = value
+        if _inline_size(seq, final) <= 2000:
+            q.expr = sequence.inline(seq, final)
+
+
+INLINE_LIMIT = 20000        # characters: the JSON contract's "unreasonably large"
+READABLE_TERMS = 400        # expanded forms up to this many terms are shown as such
+LARGEST_EXPANDED = 3000     # beyond this the expanded form is never written out
+
+
+def _inline_size(defs, final) -> int:
+    """Length of the expression with every name substituted back (without building it)."""
+    size = {}
+    for s, e in defs:
+        txt = len(str(e))
+        size[s] = txt + sum((size[x] - len(str(x))) * str(e).count(str(x))
+                            for x in e.free_symbols if x in size)
+        if size[s] > 10 * INLINE_LIMIT:
+            size[s] = 10 * INLINE_LIMIT
+    return len(str(final)) + sum((size[x] - len(str(x))) * str(final).count(str(x))
+                                 for x in final.free_symbols if x in size)

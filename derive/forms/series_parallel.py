@@ -1,0 +1,296 @@
+"""Series-parallel reduction with source transformations, as a hand derivation does it.
+
+Every element becomes a *branch* between two nodes: a Thévenin branch ``V_ab = E + Z*i``
+(resistor, inductor, impedance, voltage source ...) or an ideal current branch ``i = K``
+(current source). Repeatedly:
+
+* two branches between the same nodes combine in parallel
+  (``Z = Z1*Z2/(Z1+Z2)``, ``E = (E1*Z2 + E2*Z1)/(Z1+Z2)``: both sources transformed to
+  current sources, added, and transformed back);
+* two branches meeting at a node nothing else touches combine in series
+  (``E = E1 + E2``, ``Z = Z1 + Z2``);
+* a branch hanging from a node nothing else touches carries no current and is dropped.
+
+If the port's two nodes end up joined by one branch, that branch is the Thévenin
+equivalent: ``vth = E``, ``rth = Z``. Circuits with dependent sources or op-amps are not
+reduced this way (they go to nodal analysis).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import sympy
+
+from derive.circuit.build import S
+
+
+@dataclass
+class Branch:
+    name: str
+    a: str
+    b: str
+    E: sympy.Expr = sympy.Integer(0)     # Thévenin voltage (a relative to b, open)
+    Z: sympy.Expr = sympy.Integer(0)     # impedance
+    K: sympy.Expr = None                 # current a->b of an ideal current branch
+    members: list = field(default_factory=list)
+
+    @property
+    def ideal_current(self) -> bool:
+        return self.K is not None
+
+    def flipped(self) -> "Branch":
+        return Branch(self.name, self.b, self.a, -self.E, self.Z,
+                      None if self.K is None else -self.K, self.members)
+
+
+def _src(name):
+    return sympy.Symbol(f"_src_{name}")
+
+
+def branches_of(circuit, subs=None):
+    """Branches of a circuit, or None if it has parts that are not two-terminal."""
+    out = []
+    for e in circuit.elements:
+        if e.controls or e.kind == "nullor":
+            return None
+        v = e.value.xreplace(subs) if subs and e.value is not None else e.value
+        a, b = e.nodes
+        z = {"resistor": lambda: v, "inductor": lambda: S * v, "impedance": lambda: v,
+             "capacitor": lambda: 1 / (S * v), "conductance": lambda: 1 / v,
+             "admittance": lambda: 1 / v}.get(e.kind)
+        if z is not None:
+            out.append(Branch(e.name, a, b, sympy.Integer(0), z(), None, [e.name]))
+        elif e.kind == "vsource":
+            out.append(Branch(e.name, a, b, _src(e.name), sympy.Integer(0), None, [e.name]))
+        elif e.kind == "isource":
+            out.append(Branch(e.name, a, b, sympy.Integer(0), sympy.oo, _src(e.name), [e.name]))
+    return out
+
+
+def is_open(b: Branch) -> bool:
+    """A branch of infinite impedance without a source (e.g. a conductance of value 0)."""
+    return not b.ideal_current and b.Z in (sympy.zoo, sympy.oo) and b.E == 0
+
+
+def parallel(x: Branch, y: Branch, name) -> Branch:
+    if y.a != x.a:
+        y = y.flipped()
+    if x.ideal_current and y.ideal_current:
+        return Branch(name, x.a, x.b, K=x.K + y.K, Z=sympy.oo, members=x.members + y.members)
+    if x.ideal_current or y.ideal_current:
+        i, t = (x, y) if x.ideal_current else (y, x)
+        return Branch(name, t.a, t.b, t.E - i.K * t.Z, t.Z, members=x.members + y.members)
+    for o, k in ((x, y), (y, x)):       # an open (infinite impedance, no source) drops out
+        if is_open(o):
+            return Branch(name, k.a, k.b, k.E, k.Z, members=x.members + y.members)
+    if x.Z == 0:
+        return Branch(name, x.a, x.b, x.E, x.Z, members=x.members + y.members)
+    if y.Z == 0:
+        return Branch(name, y.a, y.b, y.E, y.Z, members=x.members + y.members)
+    den = x.Z + y.Z
+    return Branch(name, x.a, x.b, (x.E * y.Z + y.E * x.Z) / den, x.Z * y.Z / den,
+                  members=x.members + y.members)
+
+
+def series(x: Branch, y: Branch, mid, name) -> Branch:
+    if x.b != mid:
+        x = x.flipped()
+    if y.a != mid:
+        y = y.flipped()
+    if x.ideal_current:
+        return Branch(name, x.a, y.b, K=x.K, Z=sympy.oo, members=x.members + y.members)
+    if y.ideal_current:
+        return Branch(name, x.a, y.b, K=y.K, Z=sympy.oo, members=x.members + y.members)
+    return Branch(name, x.a, y.b, x.E + y.E, x.Z + y.Z, members=x.members + y.members)
+
+
+class Namer:
+    """Names for the intermediate quantities of a reduction (``Zeq1``, ``Veq1``, ...),
+    avoiding the circuit's own symbols; ``defs`` lists (Symbol, expression) in order."""
+
+    def __init__(self, reserved=()):
+        self.reserved = set(reserved)
+        self.count = 0
+        self.defs = []
+
+    def branch_name(self):
+        self.count += 1
+        return f"{self.count}"
+
+    def name(self, kind, tag, expr):
+        if expr.is_Atom or (expr.is_Mul and len(expr.args) == 2 and expr.args[0].is_Number
+                             and expr.args[1].is_Atom):
+            return expr
+        base = f"{kind}eq{tag}"
+        while base in self.reserved:
+            base += "_"
+        sym = sympy.Symbol(base)
+        self.defs.append((sym, expr))
+        return sym
+
+    def named(self, b: "Branch") -> "Branch":
+        b.Z = b.Z if b.Z is sympy.oo else self.name("Z", b.name, b.Z)
+        b.E = self.name("V", b.name, b.E)
+        if b.K is not None:
+            b.K = self.name("I", b.name, b.K)
+        return b
+
+
+def reduce_to_port(branches, plus, minus, namer: Namer | None = None):
+    """(branch between plus and minus, moves) or (None, moves) if not reducible."""
+    live = list(branches)
+    moves = []
+    namer = namer or Namer()
+
+    def new_name():
+        return namer.branch_name()
+
+    changed = True
+    while changed:
+        changed = False
+        live = [b for b in live if b.a != b.b]
+        pairs = {}
+        for b in live:
+            k = frozenset((b.a, b.b))
+            if k in pairs:
+                x = pairs[k]
+                nb = namer.named(parallel(x, b, new_name()))
+                live = [z for z in live if z is not x and z is not b] + [nb]
+                moves.append({"move": "parallel", "parts": [x, b], "result": nb})
+                changed = True
+                break
+            pairs[k] = b
+        if changed:
+            continue
+        ends = {}
+        for b in live:
+            for n in (b.a, b.b):
+                ends.setdefault(n, []).append(b)
+        for n, bs in ends.items():
+            if n in (plus, minus):
+                continue
+            if len(bs) == 1:
+                live = [z for z in live if z is not bs[0]]
+                moves.append({"move": "drop", "parts": bs, "result": None, "node": n})
+                changed = True
+                break
+            if len(bs) == 2:
+                x, y = bs
+                nb = namer.named(series(x, y, n, new_name()))
+                live = [z for z in live if z is not x and z is not y] + [nb]
+                moves.append({"move": "series", "parts": [x, y], "result": nb, "node": n})
+                changed = True
+                break
+    if len(live) == 1 and {live[0].a, live[0].b} == {plus, minus}:
+        b = live[0] if live[0].a == plus else live[0].flipped()
+        return b, moves
+    return None, moves
+
+
+def zeroed(branches):
+    """Independent sources set to zero: voltage sources become shorts (their nodes merge),
+    current sources open (removed)."""
+    parent = {}
+
+    def find(x):
+        while parent.get(x, x) != x:
+            x = parent[x]
+        return x
+
+    for b in branches:
+        if b.E != 0 and b.Z == 0 and not b.ideal_current:
+            parent[find(b.a)] = find(b.b)
+    out = []
+    for b in branches:
+        if b.ideal_current or (b.Z == 0 and b.E != 0):
+            continue
+        out.append(Branch(b.name, find(b.a), find(b.b), sympy.Integer(0), b.Z, None, b.members))
+    return out, find
+
+
+def source_values(circuit, subs=None, only=None, none=False):
+    out = {}
+    for e in circuit.elements:
+        if e.independent_source:
+            v = e.value.xreplace(subs) if subs else e.value
+            out[_src(e.name)] = sympy.Integer(0) if none else (
+                v if only is None else sympy.Integer(int(e.name == only)))
+    return out
+
+
+def port_form(ctx, req, name):
+    """(definitions, result) of a port quantity by reduction, or None where the network
+    does not reduce. ``definitions`` are the named intermediate quantities in order."""
+    base = {"rn": "rth", "resistance": "rth", "impedance": "rth", "voltage": "vth"}.get(name, name)
+    if req.port is None:
+        return None
+    subs = ctx.numeric_subs()
+    if base == "rth":
+        res = reduction(ctx, req.port, zero=True)
+        if res is None or res[0] is None or res[0].ideal_current:
+            return None
+        return tidy(res[2], res[0].Z, {})
+    res = reduction(ctx, req.port, zero=False)
+    if res is None or res[0] is None or res[0].ideal_current:
+        return None
+    b, defs = res[0], res[2]
+    if base == "vth":
+        return tidy(defs, b.E, source_values(ctx.circuit, subs))
+    if base == "gain":
+        return tidy(defs, b.E, source_values(ctx.circuit, subs, only=req.source))
+    if base == "isc":
+        if b.Z == 0:
+            return None
+        return tidy(defs, b.E / b.Z, source_values(ctx.circuit, subs))
+    return None
+
+
+def tidy(defs, final, values):
+    """Substitute source values into a definition list; fold definitions that become
+    trivial, drop the ones the result does not need."""
+    env = dict(values)
+    kept = []
+    for sym, e in defs:
+        e = e.xreplace(env)
+        if e.is_Atom or (e.is_Mul and len(e.args) == 2 and e.args[0].is_Number and e.args[1].is_Atom):
+            env[sym] = e
+        else:
+            kept.append((sym, e))
+    final = final.xreplace(env)
+    need = set(final.free_symbols)
+    out = []
+    for sym, e in reversed(kept):
+        if sym in need:
+            out.append((sym, e))
+            need |= e.free_symbols
+    return list(reversed(out)), final
+
+
+def reduction(ctx, port, zero: bool):
+    """Cached (branch, moves) of the network seen from ``port`` (sources zeroed with
+    ``zero``), or None where it has parts that are not two-terminal."""
+    key = ("sp", port, zero)
+    if key not in ctx.cache:
+        bs = branches_of(ctx.circuit, ctx.numeric_subs())
+        res = None
+        if bs is not None:
+            plus, minus = ctx.port(port)
+            if zero:
+                bs, find = zeroed(bs)
+                plus, minus = find(plus), find(minus)
+                if plus == minus:
+                    res = (Branch("short", plus, minus, sympy.Integer(0), sympy.Integer(0)), [], [])
+            if res is None:
+                namer = Namer(ctx.circuit.symbols)
+                res = reduce_to_port(bs, plus, minus, namer) + (namer.defs,)
+        ctx.cache[key] = res
+    return ctx.cache[key]
+
+
+def value_of(ctx, expr):
+    """Value at nominal values (None if a symbol has none)."""
+    v = expr.xreplace(ctx.nominal)
+    if v.free_symbols:
+        return None
+    v = complex(sympy.N(v, 17))
+    return v.real if v.imag == 0 else v

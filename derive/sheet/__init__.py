@@ -1,0 +1,1 @@
+"""Stage 1: sheet text -> parse tree -> sheet model (grammar, parser, units, expressions)."""

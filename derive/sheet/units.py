@@ -1,0 +1,248 @@
+"""Numbers with SI prefixes, IEC 60062 codes and unit words, all exact; engineering format.
+
+Everything here works on text and returns :class:`fractions.Fraction` values, so ``4.7u``
+is exactly 47/10000000.  Errors are :class:`UnitError` (a :class:`~derive.errors.SheetError`
+without a location); ``part`` ('number' or 'word') and ``offset`` say where in the text the
+problem is, so the parser can point at it.
+
+>>> parse_number("4k7").value
+Fraction(4700, 1)
+>>> parse_quantity("10", "kohm")
+(Fraction(10000, 1), 'ohm')
+>>> parse_quantity("4.7uF")
+(Fraction(47, 10000000), 'F')
+"""
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass
+from fractions import Fraction
+from typing import Optional
+
+from derive.errors import SheetError
+
+# SI prefixes (SI Brochure, 9th edition, Table 7), the subset the sheet language accepts.
+PREFIXES = {
+    "f": Fraction(1, 10**15),
+    "p": Fraction(1, 10**12),
+    "n": Fraction(1, 10**9),
+    "u": Fraction(1, 10**6),
+    "\u00b5": Fraction(1, 10**6),   # MICRO SIGN
+    "\u03bc": Fraction(1, 10**6),   # GREEK SMALL LETTER MU
+    "m": Fraction(1, 10**3),
+    "k": Fraction(10**3),
+    "M": Fraction(10**6),
+    "G": Fraction(10**9),
+    "T": Fraction(10**12),
+}
+
+# unit words -> canonical unit
+UNITS = {
+    "ohm": "ohm", "ohms": "ohm", "\u03a9": "ohm", "\u2126": "ohm",
+    "S": "S", "F": "F", "H": "H", "V": "V", "A": "A", "Hz": "Hz",
+}
+
+# letters of the IEC 60062 code (the letter stands for the decimal point): R for ohms,
+# k M G T for resistors, p n u µ m for capacitors.
+CODE_LETTERS = {"R": Fraction(1), **{k: v for k, v in PREFIXES.items() if k != "f"}}
+
+_NUMBER_RE = re.compile(r"(\d+(?:\.\d*)?|\.\d+)([eE][+-]?\d+)?(.*)\Z", re.S)
+_CODE_RE = re.compile(r"([A-Za-z\u00b5\u03bc])(\d+)(.*)\Z", re.S)
+_CASE_HINTS = {"ohm": "ohm", "siemens": "S", "f": "F", "h": "H", "v": "V", "a": "A",
+               "hz": "Hz", "s": "S"}
+
+
+class UnitError(SheetError):
+    """A bad number suffix or unit word.
+
+    ``kind`` is 'unknown' (the text is no prefix or unit at all, e.g. the ``R`` of ``2R``)
+    or 'bad' (a known mistake such as ``K`` or ``meg``).
+    """
+
+    def __init__(self, message: str, *, kind: str = "bad", part: str = "number",
+                 offset: int = 0, hint: Optional[str] = None, text: str = ""):
+        super().__init__(message, hint=hint)
+        self.kind = kind
+        self.part = part
+        self.offset = offset
+        self.text = text
+
+
+@dataclass(frozen=True)
+class Number:
+    """A parsed number token.
+
+    ``form`` is 'plain' (``4.7``), 'prefix' (``10k``), 'unit' (``5V``, ``10kohm``),
+    'code' (``4k7``, ``2R2``) or 'rcode' (``47R``: an IEC code that is also a number
+    followed by the name ``R``).
+    """
+    value: Fraction
+    unit: Optional[str]
+    form: str
+    number_text: str
+    suffix: str
+
+
+def parse_decimal(text: str) -> Fraction:
+    """Decimal text (``4.7``, ``.5``, ``1e-3``) as an exact fraction.
+
+    >>> parse_decimal("4.7") * Fraction(1, 10**6) == Fraction(47, 10**7)
+    True
+    """
+    return Fraction(text)
+
+
+def _hint_for(word: str) -> tuple[str, Optional[str]]:
+    """The message and hint for a word that is neither a prefix nor a unit."""
+    if word.startswith("meg") or word.startswith("Meg"):
+        return f"'{word[:3]}' is not an SI prefix", "use M for mega (1M, 1 Mohm)"
+    if word.startswith("K"):
+        return "'K' is not an SI prefix", "use k for kilo (10k, 10 kohm, 4k7)"
+    low = word.lower()
+    for candidate in (low, low[1:] if len(low) > 1 and word[0] in PREFIXES else None):
+        if candidate and candidate in _CASE_HINTS:
+            unit = _CASE_HINTS[candidate]
+            pre = word[0] if candidate != low else ""
+            return (f"'{word}' is not a unit",
+                    f"unit words are case-sensitive: write {pre}{unit}")
+    return f"'{word}' is not a unit or SI prefix", None
+
+
+def split_unit(word: str, *, attached: bool) -> tuple[Fraction, Optional[str], str]:
+    """Split a prefix/unit word into (factor, canonical unit or None, form).
+
+    ``attached`` says the word was written right after the digits; only then may it be a
+    prefix alone (``10k``).  Raises :class:`UnitError`.
+
+    >>> split_unit("kohm", attached=False)
+    (Fraction(1000, 1), 'ohm', 'unit')
+    >>> split_unit("mS", attached=True)
+    (Fraction(1, 1000), 'S', 'unit')
+    """
+    if word in UNITS:
+        return Fraction(1), UNITS[word], "unit"
+    if word in PREFIXES:
+        if attached:
+            return PREFIXES[word], None, "prefix"
+        raise UnitError(f"'{word}' is not a unit", kind="unknown", part="word", text=word,
+                        hint=f"write the prefix right after the number (10{word}), "
+                             f"or give a unit ({word}ohm, {word}F, ...)")
+    if len(word) > 1 and word[0] in PREFIXES and word[1:] in UNITS:
+        return PREFIXES[word[0]], UNITS[word[1:]], "unit"
+    message, hint = _hint_for(word)
+    known = word.startswith(("K", "meg", "Meg")) or hint is not None
+    raise UnitError(message, kind="bad" if known else "unknown",
+                    part="number" if attached else "word", text=word, hint=hint)
+
+
+def parse_number(text: str) -> Number:
+    """Parse a number token: digits, optional exponent, optional suffix written after them.
+
+    >>> parse_number("10k").value, parse_number("2R2").value, parse_number("1M5").value
+    (Fraction(10000, 1), Fraction(11, 5), Fraction(1500000, 1))
+    >>> parse_number("5V").unit
+    'V'
+    """
+    m = _NUMBER_RE.match(text)
+    if not m:
+        raise UnitError(f"'{text}' is not a number", kind="unknown", text=text)
+    digits, exponent, suffix = m.group(1), m.group(2) or "", m.group(3)
+    number_text = digits + exponent
+    value = parse_decimal(number_text)
+    if not suffix:
+        return Number(value, None, "plain", number_text, "")
+    offset = len(number_text)
+    code = _CODE_RE.match(suffix)
+    if code and code.group(1) in CODE_LETTERS and not exponent:
+        letter, tail, rest = code.groups()
+        if "." in digits:
+            raise UnitError(f"the resistor code '{text}' cannot have a decimal point",
+                            offset=offset, text=text,
+                            hint="the code letter is the decimal point: 4k7 = 4.7k")
+        value = parse_decimal(f"{digits}.{tail}") * CODE_LETTERS[letter]
+        unit = None
+        if rest:
+            if rest not in UNITS:
+                message, hint = _hint_for(rest)
+                raise UnitError(message, offset=offset + 1 + len(tail), text=rest, hint=hint)
+            unit = UNITS[rest]
+        return Number(value, unit, "code", number_text, suffix)
+    if suffix == "R" and not exponent and "." not in digits:
+        return Number(value, None, "rcode", number_text, suffix)
+    try:
+        factor, unit, form = split_unit(suffix, attached=True)
+    except UnitError as e:
+        e.offset, e.part = offset, "number"
+        raise
+    return Number(value * factor, unit, form, number_text, suffix)
+
+
+def parse_quantity(number: str, word: Optional[str] = None) -> tuple[Fraction, Optional[str]]:
+    """A number token and an optional separate unit word -> (exact value, canonical unit).
+
+    >>> parse_quantity("100", "nF")
+    (Fraction(1, 10000000), 'F')
+    >>> parse_quantity("10k", "ohm")
+    (Fraction(10000, 1), 'ohm')
+    """
+    n = parse_number(number)
+    if word is None:
+        return n.value, n.unit
+    if n.form in ("unit", "rcode") or (n.form == "code" and n.unit):
+        raise UnitError(f"'{word}' follows a number that already has a unit or code",
+                        part="word", text=word)
+    factor, unit, _ = split_unit(word, attached=False)
+    if n.form in ("prefix", "code") and factor != 1:
+        raise UnitError(f"two prefixes: '{n.suffix}' and '{word[0]}'", part="word", text=word)
+    return n.value * factor, unit
+
+
+# ------------------------------------------------------------------ formatting
+_ENG_PREFIX = {-15: "f", -12: "p", -9: "n", -6: "\u00b5", -3: "m", 0: "", 3: "k", 6: "M",
+               9: "G", 12: "T"}
+_UNIT_SHOWN = {"ohm": "\u03a9"}
+
+
+def format_eng(value, unit: Optional[str] = None, digits: int = 3) -> str:
+    """``value`` in engineering notation with ``digits`` significant digits and a prefix.
+
+    >>> format_eng(4700, 'ohm')
+    '4.70 kΩ'
+    >>> format_eng(0.0125, 'V')
+    '12.5 mV'
+    >>> format_eng(-1e-7, 'F')
+    '-100 nF'
+    >>> format_eng(999.96, 'Hz')
+    '1.00 kHz'
+    >>> format_eng(0, 'A')
+    '0.00 A'
+    >>> format_eng(2.2e5, None)
+    '220k'
+    >>> format_eng(3e20, 'V')
+    '3.00e+20 V'
+    """
+    digits = max(int(digits), 1)
+    shown_unit = _UNIT_SHOWN.get(unit, unit) if unit else ""
+    x = float(value)
+    sep = " " if shown_unit else ""
+    if math.isnan(x) or math.isinf(x):
+        return f"{x}{sep}{shown_unit}"
+    if x == 0:
+        return f"{0:.{digits - 1}f}{sep}{shown_unit}"
+    sign = "-" if x < 0 else ""
+    x = abs(x)
+    # round to the significant digits first (999.96 -> 1.00e+03), then move the point
+    mant_text, exp_text = f"{x:.{digits - 1}e}".split("e")
+    exp10 = int(exp_text)
+    exp3 = 3 * (exp10 // 3)
+    if exp3 not in _ENG_PREFIX:
+        return f"{sign}{mant_text}e{exp_text}{sep}{shown_unit}"
+    all_digits = mant_text.replace(".", "")
+    int_digits = exp10 - exp3 + 1                   # 1, 2 or 3 digits before the point
+    all_digits = all_digits.ljust(int_digits, "0")
+    head, tail = all_digits[:int_digits], all_digits[int_digits:]
+    number = f"{head}.{tail}" if tail else head
+    prefix = _ENG_PREFIX[exp3]
+    unit_part = f" {prefix}{shown_unit}" if shown_unit else prefix
+    return f"{sign}{number}{unit_part}"
