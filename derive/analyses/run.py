@@ -111,18 +111,45 @@ def analyse(circuit: Circuit, options: Options | None = None) -> list:
     ctx = Context(circuit, options)
     results = []
     for req in circuit.requests:
-        key = req.analysis or req.statement
-        fn = HANDLERS.get(key) if key in ("sensitivity", "tolerance", "solve", "check") \
-            else HANDLERS.get(req.quantity)
-        if fn is None:
-            what = key if key in ("sensitivity", "tolerance", "solve", "check") else req.quantity
-            raise NotAvailableYet(f"'{what}' requests are not available yet", req.loc.line,
-                                  req.loc.col)
+        fn = handler_for(req)
         result = fn(ctx, req)
         if substituted:
             model_reuse.annotate(ctx, req, result, fn)
         results.append(result)
     return results
+
+
+# how a request kind is named in the "not available yet" message
+_SHOWN = {"operating_point": "find operating point", "stress": "find stress",
+          "noise": "find noise", "power": "power in", "choose": "choose",
+          "drift": "find drift of", "budget": "find budget of"}
+
+
+def handler_for(req) -> Handler:
+    """The handler of one request, or a located :class:`NotAvailableYet`.
+
+    A plain ``find Q`` goes to the handler of its quantity word; ``find ANALYSIS of Q``,
+    ``solve``, ``check`` and ``choose`` go to the handler of the analysis or statement, and
+    need the quantity itself to be computable too (so ``find sensitivity of power in R1``
+    is refused while ``power in`` has no handler). ``approximately within`` needs a handler
+    registered under 'approximately'.
+    """
+    kind = req.analysis or (None if req.statement == "find" else req.statement)
+    if kind is None:
+        fn, missing = HANDLERS.get(req.quantity), req.quantity
+    elif req.quantity not in HANDLERS:
+        fn, missing = None, req.quantity
+    else:
+        fn, missing = HANDLERS.get(kind), kind
+    if fn is None:
+        what = _SHOWN.get(missing, missing)
+        raise NotAvailableYet(f"'{what}' requests are not available yet", req.loc.line,
+                              req.loc.col)
+    if getattr(req, "within", None) is not None and "approximately" not in HANDLERS:
+        loc = req.name_locs.get("within", req.loc)
+        raise NotAvailableYet("'approximately within' is not available yet", loc.line,
+                              loc.col)
+    return fn
 
 
 def _load_handlers():

@@ -70,6 +70,10 @@ class CElement:
     controls: list = field(default_factory=list)
     internal: bool = False
     part_of: Optional[str] = None
+    # the sheet statement (model.Element or model.OpAmp) this element was built from: it
+    # carries the design-review attributes (ratings, tc, noiseless, op-amp noise) through
+    # flattening; None for elements made by later stages
+    origin: object = None
 
     @property
     def key(self) -> str:
@@ -192,10 +196,11 @@ class _Builder:
         if st.kind in ("vsource", "isource") and st.value is not None and st.value.expr is not None \
                 and mapped is None and _has_control(st.value.expr):
             controls = self.controls(st.value.expr, scope, st.loc)
-            self.elements.append(CElement(name, st.kind, nodes, None, st.loc, controls))
+            self.elements.append(CElement(name, st.kind, nodes, None, st.loc, controls,
+                                          origin=st))
             return
         value = self.value_of(name, st.kind, st.value, scope, st.loc, mapped)
-        self.elements.append(CElement(name, st.kind, nodes, value, st.loc))
+        self.elements.append(CElement(name, st.kind, nodes, value, st.loc, origin=st))
 
     def controls(self, expr, scope: _Scope, loc: Loc) -> list:
         placeholders: dict[sympy.Symbol, Control] = {}
@@ -246,20 +251,21 @@ class _Builder:
 
         if st.rin is not None:
             self.elements.append(CElement(f"{name}.rin", "resistor", (inp, inn),
-                                          part("rin", st.rin), st.loc, internal=True, part_of=name))
+                                          part("rin", st.rin), st.loc, internal=True, part_of=name,
+                                          origin=st))
         drive = out if st.rout is None else f"{name}.x"
         if st.gain is None:
             self.elements.append(CElement(name, "nullor", (inp, inn, drive), None, st.loc,
-                                          part_of=name))
+                                          part_of=name, origin=st))
         else:
             a = part("gain", st.gain)
             self.elements.append(CElement(f"{name}.out", "vsource", (drive, self.ground), None,
                                           st.loc, [(a, Control("across", nodes=(inp, inn)))],
-                                          internal=True, part_of=name))
+                                          internal=True, part_of=name, origin=st))
         if st.rout is not None:
             self.elements.append(CElement(f"{name}.rout", "resistor", (drive, out),
                                           part("rout", st.rout), st.loc, internal=True,
-                                          part_of=name))
+                                          part_of=name, origin=st))
 
     def add_use(self, st: Use, scope: _Scope, stack: tuple):
         block = self.sheet.blocks.get(st.block)

@@ -77,7 +77,9 @@ class Tolerance:
 class Quantity:
     """A number with an optional unit word, in SI base units (``4.7 kohm`` -> 4700, 'ohm').
 
-    ``unit`` is the canonical unit: one of 'ohm', 'S', 'F', 'H', 'V', 'A', 'Hz', or None.
+    ``unit`` is the canonical unit: one of 'ohm', 'S', 'F', 'H', 'V', 'A', 'Hz', or None;
+    in the design-review statements (SHEET.md section 5: a ``choose`` target, a band) also
+    'W' (watt).
     """
     value: Fraction
     unit: Optional[str]
@@ -115,6 +117,12 @@ class Element:
     node_locs: tuple
     value: Optional[Value]
     loc: Loc
+    # design-review attributes (SHEET.md section 5), exact; None where not given
+    power_rating: Optional[Fraction] = None     # W   (``rated 0.25 W``; resistors)
+    voltage_rating: Optional[Fraction] = None   # V   (``rated 50 V``; R, C, L)
+    tc: Optional[Fraction] = None               # 1/K (``tc 100 ppm/K`` -> Fraction(1, 10000))
+    noiseless: bool = False                     # ``noiseless`` (resistors)
+    attr_locs: dict = field(default_factory=dict)   # 'power_rating'/'voltage_rating'/'tc'/'noiseless' -> Loc
 
 
 @dataclass
@@ -132,6 +140,11 @@ class OpAmp:
     rin: Optional[Value]
     rout: Optional[Value]
     loc: Loc
+    # ``noise 4 nV/rtHz and 0.5 pA/rtHz``: input-referred white noise densities, exact;
+    # a part not given is None (the noise analysis takes it as zero)
+    voltage_noise: Optional[Fraction] = None    # V/sqrt(Hz)
+    current_noise: Optional[Fraction] = None    # A/sqrt(Hz)
+    attr_locs: dict = field(default_factory=dict)   # 'voltage_noise'/'current_noise' -> Loc
 
 
 @dataclass
@@ -172,19 +185,53 @@ class Block:
     loc: Loc
 
 
+@dataclass(frozen=True)
+class Temperature:
+    """``temperature 25 C from -40 C to 85 C``: all in degrees Celsius, exact (kelvin
+    converted by 273.15 exactly). Without ``from ... to ...`` the range is T0 alone."""
+    nominal: Fraction
+    low: Fraction
+    high: Fraction
+    loc: Loc
+    nominal_loc: Loc
+    range_loc: Optional[Loc] = None      # of the low end, when a range is written
+
+
+@dataclass(frozen=True)
+class Derating:
+    """``derating 60%``: the share of each rating that may be used, 0 < factor <= 1."""
+    factor: Fraction
+    loc: Loc
+
+
+DEFAULT_TEMPERATURE = Fraction(25)          # deg C, when a sheet has no temperature line
+DEFAULT_APPROXIMATION_BAND = (Fraction(1), Fraction(10**9))   # Hz, ``approximately`` in s
+E_SERIES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")  # IEC 60063, for ``choose``
+
+
 @dataclass
 class Request:
-    """A ``find``/``solve``/``check`` statement.
+    """A ``find``/``solve``/``check``/``choose`` statement.
 
-    ``statement`` is 'find', 'solve' or 'check'. ``quantity`` is the quantity word:
+    ``statement`` is 'find', 'solve', 'check' or 'choose'. ``quantity`` is the quantity word:
     'thevenin', 'norton', 'vth', 'rth', 'isc', 'rn', 'resistance', 'impedance', 'voltage',
-    'current', 'gain', 'model', 'twoport'. ``port`` is the port name (``at P``), ``element``
-    the element of ``current through X``, ``source`` the source of ``gain from S to P``,
+    'current', 'gain', 'model', 'twoport', 'power' (``power in X``), and for requests that
+    are no quantity phrase 'operating_point', 'stress', 'noise' (``find noise at P``).
+    ``port`` is the port name (``at P``), ``element``
+    the element of ``current through X`` and ``power in X``, ``source`` the source of ``gain from S to P``,
     ``port2`` the second port of ``model/twoport from P1 to P2`` (then ``port`` is P1).
-    ``analysis`` is None, 'sensitivity' or 'tolerance' (``find sensitivity of Q``).
+    ``analysis`` is None, 'sensitivity', 'tolerance', 'drift' or 'budget'
+    (``find sensitivity of Q``).
     ``solve_for`` is the symbol of ``solve Q for X``; ``claim`` the expression of
     ``check Q equals EXPR``. ``text`` is the statement as written (whitespace collapsed),
     used as the request key in records.
+
+    Section 5 fields: ``symbols`` (with ``symbol_locs``), ``series`` and ``target`` of
+    ``choose R1, R2 from E24 for Q = 1.2 V`` (the target a :class:`Quantity`, unit None
+    or the quantity's unit); ``band`` the (low, high) frequencies in Hz of ``find noise at
+    P from F1 to F2`` or of ``approximately within E% from F1 to F2`` (None where not
+    written: see :data:`DEFAULT_APPROXIMATION_BAND`); ``within`` the relative error bound of
+    ``approximately within 1%`` (Fraction(1, 100)).
     """
     statement: str
     quantity: str
@@ -198,6 +245,13 @@ class Request:
     solve_for: Optional[str] = None
     claim: Optional[Expr] = None
     name_locs: dict = field(default_factory=dict)   # 'port'/'port2'/'element'/'source'/'solve_for' -> Loc
+    symbols: tuple = ()
+    symbol_locs: tuple = ()
+    series: Optional[str] = None
+    target: Optional[Quantity] = None
+    band: Optional[tuple] = None
+    within: Optional[Fraction] = None
+    # also in name_locs: 'series', 'target', 'band', 'within' (the word 'approximately')
 
 
 @dataclass
@@ -237,3 +291,22 @@ class Sheet:
     numeric: list = field(default_factory=list)      # Numeric statements
     replacements: list = field(default_factory=list)  # Replacement statements
     body: list = field(default_factory=list)         # top-level Element/OpAmp/Use in order
+    temperature: Optional[Temperature] = None        # the ``temperature`` line, if any
+    derating: Optional[Derating] = None              # the ``derating`` line, if any
+
+    @property
+    def nominal_temperature(self) -> Fraction:
+        """T0 in deg C (default 25 C)."""
+        return self.temperature.nominal if self.temperature else DEFAULT_TEMPERATURE
+
+    @property
+    def temperature_range(self) -> tuple:
+        """(low, high) in deg C (default: T0 alone)."""
+        if self.temperature is None:
+            return (DEFAULT_TEMPERATURE, DEFAULT_TEMPERATURE)
+        return (self.temperature.low, self.temperature.high)
+
+    @property
+    def derating_factor(self) -> Fraction:
+        """The usable share of each rating (default 1, i.e. 100%)."""
+        return self.derating.factor if self.derating else Fraction(1)

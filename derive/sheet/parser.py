@@ -19,8 +19,8 @@ from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput
 
 from derive.errors import SheetError
 from derive.sheet.grammar import describe_syntax_error, get_parser
-from derive.sheet.model import BinOp, Block, Call, Element, Loc, Name, Neg, Nominal, Num, Numeric, OpAmp, Port, Quantity, Replacement, Request, Sheet, Tolerance, Use, Value
-from derive.sheet.units import UnitError, parse_number, parse_quantity
+from derive.sheet.model import BinOp, Block, Call, Derating, E_SERIES, Element, Loc, Name, Neg, Nominal, Num, Numeric, OpAmp, Port, Quantity, Replacement, Request, Sheet, Temperature, Tolerance, Use, Value
+from derive.sheet.units import UnitError, parse_attribute, parse_number, parse_quantity, parse_temperature
 
 RESERVED = frozenset({"s"})
 FUNCTIONS = {"sqrt": 1, "across": 2, "through": 1}
@@ -30,6 +30,21 @@ KIND_WORD = {"vsource": "voltage source", "isource": "current source"}
 _R_KINDS = ("resistor", "impedance", "nominal")   # where R47 / 47R are resistor codes
 _R_CODE_NAME = re.compile(r"R\d+\Z")
 _ASCII_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*(\.[A-Za-z_][A-Za-z0-9_]*)*\Z")
+# SHEET.md section 5: which element kinds take a rating, and in which units
+RATING_UNITS = {"resistor": ("W", "V"), "capacitor": ("V",), "inductor": ("V",)}
+RATING_ATTR = {"W": "power_rating", "V": "voltage_rating"}
+# the unit of a scalar quantity, for a ``choose`` target (gain: from the source's kind)
+QUANTITY_UNIT = {"vth": "V", "voltage": "V", "isc": "A", "current": "A", "rth": "ohm",
+                 "rn": "ohm", "resistance": "ohm", "impedance": "ohm", "power": "W"}
+_PAIRS = {"thevenin": "vth and rth", "norton": "isc and rn", "model": "rin, gain and rout",
+          "twoport": "the two-port parameters"}
+
+
+def _show(value: Fraction) -> str:
+    """An exact number for a message: ``25``, ``-40``, ``26.85``."""
+    if value.denominator == 1:
+        return str(value.numerator)
+    return f"{float(value):.6g}"
 
 
 def parse_sheet(text: str, filename: str = "<sheet>") -> Sheet:
@@ -182,6 +197,7 @@ class _Builder:
         self.text = text
         self.filename = filename
         self.deferred: list = []        # (owner, attribute, Value, Name-or-token, kind)
+        self.choose_targets: list = []  # (Request, target tree) of 'choose' lines
         self.declared: set[str] = set()
 
     # ------------------------------------------------------------------ driver
@@ -228,8 +244,18 @@ class _Builder:
                     raise _err(f"duplicate block '{block.name}' (first defined on line "
                                f"{first.line})", stmt.children[1])
                 sheet.blocks[block.name] = block
-            elif kind in ("find", "solve", "check"):
+            elif kind in ("find", "solve", "check", "choose"):
                 sheet.requests.append(self._request(stmt))
+            elif kind == "temperature":
+                if sheet.temperature is not None:
+                    raise _err("'temperature' is given twice; a sheet has one temperature "
+                               f"line (first on line {sheet.temperature.loc.line})", stmt)
+                sheet.temperature = self._temperature(stmt)
+            elif kind == "derating":
+                if sheet.derating is not None:
+                    raise _err("'derating' is given twice; a sheet has one derating line "
+                               f"(first on line {sheet.derating.loc.line})", stmt)
+                sheet.derating = self._derating(stmt)
             elif kind == "replace":
                 refs = [self._ref(t) for t in stmt.children if isinstance(t, Tree)]
                 compare = any(isinstance(t, Token) and t.type == "COMPARE"
@@ -244,6 +270,7 @@ class _Builder:
             raise SheetError("sheet has no elements", 1, 1,
                              hint="add at least one line such as: resistor R1 between a and gnd")
         self._resolve_codes()
+        self._check_gain_targets(sheet)
         return sheet
 
     # ------------------------------------------------------------------ names
@@ -298,9 +325,181 @@ class _Builder:
         name = self._symbol_name(name_tok, noun)
         (n1, l1), (n2, l2) = self._ref(rest[0]), self._ref(rest[1])
         element = Element(kind, name, (n1, n2), (l1, l2), None, _loc(stmt))
-        if len(rest) > 2:
-            element.value = self._value(rest[2], kind, noun, element, "value")
+        for part in rest[2:]:
+            if part.data == "assign":
+                element.value = self._value(part, kind, noun, element, "value")
+            else:
+                self._attribute(element, part, noun)
         return element
+
+    # ------------------------------------------------------------------ attributes (section 5)
+    def _attribute(self, element: Element, node: Tree, noun: str) -> None:
+        word = node.children[0]
+        article = "an" if noun[0] in "aeiou" else "a"
+        if node.data == "noiseless":
+            if element.kind != "resistor":
+                raise _err(f"'noiseless' is for resistors, not {article} {noun}", word,
+                           hint="only resistors make thermal noise in the noise analysis")
+            if element.noiseless:
+                raise _err(f"'noiseless' is given twice for '{element.name}'", word)
+            element.noiseless = True
+            element.attr_locs["noiseless"] = _loc(word)
+        elif node.data == "tc":
+            value, unit, loc = self._attr_quantity(node.children[1])
+            if unit != "1/K":
+                raise _err(f"a temperature coefficient is in ppm/K, not "
+                           f"{unit or 'a plain number'}", self._unit_loc(node.children[1]),
+                           hint="for example: tc 100 ppm/K")
+            if element.tc is not None:
+                raise _err(f"'tc' is given twice for '{element.name}'", word)
+            element.tc = value
+            element.attr_locs["tc"] = loc
+        else:                                   # rated
+            allowed = RATING_UNITS.get(element.kind)
+            if allowed is None:
+                raise _err(f"{article} {noun} takes no rating", word,
+                           hint="ratings are for resistors (W and/or V), capacitors and "
+                                "inductors (V)")
+            if "rated" in element.attr_locs:
+                raise _err(f"'rated' is given twice for '{element.name}'", word,
+                           hint="give both ratings of a resistor at once: rated 0.25 W 200 V")
+            element.attr_locs["rated"] = _loc(word)
+            for q in node.children[1:]:
+                value, unit, loc = self._attr_quantity(q)
+                if unit not in allowed:
+                    shown = unit or "a plain number"
+                    want = " or ".join(allowed)
+                    hint = ("a resistor is rated in W (power) and/or V (voltage): "
+                            "rated 0.25 W 200 V" if element.kind == "resistor" else
+                            f"{article} {noun} is rated in V (the voltage across it): "
+                            "rated 50 V")
+                    raise _err(f"{article} {noun}'s rating is in {want}, not {shown}",
+                               self._unit_loc(q), hint=hint)
+                attr = RATING_ATTR[unit]
+                if getattr(element, attr) is not None:
+                    raise _err(f"the {attr.split('_')[0]} rating of '{element.name}' is "
+                               "given twice", loc)
+                if value <= 0:
+                    raise _err("a rating must be more than zero", loc)
+                setattr(element, attr, value)
+                element.attr_locs[attr] = loc
+
+    def _opamp_noise(self, opamp: OpAmp, node: Tree) -> None:
+        word = node.children[0]
+        if opamp.attr_locs.get("noise") is not None:
+            raise _err(f"'noise' is given twice for op-amp '{opamp.name}'", word)
+        opamp.attr_locs["noise"] = _loc(word)
+        for q in node.children[1:]:
+            value, unit, loc = self._attr_quantity(q)
+            attr = {"V/rtHz": "voltage_noise", "A/rtHz": "current_noise"}.get(unit)
+            if attr is None:
+                raise _err(f"an op-amp noise density is in V/rtHz or A/rtHz, not "
+                           f"{unit or 'a plain number'}", self._unit_loc(q),
+                           hint="for example: noise 4 nV/rtHz and 0.5 pA/rtHz")
+            if getattr(opamp, attr) is not None:
+                what = attr.split("_")[0]
+                raise _err(f"two {what} noise densities for op-amp '{opamp.name}'", loc,
+                           hint="give one voltage (nV/rtHz) and one current (pA/rtHz) "
+                                "density")
+            if value < 0:
+                raise _err("a noise density cannot be negative", loc)
+            setattr(opamp, attr, value)
+            opamp.attr_locs[attr] = loc
+
+    def _attr_parts(self, node: Tree):
+        """(sign token or None, number token, word token or None, per token or None)."""
+        sign = number = word = per = None
+        for c in node.children:
+            if isinstance(c, Tree):
+                per = c.children[1]
+            elif c.type in ("PLUS", "MINUS"):
+                sign = c
+            elif c.type == "NUMBER":
+                number = c
+            else:
+                word = c
+        return sign, number, word, per
+
+    def _unit_loc(self, node: Tree) -> Loc:
+        """Where the unit of an attribute quantity is written (for a wrong-unit error)."""
+        sign, number, word, per = self._attr_parts(node)
+        if word is not None:
+            return _loc(word)
+        text = str(number)
+        m = re.match(r"(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?", text)
+        if m and m.end() < len(text):
+            return Loc(number.line, number.column + m.end())
+        return _loc(per) if per is not None else _loc(number)
+
+    def _located_unit_error(self, e: UnitError, node: Tree) -> SheetError:
+        sign, number, word, per = self._attr_parts(node)
+        if e.part == "word" and word is not None:
+            return _err(e.message, word, hint=e.hint)
+        if e.part == "per" and per is not None:
+            return _err(e.message, per, hint=e.hint)
+        if e.part == "number" and e.offset:
+            return SheetError(e.message, number.line, number.column + e.offset, hint=e.hint)
+        return _err(e.message, node, hint=e.hint)
+
+    def _attr_quantity(self, node: Tree):
+        """An ``attr_qty`` as (exact value, canonical unit, Loc)."""
+        sign, number, word, per = self._attr_parts(node)
+        _check_number_text(number)
+        try:
+            value, unit = parse_attribute(str(number), None if word is None else str(word),
+                                          None if per is None else str(per))
+        except UnitError as e:
+            raise self._located_unit_error(e, node) from None
+        _check_magnitude(value, number)
+        if sign is not None and sign.type == "MINUS":
+            value = -value
+        return value, unit, _loc(node)
+
+    # ------------------------------------------------------------------ settings (section 5)
+    def _temperature_of(self, node: Tree):
+        sign, number, word, per = self._attr_parts(node)
+        _check_number_text(number)
+        if per is not None:
+            raise _err("a temperature is in C or K", per,
+                       hint="for example: temperature 25 C from -40 C to 85 C")
+        try:
+            value = parse_temperature(str(number), None if word is None else str(word),
+                                      negative=sign is not None and sign.type == "MINUS")
+        except UnitError as e:
+            raise self._located_unit_error(e, node) from None
+        _check_magnitude(value, number)
+        return value, _loc(node)
+
+    def _temperature(self, stmt: Tree) -> Temperature:
+        qs = [c for c in stmt.children if isinstance(c, Tree)]
+        t0, l0 = self._temperature_of(qs[0])
+        if len(qs) == 1:
+            return Temperature(t0, t0, t0, _loc(stmt), l0)
+        (low, l1), (high, l2) = self._temperature_of(qs[1]), self._temperature_of(qs[2])
+        if low > high:
+            raise _err(f"the range is written from low to high: {_show(low)} C is above "
+                       f"{_show(high)} C", l1)
+        if not low <= t0 <= high:
+            raise _err(f"the nominal temperature {_show(t0)} C is outside the range "
+                       f"{_show(low)} C to {_show(high)} C", l0,
+                       hint="the range must contain the nominal temperature")
+        return Temperature(t0, low, high, _loc(stmt), l0, l1)
+
+    def _percent(self, tok: Token, has_percent: bool, what: str, example: str) -> Fraction:
+        number = self._number(tok)
+        if number.form != "plain":
+            raise _err(f"{what} is a plain number before '%', e.g. {example}", tok)
+        if not has_percent:
+            raise SheetError(f"{what} is a percentage: write '%' after the number",
+                             tok.line, tok.column + len(str(tok)), hint=f"for example: {example}")
+        return number.value / 100
+
+    def _derating(self, stmt: Tree) -> Derating:
+        ch = stmt.children
+        value = self._percent(ch[1], len(ch) > 2, "a derating", "derating 60%")
+        if not 0 < value <= 1:
+            raise _err("a derating is more than 0% and at most 100%", ch[1])
+        return Derating(value, _loc(stmt))
 
     def _opamp(self, stmt: Tree) -> OpAmp:
         ch = stmt.children
@@ -309,6 +508,9 @@ class _Builder:
         opamp = OpAmp(name, (refs[0][0], refs[1][0]), refs[2][0], tuple(r[1] for r in refs),
                       None, None, None, _loc(stmt))
         for opt in ch[5:]:
+            if opt.data == "opamp_noise":
+                self._opamp_noise(opamp, opt)
+                continue
             word = str(opt.children[0])
             if getattr(opamp, word) is not None:
                 raise _err(f"'{word}' is given twice for op-amp '{name}'", opt.children[0])
@@ -384,13 +586,132 @@ class _Builder:
         analysis = None
         rest = ch[1:]
         if statement == "find" and isinstance(rest[0], Token):
+            first = rest[0]
+            if first.type in ("OPERATING", "STRESS"):
+                word = "operating_point" if first.type == "OPERATING" else "stress"
+                return Request(statement, word, text, _loc(stmt))
+            if first.type == "NOISE":
+                return self._noise_request(stmt, text, rest)
             analysis, rest = str(rest[0]), rest[1:]
-        q = rest[0]
+        if statement == "choose":
+            return self._choose(stmt, text, rest)
         req = Request(statement, "", text, _loc(stmt), analysis=analysis)
+        self._quantity_phrase(req, rest[0])
+        if len(rest) > 1 and isinstance(rest[1], Tree) and rest[1].data == "approx":
+            self._approx(req, rest[1])
+            return req
+        if statement == "solve":
+            target, loc = self._ref(rest[1])
+            if target in RESERVED:
+                raise _err(f"cannot solve for '{target}': it is the Laplace variable", loc)
+            req.solve_for = target
+            req.name_locs["solve_for"] = loc
+        elif statement == "check":
+            req.claim = self._expr(rest[1])
+        return req
+
+    def _noise_request(self, stmt: Tree, text: str, rest) -> Request:
+        req = Request("find", "noise", text, _loc(stmt))
+        req.port, req.name_locs["port"] = self._ref(rest[1])
+        if len(rest) < 3:
+            raise _err("'find noise' needs a frequency band", rest[0],
+                       hint=f"for example: find noise at {req.port} from 10 Hz to 100 kHz")
+        req.band = self._band(rest[2])
+        req.name_locs["band"] = _loc(rest[2])
+        return req
+
+    def _band(self, node: Tree) -> tuple:
+        ends = []
+        for q in node.children:
+            value, unit, loc = self._attr_quantity(q)
+            if unit not in (None, "Hz"):
+                raise _err(f"a frequency is in Hz, not {unit}", self._unit_loc(q))
+            if value < 0:
+                raise _err("a frequency cannot be negative", loc)
+            ends.append((value, loc))
+        (low, l1), (high, _) = ends
+        if low >= high:
+            raise _err(f"the band is written from low to high: {_show(low)} Hz is not below "
+                       f"{_show(high)} Hz", l1)
+        return (low, high)
+
+    def _approx(self, req: Request, node: Tree) -> None:
+        word, number = node.children[0], node.children[2]
+        if req.analysis is not None:
+            raise _err(f"'approximately' goes with a plain 'find' of a quantity, not with "
+                       f"'find {req.analysis} of'", word,
+                       hint="for example: find gain from Vin to out approximately within 1%")
+        has_percent = any(isinstance(c, Token) and c.type == "PERCENT" for c in node.children)
+        within = self._percent(number, has_percent, "the error bound", "approximately within 1%")
+        if not 0 < within < 1:
+            raise _err("the error bound is more than 0% and less than 100%", number)
+        req.within = within
+        req.name_locs["within"] = _loc(word)
+        band = [c for c in node.children if isinstance(c, Tree)]
+        if band:
+            req.band = self._band(band[0])
+            req.name_locs["band"] = _loc(band[0])
+
+    def _choose(self, stmt: Tree, text: str, rest) -> Request:
+        req = Request("choose", "", text, _loc(stmt))
+        refs = [c for c in rest if isinstance(c, Tree) and c.data == "ref"]
+        symbols, locs = [], []
+        for ref in refs:
+            name, loc = self._ref(ref)
+            if name in RESERVED:
+                raise _err(f"cannot choose '{name}': it is the Laplace variable", loc)
+            if name in symbols:
+                raise _err(f"'{name}' is named twice in 'choose'", loc)
+            symbols.append(name)
+            locs.append(loc)
+        req.symbols, req.symbol_locs = tuple(symbols), tuple(locs)
+        series_tok = next(c for c in rest if isinstance(c, Token))
+        series = str(series_tok)
+        if series not in E_SERIES:
+            hint = (f"write {series.upper()}" if series.upper() in E_SERIES else
+                    "the IEC 60063 series are " + ", ".join(E_SERIES))
+            raise _err(f"unknown series '{series}'", series_tok, hint=hint)
+        req.series = series
+        req.name_locs["series"] = _loc(series_tok)
+        q, target = [c for c in rest if isinstance(c, Tree) and c.data != "ref"]
+        self._quantity_phrase(req, q)
+        if req.quantity in _PAIRS:
+            raise _err(f"'choose' needs a single quantity; '{req.quantity}' gives "
+                       f"{_PAIRS[req.quantity]}", q.children[0],
+                       hint="name one of them, e.g. choose R2 from E24 for vth at out = 1 V")
+        value, unit, loc = self._attr_quantity(target)
+        want = QUANTITY_UNIT.get(req.quantity)
+        if unit is not None and req.quantity != "gain" and unit != want:
+            raise _err(f"the target is in {unit} but {req.quantity} is in {want}",
+                       self._unit_loc(target))
+        req.target = Quantity(value, unit, loc)
+        req.name_locs["target"] = loc
+        self.choose_targets.append((req, target))
+        return req
+
+    def _check_gain_targets(self, sheet: Sheet) -> None:
+        """A ``choose ... for gain from S to P = X`` target with a unit: per volt of a
+        voltage source the gain is a plain ratio, per ampere of a current source it is in
+        ohm.  (A source not found at the top level is left to the circuit stage.)"""
+        kinds = {e.name: e.kind for e in sheet.elements if isinstance(e, Element)}
+        for req, node in self.choose_targets:
+            if req.quantity != "gain" or req.target.unit is None:
+                continue
+            kind = kinds.get(req.source)
+            want = {"vsource": None, "isource": "ohm"}.get(kind, req.target.unit)
+            if req.target.unit != want:
+                if want is None:
+                    raise _err(f"the gain from voltage source '{req.source}' is a plain "
+                               f"ratio (V/V), not {req.target.unit}", self._unit_loc(node),
+                               hint="give the target without a unit, e.g. = 10")
+                raise _err(f"the gain from current source '{req.source}' is in ohm (V/A), "
+                           f"not {req.target.unit}", self._unit_loc(node))
+
+    def _quantity_phrase(self, req: Request, q: Tree) -> None:
         word = str(q.children[0])
         req.quantity = word
         refs = [self._ref(t) for t in q.children[1:]]
-        if word == "current":
+        if word in ("current", "power"):
             slots = ("element",)
         elif word == "gain":
             slots = ("source", "port")
@@ -401,15 +722,6 @@ class _Builder:
         for slot, (value, loc) in zip(slots, refs):
             setattr(req, slot, value)
             req.name_locs[slot] = loc
-        if statement == "solve":
-            target, loc = self._ref(rest[1])
-            if target in RESERVED:
-                raise _err(f"cannot solve for '{target}': it is the Laplace variable", loc)
-            req.solve_for = target
-            req.name_locs["solve_for"] = loc
-        elif statement == "check":
-            req.claim = self._expr(rest[1])
-        return req
 
     # ------------------------------------------------------------------ values
     def _value(self, assign: Tree, kind, noun, owner, attr) -> Value:

@@ -198,6 +198,121 @@ def parse_quantity(number: str, word: Optional[str] = None) -> tuple[Fraction, O
     return n.value * factor, unit
 
 
+# ------------------------------------------------------------------ design-review units
+# SHEET.md section 5: the unit words of element attributes, settings, targets and bands.
+# W is only known here (not in UNITS), so a resistor's value given in W stays an error and
+# no symbol ever gets a unit the dimension checks do not know.
+ATTRIBUTE_UNITS = {**UNITS, "W": "W"}
+ROOT_HZ = ("rtHz", "\u221aHz")           # the denominators of a noise density
+PPM = Fraction(1, 10**6)
+KELVIN_AT_ZERO_CELSIUS = Fraction(27315, 100)   # 0 deg C = 273.15 K, exact by definition
+
+
+def _split_number(text: str):
+    m = _NUMBER_RE.match(text)
+    if not m:
+        raise UnitError(f"'{text}' is not a number", kind="unknown", text=text)
+    number_text = m.group(1) + (m.group(2) or "")
+    return Fraction(number_text), number_text, m.group(3)
+
+
+def parse_attribute(number: str, word: Optional[str] = None,
+                    per: Optional[str] = None) -> tuple[Fraction, Optional[str]]:
+    """A number token, an optional unit word and an optional ``/ denominator`` -> (exact
+    value, canonical unit).  Units: those of :data:`UNITS` and ``W`` with SI prefixes,
+    ``ppm/K`` (a temperature coefficient, returned per kelvin as unit '1/K'), and the noise
+    densities ``V/rtHz`` and ``A/rtHz`` (also ``/√Hz``; returned as 'V/rtHz', 'A/rtHz').
+    Errors are :class:`UnitError` with ``part`` 'number', 'word' or 'per'.
+
+    >>> parse_attribute("0.25", "W")
+    (Fraction(1, 4), 'W')
+    >>> parse_attribute("100", "ppm", "K")
+    (Fraction(1, 10000), '1/K')
+    >>> parse_attribute("4", "nV", "\u221aHz")
+    (Fraction(1, 250000000), 'V/rtHz')
+    >>> parse_attribute("10k")
+    (Fraction(10000, 1), None)
+    """
+    value, number_text, suffix = _split_number(number)
+    offset = len(number_text)
+    factor = Fraction(1)
+    if suffix and word is not None:
+        if suffix not in PREFIXES:
+            raise UnitError(f"'{word}' follows a number that already has a unit",
+                            part="word", text=word)
+        factor, suffix = PREFIXES[suffix], ""       # 10k W: prefix on the number
+        if word[:1] in PREFIXES and word[1:] in ATTRIBUTE_UNITS:
+            raise UnitError(f"two prefixes: '{number[offset:]}' and '{word[0]}'", part="word",
+                            text=word)
+    unit_text, part = (suffix, "number") if suffix else (word, "word")
+    where = {"part": part, "offset": offset if part == "number" else 0}
+    if unit_text is None:
+        if per is not None:
+            raise UnitError(f"'/{per}' needs a unit before it", part="per", text=per)
+        return value, None
+    if unit_text == "ppm":
+        if per != "K":
+            raise UnitError("a temperature coefficient is written in ppm/K",
+                            part="per" if per else part, text=per or unit_text,
+                            offset=0 if per else where["offset"],
+                            hint="for example: tc 100 ppm/K (a step of 1 K is a step of 1 C)")
+        return value * factor * PPM, "1/K"
+    if unit_text in ATTRIBUTE_UNITS:
+        scale, unit = Fraction(1), ATTRIBUTE_UNITS[unit_text]
+    elif unit_text in PREFIXES and part == "number":
+        scale, unit = PREFIXES[unit_text], None
+    elif len(unit_text) > 1 and unit_text[0] in PREFIXES and unit_text[1:] in ATTRIBUTE_UNITS:
+        scale, unit = PREFIXES[unit_text[0]], ATTRIBUTE_UNITS[unit_text[1:]]
+    else:
+        message, hint = _hint_for(unit_text)
+        raise UnitError(message, text=unit_text, hint=hint, **where)
+    value = value * factor * scale
+    if per is None:
+        return value, unit
+    if per in ROOT_HZ and unit in ("V", "A"):
+        return value, f"{unit}/rtHz"
+    raise UnitError(f"'{unit_text}/{per}' is not a unit here", part="per", text=per,
+                    hint="noise densities are written nV/rtHz (or nV/\u221aHz) and pA/rtHz")
+
+
+def parse_temperature(number: str, word: Optional[str] = None,
+                      negative: bool = False) -> Fraction:
+    """A temperature in C or K (unit written after the number or attached to it) -> exact
+    degrees Celsius.  ``negative`` is a minus sign written before the number.
+
+    >>> parse_temperature("25", "C"), parse_temperature("40", "C", negative=True)
+    (Fraction(25, 1), Fraction(-40, 1))
+    >>> parse_temperature("300K")
+    Fraction(537, 20)
+    """
+    value, number_text, suffix = _split_number(number)
+    if negative:
+        value = -value
+    offset = len(number_text)
+    if suffix and word is not None:
+        raise UnitError(f"'{word}' follows a number that already has a unit", part="word",
+                        text=word)
+    unit, where = (suffix, {"part": "number", "offset": offset}) if suffix else \
+        (word, {"part": "word"})
+    if unit is None:
+        raise UnitError("a temperature needs a unit: C (degrees Celsius) or K (kelvin)",
+                        part="number", offset=offset, text=number,
+                        hint="for example: temperature 25 C from -40 C to 85 C")
+    if unit == "C":
+        celsius = value
+    elif unit == "K":
+        celsius = value - KELVIN_AT_ZERO_CELSIUS
+    else:
+        hint = "write C for degrees Celsius or K for kelvin"
+        if len(unit) > 1 and unit[0] in PREFIXES and unit[1:] in ("C", "K"):
+            hint = "a temperature takes no SI prefix; " + hint
+        raise UnitError(f"'{unit}' is not a temperature unit", text=unit, hint=hint, **where)
+    if celsius < -KELVIN_AT_ZERO_CELSIUS:
+        raise UnitError("the temperature is below absolute zero (-273.15 C, 0 K)",
+                        part="number", offset=0, text=number)
+    return celsius
+
+
 # ------------------------------------------------------------------ formatting
 _ENG_PREFIX = {-15: "f", -12: "p", -9: "n", -6: "\u00b5", -3: "m", 0: "", 3: "k", 6: "M",
                9: "G", 12: "T"}
