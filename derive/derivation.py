@@ -37,8 +37,7 @@ class StepFailed(AssertionError):
 
 def port_steps(ctx, req, out) -> list:
     """The verified steps of a ``_basic`` request result ``out``."""
-    refs = {n: (edge.to_sympy(q.ratio) if q.ratio is not None else None)
-            for n, q in out.quantities.items()}
+    refs = _Refs(out.quantities)
     steps = []
     if req.quantity == "current":
         steps += _current_steps(ctx, req, out, refs)
@@ -48,7 +47,7 @@ def port_steps(ctx, req, out) -> list:
         if req.quantity in ("thevenin", "norton"):
             steps += _cross_check(ctx, req)
     for q in out.quantities.values():
-        steps.append(_value_step(ctx, q, refs.get(q.name)))
+        steps.append(_value_step(ctx, q, refs.ratio(q.name)))
     for st in steps:
         if not st.verify():
             bad = [e for e in st.equations if not e.verified]
@@ -57,9 +56,90 @@ def port_steps(ctx, req, out) -> list:
     return steps
 
 
-def _check(ctx, req, eq: Equation, ref, nodal_form=None):
-    """Verify ``eq.rhs`` against the solver's exact result ``ref`` (or, where the result was
-    not expanded, an exact solve of the nodal equations at random rational points)."""
+class _Refs(dict):
+    """The solver's exact results of a request: ``refs[name]`` is the sympy form (built
+    once, on first use: only the nodal route displays it), ``refs.ratio(name)`` the exact
+    Ratio itself (None where the result was not expanded)."""
+
+    def __init__(self, quantities):
+        super().__init__()
+        self._q = quantities
+
+    def ratio(self, name):
+        q = self._q.get(name)
+        return q.ratio if q is not None else None
+
+    def get(self, name, default=None):
+        if name not in self._q:
+            return default
+        return self[name]
+
+    def __missing__(self, name):
+        q = self._q[name]
+        e = None
+        if q.ratio is not None:
+            e = q.expr if (q.form == "expanded" and q.expr is not None) else edge.to_sympy(q.ratio)
+        self[name] = e
+        return e
+
+
+def _agrees_with_ratio(expr, defs, ratio, points: int = 3, tries: int = 20):
+    """Whether ``expr`` (with named intermediates ``defs``) equals the exact ``ratio``,
+    by exact evaluation at random rational points: the ratio's numerator and denominator in
+    flint at the ring variables' values, ``expr`` by :mod:`derive.exact_eval` (Schwartz-
+    Zippel, as in :func:`derive.forms.product_identity_holds`). Points where a denominator
+    vanishes are redrawn; too few usable points is False. None where ``expr`` is not a
+    rational function or a value is not rational (the caller falls back to sympy)."""
+    import random
+    import flint
+    from .exact_eval import value, values_in_order
+    system = ratio.system
+    syms = set(expr.free_symbols)
+    for v in defs.values():
+        syms |= v.free_symbols
+    for v in system.vars:
+        syms |= v.expr.free_symbols
+    syms -= set(defs)
+    syms = sorted(syms, key=str)
+    rnd = random.Random(17)
+    passed = 0
+    for _ in range(tries):
+        pt = {x: sympy.Rational(rnd.randint(1, 10 ** 6), rnd.randint(1, 10 ** 3)) for x in syms}
+        if system.vars:
+            vals = edge.var_values(system, pt)
+            if vals is None or not isinstance(vals, list):
+                return None
+        else:
+            vals = [flint.fmpq(0)] * ratio.num.context().nvars()
+        den = ratio.den(*vals)
+        if den == 0:
+            continue
+        want = ratio.num(*vals) / den
+        try:
+            env = values_in_order(defs, pt)
+            got = value(expr, env) if env is not None else None
+        except ZeroDivisionError:
+            continue
+        if got is None:
+            return None
+        if got != want:
+            return False
+        passed += 1
+        if passed == points:
+            return True
+    return False
+
+
+def _check(ctx, req, eq: Equation, ref, nodal_form=None, ratio=None):
+    """Verify ``eq.rhs`` against the solver's exact result: its Ratio ``ratio`` evaluated
+    exactly at random rational points, else its sympy form ``ref``, or, where the result was
+    not expanded, an exact solve of the nodal equations at random rational points."""
+    if ratio is not None:
+        ok = _agrees_with_ratio(eq.rhs, eq.defs, ratio)
+        if ok is not None:
+            eq.verified = ok
+            return eq
+        ref = edge.to_sympy(ratio)
     if ref is not None:
         eq.check = ref
         return eq
@@ -130,12 +210,13 @@ def _reduction_steps(ctx, req, out, refs):
         base = bases[n]
         rhs = {"vth": E, "gain": E, "rth": Z}.get(base, E / Z if Z != 0 else None)
         eq = Equation(sympy.Symbol(n), rhs, defs=dict(defs))
-        eqs.append(_check(ctx, req, eq, refs[n], (None if refs[n] is not None
-                                                  else _nodal_forms(ctx, req, base))))
+        ratio = refs.ratio(n)
+        eqs.append(_check(ctx, req, eq, None, (None if ratio is not None
+                                               else _nodal_forms(ctx, req, base)), ratio))
         if q.expr is not None and (q.expr != rhs):
             e2 = Equation(sympy.Symbol(n), q.expr)
-            eqs.append(_check(ctx, req, e2, refs[n], (None if refs[n] is not None
-                                                      else _nodal_forms(ctx, req, base))))
+            eqs.append(_check(ctx, req, e2, None, (None if ratio is not None
+                                                   else _nodal_forms(ctx, req, base)), ratio))
     what = (f"The port {req.port} now sees a single branch from {plus} to {minus}: its "
             "open-circuit voltage and its impedance are the results" if need_src else
             f"The port {req.port} now sees a single impedance between {plus} and {minus}")
@@ -341,15 +422,17 @@ def _cross_check(ctx, req):
     r = forms.exact_ratio(ctx, req, "rth")
     if r.is_zero:
         return []
-    v, i, z = (_exact(ctx, req, n) for n in ("vth", "isc", "rth"))
     V, I, R = (sympy.Symbol(n) for n in ("vth", "isc", "rth"))
-    eq = Equation(V, I * R, check=V, defs={V: v, I: i, R: z})
+    eq = Equation(V, I * R)
+    # the solver's three exact ratios compared at random rational points (never converted
+    # to sympy, never multiplied out): forms.cross_check raises when the identity fails
+    eq.verified = forms.cross_check(ctx, req)
     return [Step("Cross-check: the open-circuit voltage equals the short-circuit current "
                  "times the resistance seen into the port (each found independently).",
                  [eq], kind="check")]
 
 
-def _value_step(ctx, q, ref) -> Step:
+def _value_step(ctx, q, ratio) -> Step:
     nominal = ctx.nominal
     used = set(q.expr.free_symbols) if q.expr is not None else set()
     for _, e in q.sequence:
@@ -377,5 +460,23 @@ def _value_step(ctx, q, ref) -> Step:
             raise StepFailed(f"value of {q.name} disagrees with its exact form")
         if len(str(exact)) <= 24:
             eqs.append(Equation(sympy.Symbol(q.name), exact,
-                                check=ref.xreplace(nominal) if ref is not None else None))
+                                check=_exact_value(ratio, nominal)))
     return Step(f"At nominal values: {q.name} = {shown}.", eqs, kind="value", table=rows)
+
+
+def _exact_value(ratio, nominal):
+    """The solver's exact ratio at nominal values as a sympy Rational (None if it has no
+    rational value there)."""
+    if ratio is None:
+        return None
+    vals = edge.var_values(ratio.system, nominal)
+    if not isinstance(vals, list):
+        return None if vals is None else edge.to_sympy(ratio).xreplace(nominal)
+    if not ratio.system.vars:
+        import flint
+        vals = [flint.fmpq(0)] * ratio.num.context().nvars()
+    den = ratio.den(*vals)
+    if den == 0:
+        return None
+    v = ratio.num(*vals) / den
+    return sympy.Rational(int(v.p), int(v.q))

@@ -282,23 +282,48 @@ def _exact_solve(A, b) -> list:
     return [sympy.Rational(int(x[i, 0].p), int(x[i, 0].q)) for i in range(A.shape[0])]
 
 
-def _random_solve_agrees(nodal, form, b, expected, points=2, defs=None) -> bool:
+def _random_solve_agrees(nodal, form, b, expected, points=2, defs=None, tries=20) -> bool:
     """Exact solve of the nodal equations at random rational points against ``expected``
-    (which may use the named intermediates ``defs``, evaluated in order)."""
+    (which may use the named intermediates ``defs``, evaluated in order).
+
+    Both sides are evaluated in exact flint rationals (:mod:`derive.exact_eval`; sympy only
+    for forms that are not rational functions). Points where the system is singular or a
+    denominator of ``expected`` vanishes are redrawn; fewer than ``points`` usable points in
+    ``tries`` draws is a refusal (False)."""
     import random
+    from .exact_eval import value, values_in_order
     rnd = random.Random(11)
     defs = defs or {}
     syms = nodal.A.free_symbols | b.free_symbols | expected.free_symbols
     for v in defs.values():
         syms |= v.free_symbols
     syms -= set(nodal.unknowns) | set(defs)
-    for _ in range(points):
+    passed = 0
+    for _ in range(tries):
         pt = {s: sympy.Rational(rnd.randint(1, 999), rnd.randint(1, 99)) for s in syms}
-        x = _exact_solve(nodal.A.xreplace(pt), b.xreplace(pt))
+        try:
+            x = _exact_solve(nodal.A.xreplace(pt), b.xreplace(pt))
+        except (ZeroDivisionError, ValueError):
+            continue            # singular at this point: draw another
         got = form.xreplace(dict(zip(nodal.unknowns, x))).xreplace(pt)
-        env = dict(pt)
-        for k, v in defs.items():
-            env[k] = v.xreplace(env)
-        if sympy.simplify(got - expected.xreplace(env)) != 0:
+        try:
+            env = values_in_order(defs, pt)
+            want = value(expected, env) if env is not None else None
+        except ZeroDivisionError:
+            continue
+        if want is not None:
+            ok = value(got, {}) == want
+        else:                   # not a rational function (roots): sympy
+            env = dict(pt)
+            for k, v in defs.items():
+                env[k] = v.xreplace(env)
+            w = expected.xreplace(env)
+            if w.has(sympy.zoo, sympy.nan):
+                continue
+            ok = sympy.simplify(got - w) == 0
+        if not ok:
             return False
-    return True
+        passed += 1
+        if passed == points:
+            return True
+    return False

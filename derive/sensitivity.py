@@ -74,8 +74,15 @@ class Form:
         return v if not v.free_symbols else None
 
 
+SEQUENCE_CHARS = 400    # a closed form longer than this is differentiated through its sequence
+
+
 def form_of(q) -> Form:
-    if q.expr is not None:
+    """The form a quantity is differentiated in: its closed form, or its sequence of named
+    intermediates where the closed form is long (a nested ladder expression's derivative
+    grows with every level of nesting; forward mode through the sequence adds one short
+    entry per intermediate)."""
+    if q.expr is not None and not (q.sequence and len(str(q.expr)) > SEQUENCE_CHARS):
         return Form([], q.expr)
     return Form(list(q.sequence), q.in_sequence)
 
@@ -117,10 +124,15 @@ def _too_long(p, budget: int) -> bool:
 FACTOR_TERMS = 3000     # edge.factored_expr factors polynomials up to this many terms
 
 
-def rational(e: sympy.Expr):
+def rational(e: sympy.Expr, defs=()):
     """(num, den, symbols): ``e`` as a cancelled ratio of flint polynomials over its free
-    symbols, or None when ``e`` is not a rational function (roots, other functions)."""
-    syms = sorted(e.free_symbols, key=str)
+    symbols, or None when ``e`` is not a rational function (roots, other functions).
+    ``defs``: named intermediates [(Symbol, expr)] that ``e`` uses, each converted once."""
+    names = {q for q, _ in defs}
+    syms = set(e.free_symbols)
+    for _, x in defs:
+        syms |= x.free_symbols
+    syms = sorted(syms - names, key=str)
     if not syms:
         return None
     ctx = flint.fmpq_mpoly_ctx.get(tuple(f"v{i}" for i in range(len(syms))), "lex")
@@ -166,6 +178,8 @@ def rational(e: sympy.Expr):
         memo[x] = r
         return r
     try:
+        for q, x in defs:
+            memo[q] = conv(x)
         n, d = conv(e)
     except _NotRational:
         return None
@@ -245,6 +259,9 @@ def _rational_cached(e):
     return r, _RATIONAL_MEMO["e"][2]
 
 
+TOO_LONG = "too long"    # _rational_derivative: the expanded derivative is longer than the budget
+
+
 def _rational_derivative(e, x, budget: int | None = None):
     """(dQ/dx, x/Q·dQ/dx) tidied, for a rational ``e``; None otherwise.
 
@@ -267,7 +284,7 @@ def _rational_derivative_of(r, fac, x, budget):
     dn, dd = n.derivative(i), d.derivative(i)
     num = dn * d - n * dd
     if budget is not None and _too_long(num, budget):
-        return None
+        return TOO_LONG
     a, pieces = _cancel_pieces(num, [d, d])
     dq = fac.ratio(a, pieces)
     if n.is_zero():
@@ -316,6 +333,8 @@ def derivative(form: Form, x: sympy.Symbol, taken: Optional[set] = None):
     if not form.defs:
         raw = sympy.diff(form.final, x)
         fast = _rational_derivative(form.final, x, budget=len(str(raw)))
+        if fast is TOO_LONG:        # raw is the same rational function, shorter than expanded
+            return Form([], raw), raw
         best = raw if fast is None or len(str(raw)) < len(str(fast[0])) else fast[0]
         if fast is None and not raw.is_Atom:
             best = tidy(raw)
@@ -416,8 +435,11 @@ def _analyse(ctx, q, form: Form, nominal: dict) -> Analysed:
         taken |= {str(n) for n, _ in d.defs}
         if not form.defs:
             fast = _rational_derivative(form.final, x)
-            norm = fast[1] if fast is not None and fast[1] is not None \
-                else tidy(x * d.final / form.final)
+            if fast is TOO_LONG:
+                norm = x * d.final / form.final
+            else:
+                norm = fast[1] if fast is not None and fast[1] is not None \
+                    else tidy(x * d.final / form.final)
         else:
             norm = x * d.final / form.final
         dv = d.value(nominal)
