@@ -101,10 +101,15 @@ def _agrees_with_ratio(expr, defs, ratio, points: int = 3, tries: int = 20):
         syms |= v.expr.free_symbols
     syms -= set(defs)
     syms = sorted(syms, key=str)
+    # a symbol behind a reciprocal ring variable (a resistance R, ring variable 1/R) takes
+    # values 1/k: the ring variables are then integers and the large determinants are
+    # evaluated in integer arithmetic (any point serves Schwartz-Zippel equally)
+    recip = {v.expr for v in system.vars if v.kind == "recip" and v.expr.is_Symbol}
     rnd = random.Random(17)
     passed = 0
     for _ in range(tries):
-        pt = {x: sympy.Rational(rnd.randint(1, 10 ** 6), rnd.randint(1, 10 ** 3)) for x in syms}
+        pt = {x: (sympy.Rational(1, rnd.randint(1, 10 ** 9)) if x in recip
+                  else sympy.Integer(rnd.randint(1, 10 ** 9))) for x in syms}
         if system.vars:
             vals = edge.var_values(system, pt)
             if vals is None or not isinstance(vals, list):

@@ -126,7 +126,7 @@ def cross_check(ctx, req):
 
 CHECK_POINTS = 3            # independent random points an identity must pass
 CHECK_TRIES = 40            # draws allowed in all (points where a denominator vanishes redrawn)
-_CHECK_RANGE = 2 ** 62      # numerators and denominators of the points drawn from 1..this
+_CHECK_RANGE = 2 ** 62      # coordinates of the points drawn from 1..this (integers)
 
 
 def product_identity_holds(lhs, factors, points: int = CHECK_POINTS, tries: int = CHECK_TRIES,
@@ -137,8 +137,9 @@ def product_identity_holds(lhs, factors, points: int = CHECK_POINTS, tries: int 
     polynomial ``lhs.num * prod(f.den) - lhs.den * prod(f.num)`` has total degree ``D`` at most
     the sum of the degrees involved; if it is not identically zero it vanishes at a point
     drawn uniformly from a grid of ``N`` values per coordinate with probability at most
-    ``D/N``, here ``N = 2^62`` numerators for each denominator, so a wrong identity passes
-    ``points`` independent draws with probability below ``(D/2^62)^points``). Only
+    ``D/N``; here the coordinates are integers drawn from ``1..N``, ``N = 2^62``, so a wrong
+    identity passes ``points`` independent draws with probability below ``(D/2^62)^points``;
+    integer points keep the evaluation in integer arithmetic). Only
     numerators and denominators are evaluated -- no product or gcd of the polynomials is
     formed. Points where a denominator vanishes are redrawn; if fewer than ``points`` usable
     points are found in ``tries`` draws, AssertionError is raised (the check refuses rather
@@ -160,8 +161,7 @@ def product_identity_holds(lhs, factors, points: int = CHECK_POINTS, tries: int 
     polys = [(lhs.num, lhs.den)] + [(f.num, f.den) for f in factors]
     passed = 0
     for _ in range(tries):
-        pt = [flint.fmpq(rnd.randint(1, _CHECK_RANGE), rnd.randint(1, _CHECK_RANGE))
-              for _ in range(nv)]
+        pt = [flint.fmpq(rnd.randint(1, _CHECK_RANGE)) for _ in range(nv)]
         dens = [d(*pt) for _, d in polys]
         if any(d == 0 for d in dens):
             continue            # a denominator vanishes here: draw another point
