@@ -254,8 +254,8 @@ def test_a_wrong_nominal_value_is_caught(monkeypatch):
 def test_a_wrong_derivative_is_caught(monkeypatch):
     orig = sensitivity._rational_derivative
 
-    def wrong(e, x):
-        r = orig(e, x)
+    def wrong(e, x, **kw):
+        r = orig(e, x, **kw)
         if r is None:
             return r
         return 2 * r[0], (2 * r[1] if r[1] is not None else None)

@@ -12,8 +12,7 @@ import sympy
 from flint import fmpq, fmpq_poly, fmpz_poly
 
 from derive.solver import univariate as uv
-from derive.solver.univariate import (Unbounded, UnivariateError, as_poly, extremes, integrate,
-                                      interval_value, real_roots)
+from derive.solver.univariate import Unbounded, UnivariateError, as_poly, extremes, integrate, interval_value, real_roots
 
 W = Fraction(1, 2 ** 60)
 

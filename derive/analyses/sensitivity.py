@@ -73,8 +73,15 @@ class Form:
         return exact_value(self.defs, self.final, point)
 
 
+SEQUENCE_CHARS = 400    # a closed form longer than this is differentiated through its sequence
+
+
 def form_of(q) -> Form:
-    if q.expr is not None:
+    """The form a quantity is differentiated in: its closed form, or its sequence of named
+    intermediates where the closed form is long (a nested ladder expression's derivative
+    grows with every level of nesting; forward mode through the sequence adds one short
+    entry per intermediate)."""
+    if q.expr is not None and not (q.sequence and len(str(q.expr)) > SEQUENCE_CHARS):
         return Form([], q.expr)
     return Form(list(q.sequence), q.in_sequence)
 
@@ -84,12 +91,16 @@ def tidy(e: sympy.Expr) -> sympy.Expr:
 
     The rational function is rebuilt exactly as a ratio of python-flint polynomials
     (:func:`rational`), cancelled and factored there; forms with roots are factored by sympy
-    when small, else left as they are.
+    when small, else left as they are. An expanded form that is certainly longer than ``e``
+    (:func:`_too_long`) is not built at all.
     """
     if e.is_Atom:
         return e
     r = rational(e)
     if r is not None:
+        budget = len(str(e))
+        if _too_long(r[0], budget) or _too_long(r[1], budget):
+            return e
         f = _factored(*r)
     elif sympy.count_ops(e) <= TIDY_OPS:
         f = sympy.factor(sympy.cancel(sympy.together(e)))
@@ -98,10 +109,29 @@ def tidy(e: sympy.Expr) -> sympy.Expr:
     return f if len(str(f)) <= len(str(e)) else e
 
 
-def rational(e: sympy.Expr):
+MIN_TERM_CHARS = 4      # a printed term of a polynomial in circuit symbols: " + " and a name
+
+
+def _too_long(p, budget: int) -> bool:
+    """Whether the printed expansion of ``p`` is certainly longer than ``budget``
+    characters (every term costs at least MIN_TERM_CHARS). Factoring can shorten a
+    polynomial, so only polynomials too large to be factored (over FACTOR_TERMS terms) are
+    judged this way."""
+    return len(p) > FACTOR_TERMS and len(p) * MIN_TERM_CHARS > budget
+
+
+FACTOR_TERMS = 3000     # edge.factored_expr factors polynomials up to this many terms
+
+
+def rational(e: sympy.Expr, defs=()):
     """(num, den, symbols): ``e`` as a cancelled ratio of flint polynomials over its free
-    symbols, or None when ``e`` is not a rational function (roots, other functions)."""
-    syms = sorted(e.free_symbols, key=str)
+    symbols, or None when ``e`` is not a rational function (roots, other functions).
+    ``defs``: named intermediates [(Symbol, expr)] that ``e`` uses, each converted once."""
+    names = {q for q, _ in defs}
+    syms = set(e.free_symbols)
+    for _, x in defs:
+        syms |= x.free_symbols
+    syms = sorted(syms - names, key=str)
     if not syms:
         return None
     ctx = flint.fmpq_mpoly_ctx.get(tuple(f"v{i}" for i in range(len(syms))), "lex")
@@ -123,9 +153,17 @@ def rational(e: sympy.Expr):
                 n, d = n * (d2 / g) + n2 * (d / g), d * (d2 / g)
             r = _cancel(n, d)
         elif x.is_Mul:
+            # cross-cancelled products: a nested form's factors telescope (a ladder's
+            # denominators cancel the next factor's numerator), so partial products stay
+            # the size of the result instead of the product of every factor's expansion
             n, d = ctx.constant(1), ctx.constant(1)
             for a in x.args:
                 n2, d2 = conv(a)
+                g1, g2 = n.gcd(d2), n2.gcd(d)
+                if not g1.is_one():
+                    n, d2 = n / g1, d2 / g1
+                if not g2.is_one():
+                    n2, d = n2 / g2, d / g2
                 n, d = n * n2, d * d2
             r = _cancel(n, d)
         elif x.is_Pow and x.exp.is_Integer:
@@ -139,6 +177,8 @@ def rational(e: sympy.Expr):
         memo[x] = r
         return r
     try:
+        for q, x in defs:
+            memo[q] = conv(x)
         n, d = conv(e)
     except _NotRational:
         return None
@@ -162,19 +202,95 @@ def _factored(n, d, syms) -> sympy.Expr:
     return edge.factored_expr(n, syms) / edge.factored_expr(d, syms)
 
 
-def _rational_derivative(e, x):
-    """(dQ/dx, x/Q·dQ/dx) tidied, for a rational ``e``; None otherwise."""
+def _cancel_pieces(num, pieces):
+    """``num / prod(pieces)`` cancelled piece by piece, without forming the product.
+
+    Returns (num', pieces') with ``gcd(num', p) = 1`` for every piece: if a factor f divided
+    both num' and a piece p' = p/g, then f*g would divide both the numerator before that
+    piece and p, contradicting g = gcd. Each piece is made monic (its leading coefficient
+    moved into the numerator)."""
+    out = []
+    for p in pieces:
+        g = num.gcd(p)
+        if not g.is_one() and not g.is_zero():
+            num, p = num / g, p / g
+        lc = p.leading_coefficient()
+        if lc != 1:
+            num, p = num / lc, p / lc
+        out.append(p)
+    return num, out
+
+
+class _Factors:
+    """Factored sympy forms of the polynomial pieces of one quantity, each factored once."""
+
+    def __init__(self, syms):
+        self.syms = syms
+        self.memo = []          # [(poly, expr)]: the few pieces a quantity's derivatives share
+
+    def expr(self, p):
+        for q, e in self.memo:
+            if q is p or q == p:
+                return e
+        e = edge.factored_expr(p, self.syms)
+        self.memo.append((p, e))
+        return e
+
+    def ratio(self, num, pieces) -> sympy.Expr:
+        out = edge.factored_expr(num, self.syms)
+        for p in pieces:
+            if not p.is_one():
+                out = out / self.expr(p)
+        return out
+
+
+_RATIONAL_MEMO: dict = {}
+
+
+def _rational_cached(e):
+    """:func:`rational` of a quantity's expression, kept while it is analysed (one entry)."""
+    hit = _RATIONAL_MEMO.get("e")
+    if hit is not None and hit[0] is e:
+        return hit[1], hit[2]
     r = rational(e)
+    _RATIONAL_MEMO.clear()             # also the derivatives of the previous expression
+    _RATIONAL_MEMO["e"] = (e, r, _Factors(r[2]) if r is not None else None)
+    return r, _RATIONAL_MEMO["e"][2]
+
+
+TOO_LONG = "too long"    # _rational_derivative: the expanded derivative is longer than the budget
+
+
+def _rational_derivative(e, x, budget: int | None = None):
+    """(dQ/dx, x/Q·dQ/dx) tidied, for a rational ``e``; None otherwise.
+
+    ``dQ/dx = (n'd - nd')/d^2`` and ``S = x (n'd - nd')/(n d)``: the denominators are never
+    multiplied out -- cancelled piece by piece (``d, d`` and ``n, d``) and written as
+    products of the factored pieces. ``budget``: a form whose printed numerator would
+    certainly exceed this many characters is not built (None in its place)."""
+    r, fac = _rational_cached(e)
     if r is None or x not in r[2]:
         return None
+    done = _RATIONAL_MEMO.setdefault("derivatives", {})
+    if x not in done:                   # _analyse asks again after derivative() did
+        done[x] = _rational_derivative_of(r, fac, x, budget)
+    return done[x]
+
+
+def _rational_derivative_of(r, fac, x, budget):
     n, d, syms = r
     i = syms.index(x)
-    num = n.derivative(i) * d - n * d.derivative(i)
-    dq = _factored(num, d * d, syms)
+    dn, dd = n.derivative(i), d.derivative(i)
+    num = dn * d - n * dd
+    if budget is not None and _too_long(num, budget):
+        return TOO_LONG
+    a, pieces = _cancel_pieces(num, [d, d])
+    dq = fac.ratio(a, pieces)
     if n.is_zero():
         return dq, None
     xg = n.context().gens()[i]
-    return dq, _factored(xg * num, n * d, syms)
+    a, pieces = _cancel_pieces(xg * num, [n, d])
+    return dq, fac.ratio(a, pieces)
 
 
 def agree(a, b, points: int = 3, seed: int = 5) -> bool:
@@ -227,7 +343,9 @@ def derivative(form: Form, x: sympy.Symbol, taken: Optional[set] = None):
     """
     if not form.defs:
         raw = sympy.diff(form.final, x)
-        fast = _rational_derivative(form.final, x)
+        fast = _rational_derivative(form.final, x, budget=len(str(raw)))
+        if fast is TOO_LONG:        # raw is the same rational function, shorter than expanded
+            return Form([], raw), raw
         best = raw if fast is None or len(str(raw)) < len(str(fast[0])) else fast[0]
         if fast is None and not raw.is_Atom:
             best = tidy(raw)
@@ -328,8 +446,11 @@ def _analyse(ctx, q, form: Form, nominal: dict) -> Analysed:
         taken |= {str(n) for n, _ in d.defs}
         if not form.defs:
             fast = _rational_derivative(form.final, x)
-            norm = fast[1] if fast is not None and fast[1] is not None \
-                else tidy(x * d.final / form.final)
+            if fast is TOO_LONG:
+                norm = x * d.final / form.final
+            else:
+                norm = fast[1] if fast is not None and fast[1] is not None \
+                    else tidy(x * d.final / form.final)
         else:
             norm = x * d.final / form.final
         dv = d.value(nominal)

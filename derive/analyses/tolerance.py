@@ -205,6 +205,66 @@ def _vec(form: Form):
     return f
 
 
+EXACT_PRODUCT_TERMS = 5e7     # largest len(n)*len(d) of a derivative numerator formed
+
+
+def exact_signs(form: Form, nominal: dict, box: dict) -> dict:
+    """{x: +1 or -1} for parts in which Q is proven strictly monotone on the box, exactly.
+
+    Q is rebuilt as a cancelled ratio ``n/d`` of flint polynomials (through its sequence, if
+    any). When every symbol is positive on the whole box (checked exactly) and the
+    coefficients of ``d`` share one sign, ``d`` has no zero on the box, and
+    ``dQ/dx = (n'd - nd')/d^2`` has the strict sign of the numerator wherever its
+    coefficients share one sign (a nonzero polynomial with positive coefficients is positive
+    at positive arguments). Parts not settled this way are left out (interval arithmetic
+    may still prove them)."""
+    r = _sens.rational(form.final, list(form.defs))
+    if r is None:
+        return {}
+    n, d, syms = r
+    for x in syms:
+        if x in box:
+            c, h = box[x]
+            if not c - h > 0:
+                return {}
+        elif x not in nominal or not nominal[x] > 0:
+            return {}
+    if _coefficient_sign(d) is None or len(n) * len(d) > EXACT_PRODUCT_TERMS:
+        return {}
+    out = {}
+    for x in box:
+        if x not in syms:
+            continue
+        i = syms.index(x)
+        sgn = _coefficient_sign(_derivative_numerator(n, d, i))
+        if sgn is not None:
+            out[x] = sgn
+    return out
+
+
+def _derivative_numerator(n, d, i):
+    """``n'd - nd'`` in generator ``i``. Where both are affine in it (a resistive network's
+    functions are multilinear), ``n = n0 + n1 x`` and ``d = d0 + d1 x`` give the shorter
+    products ``n1 d0 - n0 d1`` (the x terms cancel exactly)."""
+    dn, dd = n.derivative(i), d.derivative(i)
+    if n.degrees()[i] <= 1 and d.degrees()[i] <= 1:
+        x = n.context().gens()[i]
+        return dn * (d - dd * x) - (n - dn * x) * dd
+    return dn * d - n * dd
+
+
+def _coefficient_sign(p):
+    """+1 / -1 when every coefficient of the nonzero polynomial ``p`` is positive / negative."""
+    if p.is_zero():
+        return None
+    cs = p.coeffs()
+    if all(c > 0 for c in cs):
+        return 1
+    if all(c < 0 for c in cs):
+        return -1
+    return None
+
+
 def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
     """(low, high, method, monotone) of ``form`` over ``box`` (see module doc).
     ``dforms``: Symbol -> derivative Form; ``nominal``: Symbol -> Rational for all parts."""
@@ -212,13 +272,14 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
     env = {x: _widen(float(v), float(v)) for x, v in nominal.items()}
     env.update(fbox)
     mono, hi_pt, lo_pt, free = {}, {}, {}, []
+    exact = exact_signs(form, nominal, box) if box else {}
     for x, (c, h) in box.items():
         d = dforms.get(x)
         if d is None or (not d.defs and d.final == 0):
             mono[x] = "constant"
             hi_pt[x] = lo_pt[x] = c
             continue
-        sgn = derivative_sign(d, env, list(box))
+        sgn = exact.get(x) or derivative_sign(d, env, list(box))
         if sgn is None:
             mono[x] = "not proven"
             free.append(x)
@@ -229,8 +290,13 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
     if not free:
         lo = _real(form.value({**base, **lo_pt}))
         hi = _real(form.value({**base, **hi_pt}))
+        how = ("by the signs of the coefficients of its exact numerator and denominator"
+               if exact and all(x in exact for x in box if mono[x] != "constant") else
+               "by interval arithmetic" if not exact else
+               "by the signs of the coefficients of its exact numerator and denominator, or "
+               "by interval arithmetic")
         method = ("corners: monotone in every toleranced part (sign of dQ/dx proven constant "
-                  "over the box by interval arithmetic)" if box else "no toleranced parts")
+                  f"over the box {how})" if box else "no toleranced parts")
         return float(lo), float(hi), method, mono
     affine = [x for x in free if _affine(dforms[x], x)]
     if len(affine) == len(free) and len(free) <= 12:

@@ -7,6 +7,7 @@ intermediate quantities (node elimination). The shortest exact form becomes ``ex
 """
 from __future__ import annotations
 
+import flint
 import sympy
 
 from derive.solver import convert as edge
@@ -104,17 +105,78 @@ def exact_ratio(ctx, req, name):
 
 
 def cross_check(ctx, req):
-    """vth = isc * rth, exactly, wherever both exist."""
-    solver = _solver(ctx, req)
+    """vth = isc * rth wherever both exist, checked exactly at random rational points.
+
+    The three ratios come from the solver (vth and rth as reported, isc solved afresh from
+    its own bordered determinants) and are never multiplied out: each numerator and
+    denominator is evaluated exactly (flint ``fmpq``) at the same random rational point and
+    the identity is compared there (:func:`product_identity_holds`). Raises AssertionError
+    when the identity fails, or when no point with nonzero denominators is found.
+    """
     port = ctx.port(req.port)
-    rth = solver.rth(port)
+    rth = exact_ratio(ctx, req, "rth")
     if rth.is_zero:
         return True
-    isc = solver.isc(port)
-    vth = solver.vth(port)
-    if isc is None or not vth.equals(isc * rth):
+    isc = _solver(ctx, req).isc(port)
+    vth = exact_ratio(ctx, req, "vth")
+    if isc is None or not product_identity_holds(vth, [isc, rth]):
         raise AssertionError(f"internal check failed: vth != isc*rth at port {req.port}")
     return True
+
+
+CHECK_POINTS = 3            # independent random points an identity must pass
+CHECK_TRIES = 40            # draws allowed in all (points where a denominator vanishes redrawn)
+_CHECK_RANGE = 2 ** 62      # coordinates of the points drawn from 1..this (integers)
+
+
+def product_identity_holds(lhs, factors, points: int = CHECK_POINTS, tries: int = CHECK_TRIES,
+                           seed: int = 20240917) -> bool:
+    """Whether the exact ratio ``lhs`` equals the product of the ratios ``factors``.
+
+    Decided by exact evaluation at ``points`` random rational points (Schwartz-Zippel: the
+    polynomial ``lhs.num * prod(f.den) - lhs.den * prod(f.num)`` has total degree ``D`` at most
+    the sum of the degrees involved; if it is not identically zero it vanishes at a point
+    drawn uniformly from a grid of ``N`` values per coordinate with probability at most
+    ``D/N``; here the coordinates are integers drawn from ``1..N``, ``N = 2^62``, so a wrong
+    identity passes ``points`` independent draws with probability below ``(D/2^62)^points``;
+    integer points keep the evaluation in integer arithmetic). Only
+    numerators and denominators are evaluated -- no product or gcd of the polynomials is
+    formed. Points where a denominator vanishes are redrawn; if fewer than ``points`` usable
+    points are found in ``tries`` draws, AssertionError is raised (the check refuses rather
+    than passes). All ratios must share one ring (one system's context).
+
+    >>> import flint
+    >>> from derive.solver.cramer import Ratio
+    >>> c = flint.fmpq_mpoly_ctx.get(("a", "b"), "lex"); a, b = c.gens()
+    >>> r = lambda n, d: Ratio(n, d, None)
+    >>> product_identity_holds(r(a, b), [r(a, a + b), r(a + b, b)])
+    True
+    >>> product_identity_holds(r(a, b), [r(a, a + b), r(a + b, a)])
+    False
+    """
+    import random
+    rnd = random.Random(seed)
+    ctx = lhs.num.context()
+    nv = ctx.nvars()
+    polys = [(lhs.num, lhs.den)] + [(f.num, f.den) for f in factors]
+    passed = 0
+    for _ in range(tries):
+        pt = [flint.fmpq(rnd.randint(1, _CHECK_RANGE)) for _ in range(nv)]
+        dens = [d(*pt) for _, d in polys]
+        if any(d == 0 for d in dens):
+            continue            # a denominator vanishes here: draw another point
+        nums = [n(*pt) for n, _ in polys]
+        left = nums[0] / dens[0]
+        right = flint.fmpq(1)
+        for n, d in zip(nums[1:], dens[1:]):
+            right *= n / d
+        if left != right:
+            return False
+        passed += 1
+        if passed == points:
+            return True
+    raise AssertionError(f"internal check refused: only {passed} of {points} random points "
+                         f"with nonzero denominators found in {tries} draws")
 
 
 def compact(ctx, req, q):

@@ -1,0 +1,212 @@
+#!/usr/bin/env python
+"""Whole-derivation timings and the share spent verifying steps, against a naive route.
+
+    python benchmarks/bench_verify.py [--quick] [--timeout S] [--json FILE]
+
+Cases (every resistor symbolic, the circuits of bench_solver.py): ladders of 2..32 sections
+driven by a voltage source (``find thevenin at out``) and square grids of 3x3..6x6 nodes fed
+by a current source (``find resistance at out``). Each case runs in a fresh subprocess
+through the public API (``derive.derive_text``, timed with ``time.perf_counter``); inside it,
+the verification functions are wrapped (in this benchmark only) and their time summed,
+outermost calls only:
+
+  steps.Step.verify / steps.equal        every displayed equation
+  derivation_nodal._random_solve_agrees   exact solves of the nodal equations
+  derivation_nodal.Nodal.agrees_with_stamps, forms.cross_check, sensitivity.agree
+
+Printed per case: total time, verification time and its share, and the expected size of
+the expanded result. Targets, each printed as met / NOT met from this run's numbers:
+
+1. verification <= half of the total on every case;
+2. total time monotone in size within each family (each case no faster than the one
+   before it; a non-monotone step is listed);
+3. ladder 8 against a naive route measured in the same run: the KCL equations into
+   ``sympy.solve``, then ``sympy.cancel`` of the output voltage (vth only -- less than
+   derive does), ratio naive/derive >= 10x.
+
+Verification of step equations (steps.equal) is being rewritten elsewhere to evaluate in
+exact flint rationals; its time is reported here as measured.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import time
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+ROOT = os.path.dirname(HERE)
+sys.path.insert(0, ROOT)
+sys.path.insert(0, HERE)
+
+from bench_solver import circuit, run_naive, sheet_text   # noqa: E402
+
+LADDERS = list(range(2, 33))
+GRIDS = [3, 4, 5, 6]
+
+
+# ----------------------------------------------------------------------------- worker
+class _Clock:
+    """Sums the time of the outermost calls of the wrapped functions."""
+
+    def __init__(self):
+        self.total = 0.0
+        self.depth = 0
+        self.calls = {}
+
+    def wrap(self, owner, name):
+        fn = getattr(owner, name)
+        clock = self
+
+        def timed(*a, **k):
+            clock.calls[name] = clock.calls.get(name, 0) + 1
+            if clock.depth:
+                return fn(*a, **k)
+            clock.depth += 1
+            t = time.perf_counter()
+            try:
+                return fn(*a, **k)
+            finally:
+                clock.total += time.perf_counter() - t
+                clock.depth -= 1
+        setattr(owner, name, timed)
+
+
+def worker(case: str):
+    import derive
+    from derive.derivation import port_steps as derivation
+    from derive.derivation import nodal_steps as derivation_nodal
+    from derive.forms import select as forms
+    from derive.analyses import sensitivity
+    from derive.derivation import steps
+
+    derive.derive_text(sheet_text("ladder2"))           # warm-up: imports, grammar
+    clock = _Clock()
+    clock.wrap(steps.Step, "verify")
+    clock.wrap(steps, "equal")
+    if getattr(derivation, "equal", None) is not None:
+        derivation.equal = steps.equal
+    clock.wrap(derivation_nodal, "_random_solve_agrees")
+    clock.wrap(derivation_nodal.Nodal, "agrees_with_stamps")
+    clock.wrap(forms, "cross_check")
+    clock.wrap(sensitivity, "agree")
+    text = sheet_text(case)
+    t = time.perf_counter()
+    rec = derive.derive_text(text, f"{case}.eqv")
+    total = time.perf_counter() - t
+    verified = all(s.verified for r in rec.results for s in r.steps)
+    q = rec.results[0].quantities
+    forms_used = {n: x.form for n, x in q.items()}
+    print("RESULT " + json.dumps(dict(total=total, verify=clock.total, calls=clock.calls,
+                                      verified=verified, forms=forms_used,
+                                      steps=sum(len(r.steps) for r in rec.results))))
+
+
+def naive_worker(case: str):
+    r = run_naive(case)
+    print("RESULT " + json.dumps(r))
+
+
+def spawn(mode, case, timeout):
+    cmd = [sys.executable, os.path.abspath(__file__), mode, case]
+    t = time.perf_counter()
+    try:
+        p = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, cwd=ROOT)
+    except subprocess.TimeoutExpired:
+        return {"status": f"timeout>{timeout:g}s"}
+    for line in p.stdout.splitlines():
+        if line.startswith("RESULT "):
+            r = json.loads(line[7:])
+            r["status"] = "ok"
+            r["process"] = time.perf_counter() - t
+            return r
+    tail = (p.stderr.strip().splitlines() or ["?"])[-1]
+    return {"status": "error", "error": tail[-200:]}
+
+
+def est_terms(case):
+    from derive.solver import determinant as K
+    from bench_solver import nodal
+    m, _, _ = nodal(case)
+    return K.estimate_det_terms(m)
+
+
+def fmt(t):
+    return "-" if t is None else (f"{t * 1e3:.0f} ms" if t < 1 else f"{t:.2f} s")
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true", help="ladders 2..16 step 2, grids 3..5")
+    ap.add_argument("--timeout", type=float, default=300.0, help="per case, seconds")
+    ap.add_argument("--naive-timeout", type=float, default=600.0)
+    ap.add_argument("--json")
+    ap.add_argument("--worker", nargs=1, help=argparse.SUPPRESS)
+    ap.add_argument("--naive-worker", nargs=1, help=argparse.SUPPRESS)
+    args = ap.parse_args()
+    if args.worker:
+        return worker(args.worker[0])
+    if args.naive_worker:
+        return naive_worker(args.naive_worker[0])
+    ladders = list(range(2, 17, 2)) if args.quick else LADDERS
+    grids = GRIDS[:-1] if args.quick else GRIDS
+    cases = [f"ladder{n}" for n in ladders] + [f"grid{n}" for n in grids]
+    print(f"python {sys.version.split()[0]}, cpus {os.cpu_count()}, load average "
+          f"{os.getloadavg()[0]:.1f} (wall-clock timings; a loaded machine inflates them)")
+    hdr = (f"{'case':9} {'est.terms':>11} {'total':>10} {'verify':>10} {'share':>6} "
+           f"{'forms':28} status")
+    print(hdr)
+    print("-" * len(hdr))
+    rows = {}
+    for case in cases:
+        r = spawn("--worker", case, args.timeout)
+        rows[case] = r
+        est = est_terms(case)
+        if r["status"] == "ok":
+            share = r["verify"] / r["total"] if r["total"] else 0.0
+            fm = ",".join(f"{k}:{v}" for k, v in r["forms"].items())
+            print(f"{case:9} {est:>11.4g} {fmt(r['total']):>10} {fmt(r['verify']):>10} "
+                  f"{share * 100:>5.0f}% {fm[:28]:28} ok{'' if r['verified'] else ' UNVERIFIED'}",
+                  flush=True)
+        else:
+            print(f"{case:9} {est:>11.4g} {'-':>10} {'-':>10} {'-':>6} {'':28} {r['status']} "
+                  f"{r.get('error', '')}", flush=True)
+    # ---- naive route, ladder 8, same run
+    naive = spawn("--naive-worker", "ladder8", args.naive_timeout)
+    print()
+    ok = [c for c, r in rows.items() if r["status"] == "ok"]
+    bad_share = [c for c in ok if rows[c]["verify"] > 0.5 * rows[c]["total"]]
+    failed = [c for c, r in rows.items() if r["status"] != "ok"]
+    print(f"target 1, verification <= half of the total on every case: "
+          f"{'met' if not bad_share and not failed else 'NOT met'}"
+          + (f" (over half: {', '.join(bad_share)})" if bad_share else "")
+          + (f" (did not finish: {', '.join(failed)})" if failed else ""))
+    for fam, sizes in (("ladder", ladders), ("grid", grids)):
+        seq = [(f"{fam}{n}", rows[f"{fam}{n}"]) for n in sizes]
+        steps = [(a, b) for (a, ra), (b, rb) in zip(seq, seq[1:])
+                 if ra["status"] == rb["status"] == "ok" and rb["total"] < ra["total"]]
+        print(f"target 2, {fam} total time monotone in size: "
+              f"{'met' if not steps else 'NOT met'}"
+              + ("" if not steps else " (faster than the smaller case: " +
+                 ", ".join(f"{b} {fmt(rows[b]['total'])} < {a} {fmt(rows[a]['total'])}"
+                           for a, b in steps) + ")"))
+    d8 = rows.get("ladder8")
+    if d8 and d8["status"] == "ok" and naive["status"] == "ok":
+        ratio = naive["t_total"] / d8["total"]
+        print(f"target 3, ladder8 naive (sympy.solve + cancel of vth only) / derive (whole "
+              f"find thevenin, steps verified): {fmt(naive['t_total'])} / {fmt(d8['total'])} "
+              f"= {ratio:.1f}x ({'met' if ratio >= 10 else 'NOT met'}, target >= 10x)")
+    elif d8 and d8["status"] == "ok" and naive["status"].startswith("timeout"):
+        print(f"target 3, ladder8 naive route {naive['status']}: ratio >= "
+              f"{args.naive_timeout / d8['total']:.0f}x (met)")
+    else:
+        print(f"target 3: not measured (derive {d8 and d8['status']}, naive {naive['status']})")
+    if args.json:
+        with open(args.json, "w") as f:
+            json.dump({"cases": rows, "naive_ladder8": naive}, f, indent=1)
+
+
+if __name__ == "__main__":
+    main()
