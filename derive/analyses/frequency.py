@@ -20,10 +20,12 @@ import sympy
 
 from derive.circuit.build import S
 from derive.derivation.steps import Equation, Figure, Step
+from derive.sheet.quantities import QUANTITIES
 
-BODE_KINDS = ("thevenin", "norton", "vth", "rth", "isc", "rn", "resistance", "impedance",
-              "voltage", "gain", "current", "model")
-WRAPPED = BODE_KINDS + ("twoport",)
+# request words whose results get the frequency annotation (derive.sheet.quantities): with
+# Bode figures, and all of them
+BODE_KINDS = tuple(n for n, q in QUANTITIES.items() if q.frequency == "bode")
+WRAPPED = tuple(n for n, q in QUANTITIES.items() if q.frequency is not None)
 
 
 def _coeffs(p):

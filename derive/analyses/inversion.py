@@ -19,17 +19,19 @@ from derive.forms import select as forms
 from derive.forms import elimination as sequence
 from derive.circuit.build import key_of
 from derive.errors import SheetError
+from derive.sheet import quantities
 from derive.export.printing import to_latex, to_text
 from derive.derivation.steps import Equation, Step
 
 
 def quantity_of(ctx, req):
     """(name, closed form, QuantityResult) of the single quantity a solve/check names."""
-    if req.quantity in forms.GROUPS:
-        pair = " or ".join(forms.GROUPS[req.quantity])
+    q = quantities.quantity(req.quantity)
+    if q.family == "basic" and len(q.members) > 1:
+        pair = " or ".join(q.members)
         raise SheetError(f"'{req.statement}' takes one quantity: {pair}, not "
                          f"{req.quantity}", req.loc.line, req.loc.col)
-    if req.quantity not in forms.UNITS and req.quantity != "gain":
+    if not quantities.accepts(req.statement, req.quantity):
         raise SheetError(f"'{req.statement}' is not offered for {req.quantity}",
                          req.loc.line, req.loc.col)
     q = forms.port_quantities(ctx, req)[0]

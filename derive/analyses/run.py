@@ -14,6 +14,7 @@ import sympy
 from derive.circuit.build import Circuit, key_of
 from derive.errors import NotAvailableYet, SheetError
 from derive.forms import select as forms
+from derive.sheet.quantities import of_family
 
 
 @dataclass
@@ -87,8 +88,7 @@ def handler(*quantities):
     return deco
 
 
-@handler("thevenin", "norton", "vth", "rth", "isc", "rn", "resistance", "impedance",
-         "voltage", "gain", "current")
+@handler(*of_family("basic"))
 def _basic(ctx: Context, req) -> RequestResult:
     out = RequestResult(req)
     for q in forms.port_quantities(ctx, req):

@@ -47,6 +47,7 @@ from derive.forms import select as forms
 from derive.analyses.run import Context, RequestResult, handler
 from derive.circuit.build import S as LAPLACE_S
 from derive.errors import SheetError
+from derive.sheet import quantities
 from derive.export.printing import to_text
 from derive.derivation.steps import Equation, Step, compare
 
@@ -404,7 +405,7 @@ def full_context(ctx: Context) -> Context:
 
 
 def _check_scalar(req):
-    if req.quantity in ("model", "twoport"):
+    if not quantities.accepts(req.analysis or "sensitivity", req.quantity):
         raise SheetError(f"sensitivity/tolerance of '{req.quantity}' is not offered: ask for one "
                          "scalar quantity (vth, rth, isc, rn, resistance, impedance, voltage, "
                          "current, gain)", req.loc.line, req.loc.col)

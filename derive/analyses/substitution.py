@@ -27,6 +27,7 @@ from derive.analyses import run as analysis
 from derive.solver import convert as edge
 from derive.circuit.build import S, CElement, Control
 from derive.errors import SheetError
+from derive.sheet import quantities
 from derive.sheet.model import Loc
 from derive.analyses.sections import Dets
 from derive.derivation.steps import Equation, Step
@@ -144,7 +145,8 @@ def _compare(ctx, req, result, fn):
     from derive.forms import select as forms
     full_ctx = analysis.Context(ctx.circuit.full_circuit, ctx.options)
     err = {}
-    if req.quantity not in ("model", "twoport"):
+    section = quantities.quantity(req.quantity).family == "section"
+    if not section:
         full_q = {q.name: q for q in forms.port_quantities(full_ctx, req)}
         for q in forms.port_quantities(ctx, req):
             f = full_q.get(q.name)
@@ -153,7 +155,7 @@ def _compare(ctx, req, result, fn):
     # a section model or two-port has no port quantity above: its own results are compared;
     # a check is answered on the full circuit too. (The root of ``solve`` at nominal values
     # is the symbol's nominal value on either circuit: its Q above is what differs.)
-    if req.quantity in ("model", "twoport") or "holds" in result.extra:
+    if section or "holds" in result.extra:
         full = fn(full_ctx, req)
         for name, q in result.quantities.items():
             if name not in err:

@@ -14,12 +14,11 @@ from typing import Optional
 import sympy
 
 from derive.errors import SheetError
+from derive.sheet import kinds
 from derive.sheet.expressions import names_in, to_sympy
 from derive.sheet.model import Call, Element, Loc, Name, OpAmp, Sheet, Use
 from derive.circuit.topology import check_topology, dependent_cuts
 
-UNIT_OF_KIND = {"resistor": "ohm", "conductance": "S", "capacitor": "F", "inductor": "H",
-                "impedance": "ohm", "admittance": "S", "vsource": "V", "isource": "A"}
 S = sympy.Symbol("s")
 
 
@@ -85,7 +84,7 @@ class CElement:
 
     @property
     def independent_source(self) -> bool:
-        return self.kind in ("vsource", "isource") and not self.controls
+        return kinds.kind(self.kind).source is not None and not self.controls
 
 
 @dataclass
@@ -193,7 +192,7 @@ class _Builder:
         self.register_key(name, st.loc)
         nodes = tuple(scope.node(n) for n in st.nodes)
         mapped = scope.mappings.get(st.name, (None,))[0]
-        if st.kind in ("vsource", "isource") and st.value is not None and st.value.expr is not None \
+        if kinds.kind(st.kind).source is not None and st.value is not None and st.value.expr is not None \
                 and mapped is None and _has_control(st.value.expr):
             controls = self.controls(st.value.expr, scope, st.loc)
             self.elements.append(CElement(name, st.kind, nodes, None, st.loc, controls,
@@ -395,7 +394,7 @@ def _symbols(b: _Builder, sheet: Sheet) -> dict:
     for display, loc in b.used.items():
         k = key_of(display)
         kind, value, eloc = b.own.get(display, ("param", None, loc))
-        unit = UNIT_OF_KIND.get(kind)
+        unit = None if kind == "param" else kinds.kind(kind).unit
         info = SymbolInfo(k, display, kind, unit, loc=eloc)
         src = None
         if value is not None and value.quantity is not None:

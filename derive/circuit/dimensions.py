@@ -18,6 +18,7 @@ from fractions import Fraction
 
 import sympy
 
+from derive.sheet import kinds
 from derive.sheet.model import BinOp, Call, Name, Neg, Num
 
 VOLT = (Fraction(1), Fraction(0), Fraction(0))
@@ -46,8 +47,6 @@ PER_SECOND = power(SECOND, -1)
 
 OF_UNIT = {"ohm": OHM, "S": SIEMENS, "F": FARAD, "H": HENRY, "V": VOLT, "A": AMP,
            "Hz": PER_SECOND, "V/V": NONE}
-OF_KIND = {"resistor": OHM, "conductance": SIEMENS, "capacitor": FARAD, "inductor": HENRY,
-           "impedance": OHM, "admittance": SIEMENS, "vsource": VOLT, "isource": AMP}
 _NAMES = [(OHM, "Ω"), (SIEMENS, "S"), (VOLT, "V"), (AMP, "A"), (FARAD, "F"), (HENRY, "H"),
           (PER_SECOND, "1/s"), (SECOND, "s")]
 _SUP = str.maketrans("0123456789-/", "⁰¹²³⁴⁵⁶⁷⁸⁹⁻ᐟ")
@@ -70,9 +69,15 @@ def show(d) -> str:
 
 def of_symbol(info) -> tuple:
     """The dimension of a circuit symbol (a :class:`~derive.circuit.build.SymbolInfo`)."""
-    if info.kind in OF_KIND:
-        return OF_KIND[info.kind]
+    if info.kind != "param":               # an element's symbol: its kind's unit
+        return of_kind(info.kind)
     return OF_UNIT.get(info.unit, NONE)
+
+
+def of_kind(name: str) -> tuple:
+    """The dimension of the value of an element of kind ``name`` (the dimension of its unit
+    in :mod:`derive.sheet.kinds`; an unknown kind raises there)."""
+    return OF_UNIT[kinds.kind(name).unit]
 
 
 def symbol_dims(circuit) -> dict:

@@ -3,10 +3,9 @@ from __future__ import annotations
 
 from derive.circuit.build import key_of
 from derive.errors import SheetError
+from derive.sheet import quantities
 from derive.sheet.expressions import names_in
 
-PORT_QUANTITIES = ("thevenin", "norton", "vth", "rth", "isc", "rn", "resistance", "impedance",
-                   "voltage", "gain")
 
 
 def _loc(req, what):
@@ -22,7 +21,7 @@ def check_requests(c) -> None:
             if p is not None and p not in c.ports:
                 known = ", ".join(sorted(c.ports)) or "none defined"
                 raise SheetError(f"unknown port {p!r} (ports: {known})", *_loc(r, what))
-        if r.quantity in PORT_QUANTITIES and r.port is None:
+        if quantities.quantity(r.quantity).needs_port and r.port is None:
             raise SheetError(f"{r.quantity} needs a port ('at PORT')", r.loc.line, r.loc.col)
         if r.element is not None and r.element not in names:
             raise SheetError(f"unknown element {r.element!r}", *_loc(r, "element"))

@@ -7,9 +7,17 @@ these checks name the elements and nodes at fault before any algebra is attempte
 from __future__ import annotations
 
 from derive.errors import SheetError
+from derive.sheet import kinds
 
-# elements that fix a voltage between their nodes (for loop checks)
-_VOLTAGE_KINDS = ("vsource",)
+
+def _fixes_voltage(e) -> bool:
+    """Whether an element fixes a voltage (a voltage source; a nullor's output to ground)."""
+    k = kinds.kind(e.kind)
+    return k.source == "voltage" or k.stamp == "nullor"
+
+
+def _current_source(e) -> bool:
+    return kinds.kind(e.kind).source == "current"
 
 
 class _DSU:
@@ -74,7 +82,7 @@ def check_topology(elements, ground, ground_loc=None) -> list:
     dsu = _DSU()
     adj: dict = {}
     for e in elements:
-        if e.kind in _VOLTAGE_KINDS or e.kind == "nullor":
+        if _fixes_voltage(e):
             a, b = (e.nodes[2], ground) if e.kind == "nullor" else e.nodes
             if a == b:
                 raise SheetError(f"voltage source {e.name!r} is shorted (both ends on {a!r})",
@@ -99,7 +107,7 @@ def check_topology(elements, ground, ground_loc=None) -> list:
     for root, members in groups.items():
         if root == groot:
             continue
-        cut = [e for e in elements if e.kind == "isource"
+        cut = [e for e in elements if _current_source(e)
                and (dsu.find(e.nodes[0]) == root) != (dsu.find(e.nodes[1]) == root)]
         first = next(e for e in elements if any(n in members for n in e.nodes))
         shown = ", ".join(members)
@@ -121,7 +129,7 @@ def _connectivity(elements, ground, nodes, dependent: bool) -> _DSU:
     for n in nodes:
         dsu.find(n)
     for e in elements:
-        if e.kind == "isource" and not (dependent and e.controls):
+        if _current_source(e) and not (dependent and e.controls):
             continue
         for a, b in _edges(e, ground):
             dsu.union(a, b)
@@ -142,7 +150,7 @@ def dependent_cuts(elements, ground, nodes) -> list:
     for root, members in groups.items():
         if root == groot:
             continue
-        cut = [e for e in elements if e.kind == "isource" and e.controls
+        cut = [e for e in elements if _current_source(e) and e.controls
                and (plain.find(e.nodes[0]) == root) != (plain.find(e.nodes[1]) == root)]
         if cut:
             out.append((members, cut))

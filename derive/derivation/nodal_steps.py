@@ -26,6 +26,7 @@ import flint
 import sympy
 
 from derive.forms import select as forms
+from derive.sheet import kinds
 from derive.forms.elimination import _entry_expr
 from derive.derivation.steps import ATTEMPTS, POINTS, Equation, Program, Step, random_point
 
@@ -34,9 +35,11 @@ MAX_CRAMER = 4        # unknowns up to which determinants are written out (symbo
 
 
 def _admittance(e, v):
+    """The admittance of an element stamped as one (``1/R``, ``G``, ``s·C``, ``Y``)."""
     from derive.circuit.build import S
-    return {"resistor": lambda: 1 / v, "conductance": lambda: v, "capacitor": lambda: S * v,
-            "admittance": lambda: v}.get(e.kind, lambda: None)()
+    if kinds.kind(e.kind).stamp != "admittance":
+        raise ValueError(f"element {e.name!r} is not stamped as an admittance")
+    return kinds.admittance(e.kind, v, S)
 
 
 class Nodal:
@@ -87,7 +90,7 @@ class Nodal:
         e = self.circuit.element(name)
         if e.name in self.system.branch_index:
             return self.unknowns[self.system.branch_index[e.name]]
-        if e.kind == "isource":
+        if kinds.kind(e.kind).stamp == "current":
             return self.control(e, seen + (name,)) if e.controls else self.ph[e.name]
         a, b = e.nodes
         return _admittance(e, self.value(e)) * (self.v(a) - self.v(b))
@@ -114,7 +117,8 @@ class Nodal:
         touching = {n: [] for n in self.system.node_index}
         laws = []
         for e in c.elements:
-            if e.kind == "nullor":
+            k = kinds.kind(e.kind)
+            if k.stamp == "nullor":
                 inp, inn, out = e.nodes
                 j = self.unknowns[self.system.branch_index[e.name]]
                 if out in leaving:
@@ -127,12 +131,12 @@ class Nodal:
             for n in (a, b):
                 if n in touching:
                     touching[n].append(e.name)
-            if e.kind == "isource":
-                k = self.control(e) if e.controls else self.ph[e.name]
+            if k.stamp == "current":
+                drive = self.control(e) if e.controls else self.ph[e.name]
                 if a in driven:
-                    driven[a] -= k
+                    driven[a] -= drive
                 if b in driven:
-                    driven[b] += k
+                    driven[b] += drive
                 continue
             i = self.current(e.name)
             if a in leaving:
@@ -141,10 +145,8 @@ class Nodal:
                 leaving[b] -= i
             if e.name in self.system.branch_index:
                 j = self.unknowns[self.system.branch_index[e.name]]
-                if e.kind == "inductor":
-                    rhs = S * self.value(e) * j
-                elif e.kind == "impedance":
-                    rhs = self.value(e) * j
+                if k.immittance == "impedance":          # v = Z·i: s·L·i, Z·i
+                    rhs = kinds.impedance(e.kind, self.value(e), S) * j
                 else:
                     rhs = self.control(e) if e.controls else self.ph[e.name]
                 laws.append((e.name, self.v(a) - self.v(b), rhs, e.name))

@@ -29,9 +29,9 @@ from derive.forms import select as forms
 from derive.forms import series_parallel as reduce
 from derive.derivation.nodal_steps import Nodal, cramer_step, equation_steps
 from derive.derivation.steps import Equation, NotRational, Program, Step, exact_value, fmpq_of, to_float, to_rational
+from derive.sheet.quantities import twin
 from derive.sheet.units import format_eng
 
-TWIN = {"rn": "rth", "resistance": "rth", "impedance": "rth", "voltage": "vth"}
 
 
 class StepFailed(AssertionError):
@@ -120,7 +120,7 @@ def _label(b) -> str:
 
 
 def _reduction_steps(ctx, req, out, refs):
-    bases = {n: TWIN.get(n, n) for n in out.quantities}
+    bases = {n: twin(n) for n in out.quantities}
     need_src = any(b in ("vth", "isc", "gain") for b in bases.values())
     res = reduce.reduction(ctx, req.port, zero=not need_src)
     if res is None or res[0] is None or res[0].ideal_current:
@@ -300,10 +300,10 @@ def _nodal_port_steps(ctx, req, out, refs):
     names = list(out.quantities)
     if "isc" in names:          # isc = vth/rth: both first (rth too when not requested)
         names = ["vth"] + [n for n in names if n not in ("isc", "vth")] + ["isc"]
-        if not any(TWIN.get(m, m) == "rth" for m in names):
+        if not any(twin(m) == "rth" for m in names):
             names.insert(1, "rth")
     for n in names:
-        base = TWIN.get(n, n)
+        base = twin(n)
         q = out.quantities.get(n)
         ref = (refs.get(n) if refs.get(n) is not None else _ref(q)) if q is not None \
             else _exact(ctx, req, n)
@@ -321,7 +321,7 @@ def _nodal_port_steps(ctx, req, out, refs):
                                      tag={"vth": "", "gain": "g", "rth": "t"}[base]))
         elif base == "isc":
             v, r = _exact(ctx, req, "vth"), _exact(ctx, req, "rth")
-            rname = next(m for m in names if TWIN.get(m, m) == "rth")
+            rname = next(m for m in names if twin(m) == "rth")
             syms = {sympy.Symbol("vth"): v, sympy.Symbol(rname): r}
             eq = Equation(sympy.Symbol(n), sympy.Symbol("vth") / sympy.Symbol(rname),
                           check=ref, defs=syms)
@@ -426,7 +426,7 @@ def _ratio_value(ratio, nominal):
 def _nodal_value(ctx, req, name, nominal):
     """The quantity at nominal values from an exact solve of the nodal equations there."""
     nodal = _nodal(ctx)
-    base = TWIN.get(name, name)
+    base = twin(name)
     if base == "isc":
         v, r = (_nodal_value(ctx, req, n, nominal) for n in ("vth", "rth"))
         return None if v is None or not r else v / r

@@ -18,6 +18,8 @@ import sympy
 from sympy.printing.latex import LatexPrinter
 from sympy.printing.str import StrPrinter
 
+from derive.sheet.quantities import QUANTITIES
+
 
 class _TextPrinter(StrPrinter):
     def _print_ImaginaryUnit(self, expr):
@@ -83,11 +85,8 @@ def latex_name(key: str) -> str:
     return r"\mathit{" + _esc(key) + "}" if len(key) > 1 else key
 
 
-_QUANTITY = {"vth": r"v_{\mathrm{th}}", "rth": r"R_{\mathrm{th}}", "isc": r"i_{\mathrm{sc}}",
-             "rn": r"R_{\mathrm{N}}", "rin": r"R_{\mathrm{in}}", "rout": r"R_{\mathrm{out}}",
-             "gain": r"\mathrm{gain}", "resistance": r"\mathrm{resistance}",
-             "impedance": r"\mathrm{impedance}", "voltage": r"\mathrm{voltage}",
-             "current": r"\mathrm{current}"}
+# quantity names typeset as such (derive.sheet.quantities)
+_QUANTITY = {n: q.tex for n, q in QUANTITIES.items() if q.tex}
 
 
 def _esc(t: str) -> str:

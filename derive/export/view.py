@@ -9,11 +9,9 @@ from __future__ import annotations
 
 import sympy
 
-from derive.circuit.build import UNIT_OF_KIND
 from derive.export.printing import equation_lines, to_latex
+from derive.sheet import kinds as element_kinds
 from derive.sheet.units import format_eng
-
-KIND_WORD = {"vsource": "voltage source", "isource": "current source", "nullor": "ideal op-amp"}
 
 # Extra-low voltage limits of IEC 61140 (from memory): 50 V a.c. r.m.s., 120 V ripple-free
 # d.c. A sheet does not say whether a source is ripple-free, so the lower figure is used.
@@ -32,7 +30,7 @@ def elements(circuit) -> list:
     rows = []
     nominal = circuit.nominal_values()
     for e in circuit.elements:
-        kind = KIND_WORD.get(e.kind, e.kind)
+        kind = element_kinds.kind(e.kind).word
         if e.dependent:
             kind = "dependent " + kind
         sym = to_latex(e.value) if e.value is not None else ""
@@ -42,7 +40,7 @@ def elements(circuit) -> list:
         if e.value is not None:
             v = e.value.xreplace(nominal)
             if v.is_number:
-                nom = _value_text(float(v), UNIT_OF_KIND.get(e.kind))
+                nom = _value_text(float(v), element_kinds.kind(e.kind).unit)
         info = circuit.symbols.get(e.key)
         tol = ""
         if info is not None and info.tolerance is not None:
@@ -60,12 +58,13 @@ def _ctl(ctl):
 
 def assumptions(circuit) -> list:
     kinds = {e.kind for e in circuit.elements}
+    facts = [element_kinds.kind(k) for k in kinds]
     out = ["The circuit is linear and lumped: every element obeys its ideal constitutive law, "
            "wires have no resistance, and nothing couples except through the drawn "
            "connections.",
            "Sources are ideal: a voltage source holds its voltage and a current source its "
            "current whatever the load."]
-    if "nullor" in kinds:
+    if any(k.stamp == "nullor" for k in facts):
         out.append("Op-amps marked ideal have infinite gain, no input current and zero output "
                    "resistance (no voltage between their inputs), and stay in their linear "
                    "range.")
@@ -75,7 +74,7 @@ def assumptions(circuit) -> list:
     if any(e.dependent and not e.internal for e in circuit.elements):
         out.append("Dependent sources are small-signal models, valid about their operating "
                    "point.")
-    if kinds & {"capacitor", "inductor", "impedance", "admittance"}:
+    if any(k.reactive for k in facts):
         out.append("Results with s are Laplace-domain transfer functions with zero initial "
                    "conditions.")
     return out
@@ -86,7 +85,8 @@ def cautions(circuit) -> list:
     nominal = circuit.nominal_values()
     high = []
     for e in circuit.elements:
-        if e.kind == "vsource" and e.independent_source and e.value is not None:
+        if element_kinds.kind(e.kind).source == "voltage" and e.independent_source \
+                and e.value is not None:
             v = e.value.xreplace(nominal)
             if v.is_number and abs(float(v)) > ELV_LIMIT:
                 high.append(f"{e.name} ({format_eng(float(v), 'V')})")

@@ -13,6 +13,7 @@ import random
 
 import sympy
 
+from derive.sheet import quantities
 from derive.solver import convert as edge
 
 
@@ -123,7 +124,7 @@ def quantity_sequence(ctx, req, name):
     """(sequence, final expression, value at nominal) for a port/branch quantity."""
     from derive.forms.select import system_of
     system = system_of(ctx)
-    base = {"rn": "rth", "resistance": "rth", "impedance": "rth", "voltage": "vth"}.get(name, name)
+    base = quantities.twin(name)
     port = ctx.port(req.port) if req.port else None
     reserved = set(ctx.circuit.symbols)
     sign = -1

@@ -12,14 +12,11 @@ import sympy
 
 from derive.solver import convert as edge
 from derive.errors import SheetError
+from derive.sheet import kinds, quantities
 from derive.solver.determinant import estimate_det_terms
 from derive.solver.stamping import System
 from derive.solver.cramer import Solver
 
-GROUPS = {"thevenin": ["vth", "rth"], "norton": ["isc", "rn"]}
-UNITS = {"vth": "V", "rth": "ohm", "isc": "A", "rn": "ohm", "resistance": "ohm",
-         "impedance": "ohm", "voltage": "V", "current": "A"}
-TWIN = {"rn": "rth", "resistance": "rth", "impedance": "rth", "voltage": "vth"}
 
 
 def system_of(ctx) -> System:
@@ -41,11 +38,11 @@ def expandable(ctx) -> bool:
 
 def gain_unit(ctx, source):
     e = ctx.circuit.element(source)
-    return "V/V" if e.kind == "vsource" else "ohm"
+    return kinds.kind(e.kind).gain_unit
 
 
 def names_for(req):
-    return GROUPS.get(req.quantity, [req.quantity])
+    return list(quantities.members(req.quantity))
 
 
 def port_quantities(ctx, req) -> list:
@@ -53,7 +50,7 @@ def port_quantities(ctx, req) -> list:
     from derive.analyses.run import QuantityResult
     out = []
     for name in names_for(req):
-        unit = gain_unit(ctx, req.source) if name == "gain" else UNITS[name]
+        unit = gain_unit(ctx, req.source) if name == "gain" else quantities.unit(name)
         ratio = exact_ratio(ctx, req, name) if expandable(ctx) else None
         q = QuantityResult(name, None, None, unit, ratio=ratio)
         if ratio is not None:
@@ -72,8 +69,7 @@ def port_quantities(ctx, req) -> list:
 
 
 def _reactive(ctx) -> bool:
-    return any(e.kind in ("capacitor", "inductor", "impedance", "admittance")
-               for e in ctx.circuit.elements)
+    return any(kinds.kind(e.kind).reactive for e in ctx.circuit.elements)
 
 
 def exact_ratio(ctx, req, name):
@@ -83,7 +79,7 @@ def exact_ratio(ctx, req, name):
         return ctx.cache[key]
     solver = _solver(ctx, req)
     port = ctx.port(req.port) if req.port else None
-    base = TWIN.get(name, name)
+    base = quantities.twin(name)
     if base == "vth":
         r = solver.vth(port)
     elif base == "rth":

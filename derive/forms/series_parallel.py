@@ -22,6 +22,7 @@ from dataclasses import dataclass, field
 import sympy
 
 from derive.circuit.build import S
+from derive.sheet import kinds, quantities
 
 
 @dataclass
@@ -51,19 +52,20 @@ def branches_of(circuit, subs=None):
     """Branches of a circuit, or None if it has parts that are not two-terminal."""
     out = []
     for e in circuit.elements:
-        if e.controls or e.kind == "nullor":
+        k = kinds.kind(e.kind)
+        if e.controls or k.terminals != 2:
             return None
         v = e.value.xreplace(subs) if subs and e.value is not None else e.value
         a, b = e.nodes
-        z = {"resistor": lambda: v, "inductor": lambda: S * v, "impedance": lambda: v,
-             "capacitor": lambda: 1 / (S * v), "conductance": lambda: 1 / v,
-             "admittance": lambda: 1 / v}.get(e.kind)
-        if z is not None:
-            out.append(Branch(e.name, a, b, sympy.Integer(0), z(), None, [e.name]))
-        elif e.kind == "vsource":
+        if k.passive:
+            z = kinds.impedance(e.kind, v, S)
+            out.append(Branch(e.name, a, b, sympy.Integer(0), z, None, [e.name]))
+        elif k.source == "voltage":
             out.append(Branch(e.name, a, b, _src(e.name), sympy.Integer(0), None, [e.name]))
-        elif e.kind == "isource":
+        elif k.source == "current":
             out.append(Branch(e.name, a, b, sympy.Integer(0), sympy.oo, _src(e.name), [e.name]))
+        else:
+            raise ValueError(f"{k.word} {e.name!r} has no branch of its own")
     return out
 
 
@@ -221,7 +223,7 @@ def source_values(circuit, subs=None, only=None, none=False):
 def port_form(ctx, req, name):
     """(definitions, result) of a port quantity by reduction, or None where the network
     does not reduce. ``definitions`` are the named intermediate quantities in order."""
-    base = {"rn": "rth", "resistance": "rth", "impedance": "rth", "voltage": "vth"}.get(name, name)
+    base = quantities.twin(name)
     if req.port is None:
         return None
     subs = ctx.numeric_subs()

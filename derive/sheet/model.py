@@ -14,6 +14,8 @@ from dataclasses import dataclass, field
 from fractions import Fraction
 from typing import Optional, Union
 
+from derive.sheet.kinds import SHEET_KINDS
+
 
 @dataclass(frozen=True)
 class Loc:
@@ -100,8 +102,7 @@ class Value:
 
 
 # ---------------------------------------------------------------- statements
-ELEMENT_KINDS = ("resistor", "conductance", "capacitor", "inductor", "impedance",
-                 "admittance", "vsource", "isource")
+ELEMENT_KINDS = SHEET_KINDS      # the kinds a sheet line writes (derive.sheet.kinds)
 
 
 @dataclass

@@ -18,26 +18,29 @@ from lark import Token, Tree
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken
 
 from derive.errors import SheetError
+from derive.sheet import kinds, quantities
 from derive.sheet.grammar import describe_syntax_error, get_parser
 from derive.sheet.model import BinOp, Block, Call, Derating, E_SERIES, Element, Loc, Name, Neg, Nominal, Num, Numeric, OpAmp, Port, Quantity, Replacement, Request, Sheet, Temperature, Tolerance, Use, Value
 from derive.sheet.units import UnitError, parse_attribute, parse_number, parse_quantity, parse_temperature
 
 RESERVED = frozenset({"s"})
 FUNCTIONS = {"sqrt": 1, "across": 2, "through": 1}
-KIND_UNIT = {"resistor": "ohm", "impedance": "ohm", "conductance": "S", "admittance": "S",
-             "capacitor": "F", "inductor": "H", "vsource": "V", "isource": "A"}
-KIND_WORD = {"vsource": "voltage source", "isource": "current source"}
-_R_KINDS = ("resistor", "impedance", "nominal")   # where R47 / 47R are resistor codes
+# values the parser reads besides element values (whose facts are in derive.sheet.kinds):
+# an op-amp's gain (no unit) and a nominal line (any unit; R47 / 47R read as resistor codes)
+_OTHER_VALUES = ("opamp-gain", "nominal")
 _R_CODE_NAME = re.compile(r"R\d+\Z")
 _ASCII_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*(\.[A-Za-z_][A-Za-z0-9_]*)*\Z")
-# SHEET.md section 5: which element kinds take a rating, and in which units
-RATING_UNITS = {"resistor": ("W", "V"), "capacitor": ("V",), "inductor": ("V",)}
 RATING_ATTR = {"W": "power_rating", "V": "voltage_rating"}
-# the unit of a scalar quantity, for a ``choose`` target (gain: from the source's kind)
-QUANTITY_UNIT = {"vth": "V", "voltage": "V", "isc": "A", "current": "A", "rth": "ohm",
-                 "rn": "ohm", "resistance": "ohm", "impedance": "ohm", "power": "W"}
-_PAIRS = {"thevenin": "vth and rth", "norton": "isc and rn", "model": "rin, gain and rout",
-          "twoport": "the two-port parameters"}
+
+
+def _unit_of(kind: str):
+    """The unit word a value of ``kind`` is in (None: a plain number or any unit)."""
+    return None if kind in _OTHER_VALUES else kinds.kind(kind).unit
+
+
+def _resistor_code(kind: str) -> bool:
+    """Whether R47 / 47R in a value of ``kind`` are IEC 60062 resistor codes."""
+    return kind == "nominal" or (kind not in _OTHER_VALUES and kinds.kind(kind).resistor_code)
 
 
 def _show(value: Fraction) -> str:
@@ -321,7 +324,7 @@ class _Builder:
             kind, name_tok, rest = str(ch[0]), ch[1], ch[2:]
         else:
             kind, name_tok, rest = str(stmt.data), ch[1], ch[2:]
-        noun = KIND_WORD.get(kind, kind)
+        noun = kinds.kind(kind).word
         name = self._symbol_name(name_tok, noun)
         (n1, l1), (n2, l2) = self._ref(rest[0]), self._ref(rest[1])
         element = Element(kind, name, (n1, n2), (l1, l2), None, _loc(stmt))
@@ -337,7 +340,7 @@ class _Builder:
         word = node.children[0]
         article = "an" if noun[0] in "aeiou" else "a"
         if node.data == "noiseless":
-            if element.kind != "resistor":
+            if kinds.kind(element.kind).noise is None:
                 raise _err(f"'noiseless' is for resistors, not {article} {noun}", word,
                            hint="only resistors make thermal noise in the noise analysis")
             if element.noiseless:
@@ -355,8 +358,8 @@ class _Builder:
             element.tc = value
             element.attr_locs["tc"] = loc
         else:                                   # rated
-            allowed = RATING_UNITS.get(element.kind)
-            if allowed is None:
+            allowed = kinds.kind(element.kind).rating_units
+            if not allowed:
                 raise _err(f"{article} {noun} takes no rating", word,
                            hint="ratings are for resistors (W and/or V), capacitors and "
                                 "inductors (V)")
@@ -370,7 +373,7 @@ class _Builder:
                     shown = unit or "a plain number"
                     want = " or ".join(allowed)
                     hint = ("a resistor is rated in W (power) and/or V (voltage): "
-                            "rated 0.25 W 200 V" if element.kind == "resistor" else
+                            "rated 0.25 W 200 V" if "W" in allowed else
                             f"{article} {noun} is rated in V (the voltage across it): "
                             "rated 50 V")
                     raise _err(f"{article} {noun}'s rating is in {want}, not {shown}",
@@ -675,12 +678,12 @@ class _Builder:
         req.name_locs["series"] = _loc(series_tok)
         q, target = [c for c in rest if isinstance(c, Tree) and c.data != "ref"]
         self._quantity_phrase(req, q)
-        if req.quantity in _PAIRS:
+        if not quantities.accepts("choose", req.quantity):
             raise _err(f"'choose' needs a single quantity; '{req.quantity}' gives "
-                       f"{_PAIRS[req.quantity]}", q.children[0],
+                       f"{quantities.quantity(req.quantity).said}", q.children[0],
                        hint="name one of them, e.g. choose R2 from E24 for vth at out = 1 V")
         value, unit, loc = self._attr_quantity(target)
-        want = QUANTITY_UNIT.get(req.quantity)
+        want = quantities.unit(req.quantity)
         if unit is not None and req.quantity != "gain" and unit != want:
             raise _err(f"the target is in {unit} but {req.quantity} is in {want}",
                        self._unit_loc(target))
@@ -693,12 +696,14 @@ class _Builder:
         """A ``choose ... for gain from S to P = X`` target with a unit: per volt of a
         voltage source the gain is a plain ratio, per ampere of a current source it is in
         ohm.  (A source not found at the top level is left to the circuit stage.)"""
-        kinds = {e.name: e.kind for e in sheet.elements if isinstance(e, Element)}
+        of_source = {e.name: e.kind for e in sheet.elements if isinstance(e, Element)}
         for req, node in self.choose_targets:
             if req.quantity != "gain" or req.target.unit is None:
                 continue
-            kind = kinds.get(req.source)
-            want = {"vsource": None, "isource": "ohm"}.get(kind, req.target.unit)
+            kind = of_source.get(req.source)
+            per = kinds.kind(kind).gain_unit if kind is not None else None
+            # per volt of a voltage source a plain ratio (no unit); not a source: left as is
+            want = req.target.unit if per is None else (None if per == "V/V" else per)
             if req.target.unit != want:
                 if want is None:
                     raise _err(f"the gain from voltage source '{req.source}' is a plain "
@@ -711,14 +716,7 @@ class _Builder:
         word = str(q.children[0])
         req.quantity = word
         refs = [self._ref(t) for t in q.children[1:]]
-        if word in ("current", "power"):
-            slots = ("element",)
-        elif word == "gain":
-            slots = ("source", "port")
-        elif word in ("model", "twoport"):
-            slots = ("port", "port2")
-        else:
-            slots = ("port",)
+        slots = quantities.quantity(word).slots
         for slot, (value, loc) in zip(slots, refs):
             setattr(req, slot, value)
             req.name_locs[slot] = loc
@@ -730,7 +728,7 @@ class _Builder:
 
     def _value_of(self, node, tol_node, kind, noun, owner, attr) -> Value:
         """A value: a quantity (number, unit, sign) or an expression, plus a tolerance."""
-        expected = {"opamp-gain": None, "nominal": None}.get(kind, KIND_UNIT.get(kind))
+        expected = _unit_of(kind)
         sign, inner = 1, node
         while isinstance(inner, Tree) and inner.data in ("neg", "pos"):
             sign = -sign if inner.data == "neg" else sign
@@ -744,7 +742,7 @@ class _Builder:
                 number = self._number(tok)
                 if number.form == "rcode":
                     at = len(number.number_text)
-                    if kind not in _R_KINDS:
+                    if not _resistor_code(kind):
                         raise self._missing_star(tok, None, "R", at)
                     if kind != "nominal":
                         rcode_name = Name("R", Loc(tok.line, tok.column + at))
@@ -760,7 +758,7 @@ class _Builder:
             return value
         expr = self._expr(node)
         value = Value(None, expr, tolerance, _loc(node))
-        if (kind in _R_KINDS and kind != "nominal" and isinstance(expr, Name)
+        if (kind != "nominal" and _resistor_code(kind) and isinstance(expr, Name)
                 and _R_CODE_NAME.match(expr.name)):
             self.deferred.append((owner, attr, value, expr, "name"))
         return value
@@ -770,7 +768,7 @@ class _Builder:
             return
         if kind == "opamp-gain":
             raise _err(f"an op-amp gain takes no unit, not {unit}", where)
-        expected = KIND_UNIT.get(kind)
+        expected = _unit_of(kind)
         if kind != "nominal" and unit != expected:
             article = "an" if noun[0] in "aeiou" else "a"
             raise _err(f"{article} {noun}'s value is in {expected}, not {unit}", where)

@@ -22,6 +22,7 @@ from dataclasses import dataclass, field
 
 import flint
 import sympy
+from derive.sheet import kinds
 from derive.sheet.expressions import as_expr
 
 from derive.circuit.build import S, Circuit
@@ -83,7 +84,7 @@ class System:
         nb = len(self.node_index)
         self.branch_index = {}
         for e in circuit.elements:
-            if e.kind in ("vsource", "inductor", "impedance", "nullor"):
+            if kinds.kind(e.kind).branch_current:
                 self.branch_index[e.name] = nb + len(self.branch_index)
         self.n = nb + len(self.branch_index)
         self._v = _Vars()
@@ -203,15 +204,16 @@ class System:
 
     def _collect_vars(self):
         for e in self.circuit.elements:
-            if e.kind in ("resistor",):
+            k = kinds.kind(e.kind)
+            if _recip(k):
                 self._scan(self._check_nonzero(e), True)
-            elif e.kind in ("conductance", "admittance", "impedance"):
+            elif k.passive and k.s_power == 0:
                 self._scan(self._value(e), False)
-            elif e.kind in ("capacitor", "inductor"):
+            elif k.passive:
                 self._scan(self._value(e), False)
                 self._v.get("expr", S)
-                self._scan(S * self._value(e), False)     # what is stamped: s*C, s*L
-            elif e.kind in ("vsource", "isource") and not e.controls:
+                self._scan(_times_s(k, self._value(e)), False)   # what is stamped: s*C, s*L
+            elif k.source is not None and not e.controls:
                 self._v.get("src", self._value(e), e.name)
             for coef, _ctl in e.controls:
                 self._scan(coef.xreplace(self.subs) if self.subs else coef, False)
@@ -232,12 +234,15 @@ class System:
             self.A.add(i, j, v)
 
     def _admittance(self, e):
+        """The nodal entry of an admittance-stamped element: ``1/R`` (a ``recip`` ring
+        variable), ``G``, ``s·C``, ``Y``."""
+        k = kinds.kind(e.kind)
+        if k.stamp != "admittance":
+            raise ValueError(f"{k.word} {e.name!r} is not stamped as an admittance")
         v = self._value(e)
-        if e.kind == "resistor":
+        if _recip(k):
             return self.poly(v, recip=True)
-        if e.kind == "capacitor":
-            return self.poly(S * v)
-        return self.poly(v)
+        return self.poly(_times_s(k, v))
 
     def through(self, name, _seen=()) -> LinForm:
         """Current through element ``name`` in its reference direction, as a linear form."""
@@ -248,7 +253,7 @@ class System:
         if e.name in self.branch_index:
             return LinForm({self.branch_index[e.name]: self.ctx.constant(1)},
                            self.ctx.constant(0))
-        if e.kind == "isource":
+        if kinds.kind(e.kind).stamp == "current":
             if not e.controls:
                 return LinForm({}, self.src_poly(e))
             return self.control_sum(e, _seen + (name,))
@@ -284,7 +289,8 @@ class System:
 
     def _stamp(self):
         for e in self.circuit.elements:
-            if e.kind == "nullor":
+            k = kinds.kind(e.kind)
+            if k.stamp == "nullor":
                 inp, inn, out = (self.node(n) for n in e.nodes)
                 j = self.branch_index[e.name]
                 self._add(out, j, 1)
@@ -298,10 +304,8 @@ class System:
                 self._add(b, j, -1)
                 self._add(j, a, 1)
                 self._add(j, b, -1)
-                if e.kind == "inductor":
-                    self._add(j, j, -self.poly(S * self._value(e)))
-                elif e.kind == "impedance":
-                    self._add(j, j, -self.poly(self._value(e)))
+                if k.immittance == "impedance":              # v = Z·i: s·L, Z
+                    self._add(j, j, -self.poly(_times_s(k, self._value(e))))
                 elif e.controls:
                     f = self.control_sum(e)
                     for i, v in f.coef.items():
@@ -309,7 +313,7 @@ class System:
                     self._rhs(j, f.const)
                 else:
                     self._rhs(j, self.src_poly(e))
-            elif e.kind == "isource":
+            elif k.stamp == "current":
                 if e.controls:
                     f = self.control_sum(e)
                     for i, v in f.coef.items():
@@ -401,6 +405,16 @@ class System:
         if m is not None:
             u[m] = self.ctx.constant(-1)
         return u
+
+
+def _recip(k) -> bool:
+    """Whether an element's nodal entry is the reciprocal of its value (a resistor: ``1/R``)."""
+    return k.stamp == "admittance" and k.immittance == "impedance"
+
+
+def _times_s(k, v):
+    """The value times ``s`` to the kind's power: ``v``, ``s·C``, ``s·L``."""
+    return v if k.s_power == 0 else S ** k.s_power * v
 
 
 def _q(x):
