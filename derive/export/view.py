@@ -10,7 +10,7 @@ from __future__ import annotations
 import sympy
 
 from derive.circuit.build import UNIT_OF_KIND
-from derive.export.printing import equation_lines, to_latex
+from derive.export.printing import equation_lines, to_latex, visual_len
 from derive.sheet.units import format_eng
 
 KIND_WORD = {"vsource": "voltage source", "isource": "current source", "nullor": "ideal op-amp"}
@@ -108,9 +108,51 @@ def cautions(circuit) -> list:
     return out
 
 
+# A matrix equation is shown whole up to this many unknowns (and while its widest row fits);
+# beyond it, as the list of its nonzero entries.
+MATRIX_SHOWN = 5
+MATRIX_WIDTH = 60
+
+
+def matrix_lines(lhs, rhs) -> list:
+    """``A x = b`` as aligned lines: whole where it is small, else the unknowns, the nonzero
+    entries of ``A`` (row by row) and of ``b``.
+
+    >>> import sympy
+    >>> a = sympy.Matrix([[1, 0], [0, 2]]); x = sympy.Matrix(sympy.symbols('v_a v_b'))
+    >>> len(matrix_lines(sympy.MatMul(a, x, evaluate=False), sympy.Matrix([1, 0])))
+    1
+    """
+    whole = [to_latex(lhs) + " &= " + to_latex(rhs)]
+    args = lhs.args if isinstance(lhs, sympy.MatMul) else ()
+    if len(args) != 2 or not isinstance(rhs, sympy.MatrixBase):
+        return whole
+    a, x = args
+    if a.shape[0] <= MATRIX_SHOWN and all(
+            visual_len(" & ".join(to_latex(c) for c in a.row(i))) <= MATRIX_WIDTH
+            for i in range(a.shape[0])):
+        return whole
+    n = a.shape[0]
+    out = [r"\mathbf{A}\,\mathbf{x} &= \mathbf{b}, \quad \mathbf{x} = \left(" +
+           ", ".join(to_latex(u) for u in x) + r"\right)^{\mathsf{T}}"
+           r"\quad\text{(%d equations; nonzero entries below)}" % n]
+
+    def entry(name, value):
+        lines = equation_lines(sympy.Symbol("Q"), value)
+        return [name + lines[0][1:]] + lines[1:]
+    for i in range(n):
+        for j in range(a.shape[1]):
+            if a[i, j] != 0:
+                out += entry(f"A_{{{i + 1},{j + 1}}}", a[i, j])
+    for i in range(n):
+        if rhs[i] != 0:
+            out += entry(f"b_{{{i + 1}}}", rhs[i])
+    return out
+
+
 def equation_view(eq) -> dict:
     if isinstance(eq.lhs, sympy.MatMul) or isinstance(eq.rhs, sympy.MatrixBase):
-        lines = [to_latex(eq.lhs) + " &= " + to_latex(eq.rhs)]
+        lines = matrix_lines(eq.lhs, eq.rhs)
     else:
         lines = equation_lines(eq.lhs, eq.rhs)
     return {"lines": lines, "verified": bool(eq.verified),
