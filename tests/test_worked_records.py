@@ -176,3 +176,31 @@ def test_large_matrix_is_listed_by_entries():
     assert not any(r"\begin{matrix}" in l for l in lines)
     # 7 node rows with at least 3 entries each, and the source's border row and column
     assert sum(l.startswith("A_{") for l in lines) >= 23
+
+
+_ENTERED = re.compile(r"^\s*(?:voltage source|current source|resistor|capacitor|inductor)\s+"
+                      r"(\w+)\b.*?=\s*(-?[0-9.]+)\s*([fpnumkMGT]?)(?:ohm|V|A|F|H)\b", re.M)
+
+
+@pytest.mark.parametrize("sheet", SHEETS, ids=lambda p: p.stem)
+def test_element_table_keeps_entered_digits(sheet):
+    """Issue 12, item 2: the element table shows each value as the sheet enters it (the
+    reference is the sheet's own text: a 350.7 ohm gauge is 350.7 Ω, not 351 Ω)."""
+    entered = {m.group(1): (m.group(2), m.group(3).replace("u", "µ"))
+               for m in _ENTERED.finditer(sheet.read_text(encoding="utf-8"))}
+    rows = {e["name"].split(".")[-1]: e["nominal"] for e in view(record(sheet))["elements"]
+            if "." not in e["name"]}
+    checked = 0
+    for name, (number, prefix) in entered.items():
+        if name not in rows:
+            continue
+        shown = rows[name]
+        assert shown.split(" ")[0] == number and shown.split(" ")[1][:len(prefix)] == prefix, \
+            f"{sheet.name}: {name} entered as {number} {prefix}…, shown as {shown}"
+        checked += 1
+    assert checked
+
+
+def test_bridge_gauge_shown_as_entered():
+    rows = {e["name"]: e["nominal"] for e in view(record(WORKED / "strain_bridge.eqv"))["elements"]}
+    assert rows["Rg"] == "350.7 Ω" and rows["Vex"] == "5 V"

@@ -28,6 +28,49 @@ def _value_text(v, unit):
     return format_eng(v, unit)
 
 
+def exact_eng(value, unit) -> str:
+    """An entered (exact rational) value in engineering notation with all of its digits and
+    no rounding: 350.7 ohm stays 350.7 Ω, 4.7k stays 4.7 kΩ. A value with no finite decimal
+    expansion (an entered fraction such as 1/3) falls back to 4 significant figures.
+
+    >>> import sympy
+    >>> exact_eng(sympy.Rational(3507, 10), 'ohm'), exact_eng(sympy.Rational(1, 10**7), 'F')
+    ('350.7 Ω', '100 nF')
+    >>> exact_eng(sympy.Rational(-47, 1000000), 'A'), exact_eng(sympy.Rational(1, 3), 'V')
+    ('-47 µA', '333.3 mV')
+    """
+    from fractions import Fraction
+    from derive.sheet import units as _units
+    q = Fraction(int(sympy.numer(value)), int(sympy.denom(value)))
+    d = q.denominator
+    for p in (2, 5):
+        while d % p == 0:
+            d //= p
+    if d != 1 or q == 0:
+        return format_eng(float(q), unit, digits=4)
+    sign = "-" if q < 0 else ""
+    q = abs(q)
+    # exact decimal digits: q = digits * 10**-k
+    k = 0
+    while (q * 10 ** k).denominator != 1:
+        k += 1
+    digits = str(int(q * 10 ** k))
+    exp10 = len(digits) - 1 - k                     # position of the leading digit
+    exp3 = 3 * (exp10 // 3)
+    if exp3 not in _units._ENG_PREFIX:
+        return format_eng(float(q) * (-1 if sign else 1), unit, digits=max(len(digits), 3))
+    shift = k + exp3                                # the number is digits * 10**-shift
+    if shift <= 0:
+        number = digits + "0" * (-shift)
+    else:
+        digits = digits.rjust(shift + 1, "0")
+        head, tail = digits[:-shift], digits[-shift:].rstrip("0")
+        number = head + ("." + tail if tail else "")
+    shown = _units._UNIT_SHOWN.get(unit, unit) if unit else ""
+    prefix = _units._ENG_PREFIX[exp3]
+    return f"{sign}{number} {prefix}{shown}" if shown else f"{sign}{number}{prefix}"
+
+
 def elements(circuit) -> list:
     rows = []
     nominal = circuit.nominal_values()
@@ -42,7 +85,9 @@ def elements(circuit) -> list:
         if e.value is not None:
             v = e.value.xreplace(nominal)
             if v.is_number:
-                nom = _value_text(float(v), UNIT_OF_KIND.get(e.kind))
+                # the sheet's exact number, with the digits it was entered with
+                nom = exact_eng(v, UNIT_OF_KIND.get(e.kind)) if v.is_Rational else \
+                    _value_text(float(v), UNIT_OF_KIND.get(e.kind))
         info = circuit.symbols.get(e.key)
         tol = ""
         if info is not None and info.tolerance is not None:
