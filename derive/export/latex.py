@@ -97,6 +97,20 @@ FIT_DISPLAY = (r"\newsavebox\deriveeqbox"
                r"\else\usebox\deriveeqbox\fi}")
 
 
+_VALUE_IN_TEXT = re.compile(r"-?[0-9.]+(?:e[+-]?\d+)? ?[fpnµmkMGT]?(?:Ω|V/V|A/A|V|A|S|F|Hz|H)\b")
+
+
+def _si_text(t: str) -> NoEscape:
+    """Generated summary text with its values (``-2.50 mV``) set by siunitx."""
+    out, pos = [], 0
+    for m in _VALUE_IN_TEXT.finditer(t):
+        out.append(text(t[pos:m.start()]))
+        out.append(si_value(m.group(0)))
+        pos = m.end()
+    out.append(text(t[pos:]))
+    return NoEscape("".join(out))
+
+
 def _math_block(doc, lines):
     doc.append(NoEscape("\\[\\fitdisplay{\\begin{aligned}\n" + " \\\\\n".join(lines) +
                         "\n\\end{aligned}}\\]\n"))
@@ -137,15 +151,23 @@ def document(record, figures_dir=None) -> Document:
         doc.append(text(c))
         doc.append(NoEscape("}}\n\n"))
     with doc.create(Section("Results", numbering=False)):
-        rows = [[text(r["request"] + (" (see its note)" if r["notes"] else "")),
-                 NoEscape(f"${q['latex_name']}$"), si_value(q["value"])
-                 if q["value"] else text("no value (symbolic)")]
-                for r in v["results"] for q in r["quantities"]]
-        _table(doc, ["request", "quantity", "value"], rows)
+        doc.append(NoEscape(r"\begin{description}\setlength{\itemsep}{1pt}"))
         for r in v["results"]:
-            for q in r["quantities"]:
-                if q["lines"]:
-                    _math_block(doc, q["lines"])
+            doc.append(NoEscape(r"\item["))
+            doc.append(text(r["request"] + (" (see its note)" if r["notes"] else "")))
+            doc.append(NoEscape(r"]\mbox{}\\[-\baselineskip]\begin{itemize}\setlength{\itemsep}{0pt}"))
+            for it in r["summary"]:
+                doc.append(NoEscape(r"\item "))
+                if it["label"]:
+                    doc.append(text(it["label"] + ": "))
+                if it["math"]:
+                    doc.append(NoEscape("$" + it["math"] + "$ "))
+                doc.append(_si_text(it["text"]))
+            if not r["summary"]:
+                doc.append(NoEscape(r"\item "))
+                doc.append(text("(see the derivation)"))
+            doc.append(NoEscape(r"\end{itemize}"))
+        doc.append(NoEscape(r"\end{description}"))
         if v["verification"]:
             doc.append(text(v["verification"]))
     with doc.create(Section("Circuit", numbering=False)):
@@ -160,6 +182,12 @@ def document(record, figures_dir=None) -> Document:
                 doc.append(NoEscape(r"\item "))
                 doc.append(text(a))
             doc.append(NoEscape(r"\end{itemize}"))
+    if v["closed_forms"]:
+        with doc.create(Section("Closed forms", numbering=False)):
+            for r in v["results"]:
+                for q in r["quantities"]:
+                    if q["lines"] and q["long"]:
+                        _math_block(doc, q["lines"])
     for i, r in enumerate(v["results"]):
         with doc.create(Section(text(r["request"]), numbering=False)):
             for n in r["notes"]:

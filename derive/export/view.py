@@ -7,6 +7,8 @@ only lay this out.
 """
 from __future__ import annotations
 
+import re
+
 import sympy
 
 from derive.circuit.build import UNIT_OF_KIND
@@ -213,7 +215,7 @@ def step_view(st) -> dict:
         table = {"head": [str(c) for c in st.table[0]],
                  "rows": [[str(c) for c in r] for r in st.table[1:]]}
     eqs = [equation_view(e) for e in st.equations]
-    return {"text": st.text, "equations": eqs, "table": table,
+    return {"text": eng_prose(st.text), "equations": eqs, "table": table,
             "verified": bool(st.verified) and all(e["verified"] for e in eqs), "kind": st.kind}
 
 
@@ -257,11 +259,167 @@ def quantity_view(q) -> dict:
     if q.expr is not None:
         d["lines"] = equation_lines(sympy.Symbol(q.name), q.expr)
         d["latex"] = to_latex(q.expr)
+        d["long"] = visual_len(d["latex"]) > SHORT_FORM     # not whole in the summary
     else:
+        d["long"] = False
         d["lines"] = []
         d["latex"] = None
     d["sequence"] = [equation_lines(s, e) for s, e in q.sequence] if q.expr is None else []
     return d
+
+
+SHORT_FORM = 45          # closed forms up to this printed width are shown in the summary
+_NUMBER_UNIT = re.compile(r"(?<![\w.])(-?\d+(?:\.\d+)?(?:e[+-]?\d+)?)"
+                          r"(?: to (-?\d+(?:\.\d+)?(?:e[+-]?\d+)?))? (?=(V|A|Ω|ohm|Hz|F|H)\b)")
+
+
+def eng_prose(t: str, digits: int = 4) -> str:
+    """Raw numbers with a unit in generated prose (``0.00500499 V``, ``2.50125e-06 V``,
+    ``-0.0075025 to 0.00250749 V``) in engineering notation with an SI prefix; numbers with
+    few digits (``1 A test current``) are left as written.
+
+    >>> eng_prose("= ± 0.00500499 V, so -0.0075025 to 2.50125e-06 V.")
+    '= ± 5.005 mV, so -7.502 mV to 2.501 µV.'
+    >>> eng_prose("a 1 A test current, 350 Ω")
+    'a 1 A test current, 350 Ω'
+    """
+    def long(n):
+        return "e" in n or len(n.lstrip("-").replace(".", "").strip("0")) > digits
+
+    def one(n, unit):
+        return format_eng(float(n), unit, digits=digits)
+
+    def sub(m):
+        a, b, word = m.group(1), m.group(2), m.group(3)
+        unit = "ohm" if word in ("Ω", "ohm") else word
+        cut = len(_UNIT_WORD.get(unit, unit))
+        def wants(n):
+            x = abs(float(n))
+            return long(n) or (x != 0 and (x < 0.1 or x >= 1e4))
+        if not (wants(a) or (b is not None and wants(b))):
+            return m.group(0)
+        if b is not None:
+            return one(a, unit) + " to " + one(b, unit)[:-cut]
+        return one(a, unit)[:-cut]
+    return _NUMBER_UNIT.sub(sub, t)
+
+
+_UNIT_WORD = {"ohm": "Ω"}
+_QUANTITY_UNIT = {"vth": "V", "voltage": "V", "isc": "A", "current": "A", "rth": "ohm",
+                  "rn": "ohm", "rin": "ohm", "rout": "ohm", "resistance": "ohm"}
+
+
+def _unit_of(record, name):
+    for r in record.results:
+        q = r.quantities.get(name)
+        if q is not None and q.unit:
+            return q.unit
+    return _QUANTITY_UNIT.get(name)
+
+
+def _eng(v, unit):
+    return format_eng(v, unit, digits=4) if v is not None else "—"
+
+
+def _tx(v, unit) -> str:
+    """A value with unit inside math (a true minus sign, the rest upright text)."""
+    t = format_eng(v, unit, digits=4)
+    return r"-\text{%s}" % t[1:] if t.startswith("-") else r"\text{%s}" % t
+
+
+def _plain(v) -> str:
+    """A dimensionless figure to 4 significant digits, without an SI prefix."""
+    t = f"{v:.4g}"
+    return t if "e" not in t else format_eng(v, None, digits=4)
+
+
+def _frequency_items(record, r, q):
+    """f0/ω0/Q, corner, poles and DC gain of a frequency-dependent quantity."""
+    f = (r.extra.get("frequency") or {}).get(q.name)
+    if not f or q.expr is None:
+        return []
+    parts = []
+    if f.get("f0_value") is not None:
+        parts.append(r"f_0 = \text{%s}" % _eng(f["f0_value"], "Hz"))
+    if f.get("w0_value") is not None:
+        parts.append(r"\omega_0 = \text{%s}" % format_eng(f["w0_value"], "rad/s", digits=4))
+    if f.get("Q_value") is not None:
+        parts.append(r"Q = %s" % _plain(f["Q_value"]))
+    if f.get("f_corner_value") is not None:
+        parts.append(r"f_c = \text{%s}" % _eng(f["f_corner_value"], "Hz"))
+    s = sympy.Symbol("s")
+    try:
+        dc = sympy.cancel(q.expr).subs(s, 0)
+        dc = dc.xreplace(record.circuit.nominal_values()) if dc.is_finite is not False else None
+        if dc is not None and dc.is_number and dc.is_finite:
+            parts.append(r"\text{DC gain} = %s" % format_eng(float(dc), None, digits=4)
+                         if q.unit in ("V/V", "A/A") else
+                         r"\text{at DC} = \text{%s}" % _eng(float(dc), q.unit))
+    except (TypeError, ValueError, ZeroDivisionError):
+        pass
+    poles = f.get("poles_value") or []
+    if poles:
+        shown = []
+        for p in poles[:4]:
+            re_, im = (p[0], p[1]) if isinstance(p, (list, tuple)) else (p, 0)
+            txt = _tx(re_, "rad/s") if re_ else "0"
+            if im:
+                txt += r" \pm j\,%s" % _tx(abs(im), "rad/s")
+            shown.append(txt)
+        parts.append(r"\text{poles } s = " + r",\ ".join(dict.fromkeys(shown)))
+    return [{"label": "frequency response", "math": r",\quad ".join(parts), "text": ""}] \
+        if parts else []
+
+
+def request_summary(record, r) -> list:
+    """The answer of one request in a few lines: closed form where short, value with unit,
+    tolerance band, the three largest sensitivities, verdicts, frequency figures."""
+    items = []
+    x = r.extra
+    for q in r.quantities.values():
+        name = to_latex(sympy.Symbol(q.name))
+        form = to_latex(q.expr) if q.expr is not None else None
+        math = name + (" = " + form if form and visual_len(form) <= SHORT_FORM else "")
+        value = _value_text(q.value, q.unit) if q.value is not None else ""
+        items.append({"label": "inverted formula" if q.form == "inverted" else "",
+                      "math": math, "text": ("= " + value) if value else "no value (symbolic)" +
+                      (", closed form below" if form and visual_len(form) > SHORT_FORM
+                       else "")})
+        items += _frequency_items(record, r, q)
+    if "valid_range" in x and x["valid_range"]:
+        rng = x["valid_range"][0]
+        unit = (x.get("measured") or {}).get("unit")
+        if rng.get("low_value") is not None and rng.get("high_value") is not None:
+            items.append({"label": "valid for", "math": "", "text":
+                          f"{_eng(rng['low_value'], unit)} < measured value < "
+                          f"{_eng(rng['high_value'], unit)}"})
+    if "spread" in x:
+        name = x.get("tolerance_of", "")
+        unit = _unit_of(record, name)
+        sp = x["spread"]
+        txt = f"{_eng(sp['low'], unit)} to {_eng(sp['high'], unit)} (extreme values, " \
+              f"nominal {_eng(sp['nominal'], unit)})"
+        rss = x.get("rss")
+        if rss:
+            txt += f"; RSS {_eng(rss['low'], unit)} to {_eng(rss['high'], unit)}"
+        items.append({"label": "tolerance band", "math": to_latex(sympy.Symbol(name)) if name
+                      else "", "text": txt})
+    if "sensitivities" in x:
+        sens = sorted(x["sensitivities"].items(),
+                      key=lambda kv: (kv[1].get("rank") or 1e9, kv[0]))[:3]
+        parts = [f"{k} {format_eng(v['value'], None, digits=4)}" for k, v in sens
+                 if v.get("value") is not None]
+        items.append({"label": "largest normalized sensitivities (x/Q)(dQ/dx)",
+                      "math": "", "text": ", ".join(parts)})
+    if "holds" in x:
+        if x["holds"]:
+            verdict = "holds (exact)"
+        elif x["holds"] is False:
+            verdict = "does not hold" + (f": {x['diagnosis']}" if x.get("diagnosis") else "")
+        else:
+            verdict = "undecided"
+        items.append({"label": "claim", "math": "", "text": verdict})
+    return items
 
 
 def view(record) -> dict:
@@ -270,6 +428,7 @@ def view(record) -> dict:
     for r in record.results:
         figs = r.extra.get("figures") or []
         results.append({"request": r.request.text, "notes": list(r.notes),
+                        "summary": request_summary(record, r),
                         "quantities": [quantity_view(q) for q in r.quantities.values()],
                         "steps": [step_view(s) for s in r.steps],
                         "figures": list(figs)})
@@ -277,6 +436,8 @@ def view(record) -> dict:
     return {"title": c.sheet.title or "Design calculation", "notes": list(c.sheet.notes),
             "elements": elements(c), "assumptions": assumptions(c), "cautions": cautions(c),
             "results": results,
+            "closed_forms": any(q["long"] and q["lines"] for r in results
+                                for q in r["quantities"]),
             "all_verified": all(s["verified"] for s in all_steps),
             "n_equations": sum(len(s["equations"]) for s in all_steps),
             "verification": verification_sentence(all_steps)}
