@@ -407,7 +407,7 @@ def request_summary(record, r) -> list:
     if "sensitivities" in x:
         sens = sorted(x["sensitivities"].items(),
                       key=lambda kv: (kv[1].get("rank") or 1e9, kv[0]))[:3]
-        parts = [f"{k} {format_eng(v['value'], None, digits=4)}" for k, v in sens
+        parts = [f"{k} {_plain(v['value'])}" for k, v in sens
                  if v.get("value") is not None]
         items.append({"label": "largest normalized sensitivities (x/Q)(dQ/dx)",
                       "math": "", "text": ", ".join(parts)})
