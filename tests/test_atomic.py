@@ -100,3 +100,36 @@ def test_not_utf8_is_located(tmp_path, capsys):
     p.write_bytes(b"resistor R1 between a and gnd = 1k\nnote \"\xff\"\n")
     assert main(["record", str(p)]) == 2
     assert re.match(r"^\S+:2:7: error: the sheet is not valid UTF-8", capsys.readouterr().err)
+
+
+@pytest.mark.parametrize("umask", [0o022, 0o077, 0o002])
+def test_new_output_mode_follows_umask(tmp_path, umask):
+    # issue 12, item 6: a new output gets 0o666 & ~umask, as open(path, "w") gives (POSIX)
+    old = os.umask(umask)
+    try:
+        write_atomic(str(tmp_path / "new.md"), "x")
+        with open(tmp_path / "plain.txt", "w") as f:        # the reference: ordinary open
+            f.write("x")
+    finally:
+        os.umask(old)
+    got = os.stat(tmp_path / "new.md").st_mode & 0o777
+    assert got == 0o666 & ~umask == os.stat(tmp_path / "plain.txt").st_mode & 0o777
+
+
+def test_replaced_output_keeps_its_mode(tmp_path):
+    target = tmp_path / "r.md"
+    target.write_text("old")
+    os.chmod(target, 0o640)
+    write_atomic(str(target), b"new")
+    assert os.stat(target).st_mode & 0o777 == 0o640 and target.read_bytes() == b"new"
+
+
+def test_cli_output_mode_follows_umask(tmp_path):
+    src = tmp_path / "s.eqv"
+    src.write_text(GOOD)
+    old = os.umask(0o022)
+    try:
+        assert main(["record", str(src), "-o", str(tmp_path / "r.json")]) == 0
+    finally:
+        os.umask(old)
+    assert os.stat(tmp_path / "r.json").st_mode & 0o777 == 0o644

@@ -123,3 +123,24 @@ def test_template_dir_override(tmp_path):
     (tmp_path / "record.md.j2").write_text("LETTERHEAD {{ v.title | md }}\n")
     out = derive.derive_text(LADDER).to_markdown(str(tmp_path))
     assert out == "LETTERHEAD Ladder\n"
+
+
+def test_markdown_prose_is_not_over_escaped():
+    # issue 12, item 5: hyphens, periods and apostrophes in prose stay plain; no HTML
+    # entities except for "<"; the rendered text is still the literal text
+    md = derive.derive_text('title "Strain-gauge bridge, ch. 2"\nnote "Kirchhoff\'s law - 5 V."\n'
+                            + LADDER.split("\n", 1)[1]).to_markdown()
+    assert "# Strain-gauge bridge, ch. 2\n" in md
+    assert "Kirchhoff's law - 5 V." in md
+    prose = re.sub(r"\$\$.*?\$\$|\$[^$]*\$", "", md, flags=re.S)     # outside the math
+    assert "\\-" not in prose and "\\." not in prose and "&#39;" not in prose
+    body = md.split("## Circuit")[0]
+    assert not re.search(r"&#\d+;", body)
+
+
+def test_markdown_line_start_markup_still_escaped():
+    from derive.export.markdown import md_text
+    html = _md().render(md_text("# x") + "\n\n" + md_text("- y") + "\n\n" + md_text("1. z") +
+                        "\n\n" + md_text("> q") + "\n\n" + md_text("<b>x</b> *e* [l](u)"))
+    assert "<h1>" not in html and "<li>" not in html and "<blockquote>" not in html
+    assert "<b>" not in html and "<em>" not in html and "href" not in html

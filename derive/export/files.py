@@ -48,6 +48,17 @@ def capture():
         _active = previous
 
 
+def _mode_for(path: str) -> int:
+    """The mode an ordinary ``open(path, "w")`` gives: an existing file keeps its mode, a new
+    one gets 0o666 less the umask (mkstemp alone would leave 0o600)."""
+    try:
+        return os.stat(path).st_mode & 0o7777
+    except OSError:
+        umask = os.umask(0)
+        os.umask(umask)
+        return 0o666 & ~umask
+
+
 def write_atomic(path: str, data) -> None:
     """Write ``data`` (str or bytes) to ``path`` whole or not at all (inside :func:`capture`:
     remember it for :func:`commit`)."""
@@ -63,6 +74,7 @@ def write_atomic(path: str, data) -> None:
     try:
         with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8"})) as f:
             f.write(data)
+        os.chmod(tmp, _mode_for(path))
         os.replace(tmp, path)
     except BaseException:
         try:

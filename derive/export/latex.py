@@ -27,7 +27,26 @@ INSTALL_HINT = ("PDF records need TeX Live: install latexmk and pdflatex with si
 _TEXT_CHARS = {"Ω": r"\ensuremath{\Omega}", "µ": r"\ensuremath{\mu}", "μ": r"\ensuremath{\mu}",
                "±": r"\ensuremath{\pm}", "∥": r"\ensuremath{\parallel}", "·": r"\ensuremath{\cdot}",
                "—": "---", "–": "--", "°": r"\ensuremath{^\circ}", "≈": r"\ensuremath{\approx}",
-               "×": r"\ensuremath{\times}", "≤": r"\ensuremath{\le}", "≥": r"\ensuremath{\ge}"}
+               "×": r"\ensuremath{\times}", "≤": r"\ensuremath{\le}", "≥": r"\ensuremath{\ge}",
+               "Σ": r"\ensuremath{\Sigma}", "→": r"\ensuremath{\to}", "∞": r"\ensuremath{\infty}",
+               "−": r"\ensuremath{-}", "∓": r"\ensuremath{\mp}", "≠": r"\ensuremath{\ne}",
+               "√": r"\ensuremath{\surd}", "∂": r"\ensuremath{\partial}",
+               "′": r"\ensuremath{'}",
+               "…": r"\ldots{}", "‰": r"\textperthousand{}", "€": r"\texteuro{}",
+               "“": "``", "”": "''", "‘": "`", "’": "'", "\u2009": r"\,", "\u00a0": "~",
+               "∠": r"\ensuremath{\angle}", "∑": r"\ensuremath{\sum}",
+               "⋅": r"\ensuremath{\cdot}", "Ω": r"\ensuremath{\Omega}"}
+# Greek letters (both the Greek block's µ and Ω are covered above): the math italic of the
+# Computer/Latin Modern fonts; capitals that look like Latin letters are upright Latin.
+_GREEK = ("alpha beta gamma delta epsilon zeta eta theta iota kappa lambda mu nu xi o pi rho "
+          "varsigma sigma tau upsilon phi chi psi omega").split()
+for _i, _n in enumerate(_GREEK):
+    _TEXT_CHARS.setdefault(chr(0x3B1 + _i), r"\ensuremath{\%s}" % _n if _n != "o" else "o")
+_CAPS = "A B Gamma Delta E Z H Theta I K Lambda M N Xi O Pi P - Sigma T Upsilon Phi X Psi Omega"
+for _i, _n in enumerate(_CAPS.split()):
+    if _n != "-":
+        _TEXT_CHARS.setdefault(chr(0x391 + _i), r"\ensuremath{\%s}" % _n if len(_n) > 1
+                               else r"\ensuremath{\mathrm{%s}}" % _n)
 
 _PREFIX = {"f": r"\femto", "p": r"\pico", "n": r"\nano", "µ": r"\micro", "m": r"\milli",
            "": "", "k": r"\kilo", "M": r"\mega", "G": r"\giga", "T": r"\tera"}
@@ -70,9 +89,31 @@ def si_value(shown: str) -> NoEscape:
     return NoEscape(r"\SI{%s}{%s%s}" % (num, _PREFIX[pre], _UNIT[unit]))
 
 
+# A display wider than the line is scaled down to the line width (the printer breaks long
+# equations first, so this only catches what is left, e.g. a wide matrix row).
+FIT_DISPLAY = (r"\newsavebox\deriveeqbox"
+               r"\newcommand{\fitdisplay}[1]{\sbox\deriveeqbox{$\displaystyle #1$}"
+               r"\ifdim\wd\deriveeqbox>\linewidth\resizebox{\linewidth}{!}{\usebox\deriveeqbox}"
+               r"\else\usebox\deriveeqbox\fi}")
+
+
+_VALUE_IN_TEXT = re.compile(r"-?[0-9.]+(?:e[+-]?\d+)? ?[fpnµmkMGT]?(?:Ω|V/V|A/A|V|A|S|F|Hz|H)\b")
+
+
+def _si_text(t: str) -> NoEscape:
+    """Generated summary text with its values (``-2.50 mV``) set by siunitx."""
+    out, pos = [], 0
+    for m in _VALUE_IN_TEXT.finditer(t):
+        out.append(text(t[pos:m.start()]))
+        out.append(si_value(m.group(0)))
+        pos = m.end()
+    out.append(text(t[pos:]))
+    return NoEscape("".join(out))
+
+
 def _math_block(doc, lines):
-    doc.append(NoEscape("\\begin{equation*}\\begin{aligned}\n" + " \\\\\n".join(lines) +
-                        "\n\\end{aligned}\\end{equation*}\n"))
+    doc.append(NoEscape("\\[\\fitdisplay{\\begin{aligned}\n" + " \\\\\n".join(lines) +
+                        "\n\\end{aligned}}\\]\n"))
 
 
 def _table(doc, head, rows, spec=None):
@@ -91,12 +132,12 @@ def _table(doc, head, rows, spec=None):
 def document(record, figures_dir=None) -> Document:
     v = view(record)
     doc = Document(documentclass="article", document_options=["a4paper", "11pt"],
-                   geometry_options={"margin": "2.2cm"}, lmodern=False, textcomp=True,
-                   page_numbers=True)
-    for p in ("amsmath", "amssymb", "siunitx", "graphicx"):
+                   geometry_options={"margin": "2.2cm"}, lmodern=True, textcomp=True,
+                   fontenc="T1", inputenc="utf8", page_numbers=True)
+    for p in ("amsmath", "amssymb", "siunitx", "graphicx", "booktabs"):
         doc.packages.append(Package(p))
     doc.preamble.append(NoEscape(r"\sisetup{per-mode=symbol}\input{glyphtounicode}"
-                                 r"\pdfgentounicode=1"))
+                                 r"\pdfgentounicode=1\emergencystretch=3em" "\n" + FIT_DISPLAY))
     doc.preamble.append(Command("title", text(v["title"])))
     doc.preamble.append(Command("date", ""))
     doc.preamble.append(Command("author", "Design calculation record"))
@@ -110,15 +151,23 @@ def document(record, figures_dir=None) -> Document:
         doc.append(text(c))
         doc.append(NoEscape("}}\n\n"))
     with doc.create(Section("Results", numbering=False)):
-        rows = [[text(r["request"] + (" (see its note)" if r["notes"] else "")),
-                 NoEscape(f"${q['latex_name']}$"), si_value(q["value"])
-                 if q["value"] else text("no value (symbolic)")]
-                for r in v["results"] for q in r["quantities"]]
-        _table(doc, ["request", "quantity", "value"], rows)
+        doc.append(NoEscape(r"\begin{description}\setlength{\itemsep}{1pt}"))
         for r in v["results"]:
-            for q in r["quantities"]:
-                if q["lines"]:
-                    _math_block(doc, q["lines"])
+            doc.append(NoEscape(r"\item["))
+            doc.append(text(r["request"] + (" (see its note)" if r["notes"] else "")))
+            doc.append(NoEscape(r"]\mbox{}\\[-\baselineskip]\begin{itemize}\setlength{\itemsep}{0pt}"))
+            for it in r["summary"]:
+                doc.append(NoEscape(r"\item "))
+                if it["label"]:
+                    doc.append(text(it["label"] + ": "))
+                if it["math"]:
+                    doc.append(NoEscape("$" + it["math"] + "$ "))
+                doc.append(_si_text(it["text"]))
+            if not r["summary"]:
+                doc.append(NoEscape(r"\item "))
+                doc.append(text("(see the derivation)"))
+            doc.append(NoEscape(r"\end{itemize}"))
+        doc.append(NoEscape(r"\end{description}"))
         if v["verification"]:
             doc.append(text(v["verification"]))
     with doc.create(Section("Circuit", numbering=False)):
@@ -133,6 +182,12 @@ def document(record, figures_dir=None) -> Document:
                 doc.append(NoEscape(r"\item "))
                 doc.append(text(a))
             doc.append(NoEscape(r"\end{itemize}"))
+    if v["closed_forms"]:
+        with doc.create(Section("Closed forms", numbering=False)):
+            for r in v["results"]:
+                for q in r["quantities"]:
+                    if q["lines"] and q["long"]:
+                        _math_block(doc, q["lines"])
     for i, r in enumerate(v["results"]):
         with doc.create(Section(text(r["request"]), numbering=False)):
             for n in r["notes"]:
@@ -144,7 +199,7 @@ def document(record, figures_dir=None) -> Document:
                 doc.append(NoEscape(r"\item "))
                 doc.append(text(s["text"]))
                 if s["verified"] and s["equations"]:
-                    doc.append(NoEscape(r" \emph{(verified)}"))
+                    doc.append(NoEscape(r"\ \emph{(verified)}"))
                 if s["table"]:
                     _table(doc, s["table"]["head"], [[text(c) for c in row]
                                                      for row in s["table"]["rows"]])

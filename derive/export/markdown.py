@@ -6,6 +6,7 @@ Markdown or HTML markup; mathematics is written in ``$…$`` and ``$$…$$``.
 from __future__ import annotations
 
 import os
+import re
 from typing import Optional
 
 import jinja2
@@ -23,26 +24,47 @@ def environment(extra_dir: Optional[str] = None) -> jinja2.Environment:
     env.filters["eng"] = lambda v, unit=None: "—" if v is None else format_eng(v, unit)
     env.filters["md"] = md_text
     env.filters["txt"] = md_text
+    env.filters["celltxt"] = lambda t: md_text(t, line_start=False)   # inside a table row
     env.filters["cell"] = lambda t: str(t).replace("|", r"\vert ")
     return env
 
 
-def md_text(t) -> str:
-    """User text as literal Markdown: every character that Markdown or HTML could read as
-    markup is escaped.
+_INLINE = set("\\`*_[]$|~&")
+_LINE_START = re.compile(r"^(\s*)([#>]|[+-](?=\s|$)|\d+(?=[.)]))")
 
-    >>> md_text("a_b <script> $x$")
-    'a\\\\_b &#60;script&#62; \\\\$x\\\\$'
+
+def md_text(t, line_start: bool = True) -> str:
+    r"""User text as literal Markdown: only what CommonMark (with tables, math and
+    strikethrough) could read as markup is escaped, by a backslash; ``<`` becomes ``&#60;``
+    (the one character a backslash does not keep from starting HTML in every renderer).
+    Hyphens, periods and quotes in running text stay as they are.
+
+    >>> md_text("a_b <script> $x$ - 2.5 V, it's")
+    "a\\_b &#60;script> \\$x\\$ - 2.5 V, it's"
+    >>> md_text("# not a heading"), md_text("1. not a list")
+    ('\\# not a heading', '1\\. not a list')
     """
     out = []
     for ch in str(t):
-        if ch in "\\`*_{}[]()#+-.!|<>$&%~^\"'":
-            out.append("&#%d;" % ord(ch) if ch in "<>&\"'" else "\\" + ch)
+        if ch == "<":
+            out.append("&#60;")
+        elif ch in _INLINE:
+            out.append("\\" + ch)
         elif ch in "\r\n":
             out.append(" ")
         else:
             out.append(ch)
-    return "".join(out)
+    text = "".join(out)
+    m = _LINE_START.match(text) if line_start else None
+    if m:
+        lead, mark = m.group(1), m.group(2)
+        if mark.isdigit():
+            # "1." / "1)" at the start would open an ordered list
+            k = len(lead) + len(mark)
+            text = text[:k] + "\\" + text[k:]
+        else:
+            text = lead + "\\" + text[len(lead):]
+    return text
 
 
 def _figures(record, output: Optional[str]):

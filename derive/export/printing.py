@@ -98,7 +98,36 @@ def to_latex(expr) -> str:
     return LatexPrinter({"symbol_names": names, "mul_symbol": None}).doprint(expr)
 
 
-def equation_lines(lhs, rhs, width: int = 110) -> list:
+_ZERO_WIDTH = re.compile(r"\\(?:mathrm|mathit|mathcal|left|right|frac|displaystyle)\b|[{}^_&]")
+_COMMAND = re.compile(r"\\[A-Za-z]+|\\.")
+_SUB = re.compile(r"[_^]\{([^{}]*)\}")
+
+
+def visual_len(latex: str) -> float:
+    """A rough printed width of a LaTeX math string in character widths: commands and
+    braces take no room, a Greek letter or operator one, sub- and superscripts two thirds,
+    and a fraction the wider of its numerator and denominator.
+
+    >>> visual_len(r"R_{\\mathrm{load}} + R_{1}") < len(r"R_{\\mathrm{load}} + R_{1}") / 2
+    True
+    """
+    t = latex
+    # fractions: keep the wider part (innermost first)
+    frac = re.compile(r"\\frac\{([^{}]*(?:\{[^{}]*\}[^{}]*)*)\}\{([^{}]*(?:\{[^{}]*\}[^{}]*)*)\}")
+    for _ in range(20):
+        m = frac.search(t)
+        if not m:
+            break
+        a, b = m.group(1), m.group(2)
+        t = t[:m.start()] + "{" + (a if visual_len(a) >= visual_len(b) else b) + "}" + t[m.end():]
+    n_sub = sum(len(_COMMAND.sub("x", _ZERO_WIDTH.sub("", g))) for g in _SUB.findall(t))
+    t2 = _SUB.sub("", t)
+    t2 = _ZERO_WIDTH.sub("", t2)
+    t2 = _COMMAND.sub("x", t2).replace(" ", "")
+    return len(t2) + n_sub * 0.67 + t.count("+") + t.count("-") + t.count("=")
+
+
+def equation_lines(lhs, rhs, width: int = 62) -> list:
     """``lhs = rhs`` as lines of an ``aligned`` environment (``&=`` on the first line).
 
     A long right-hand side is broken before its top-level ``+``/``-`` terms; a long
@@ -114,7 +143,7 @@ def equation_lines(lhs, rhs, width: int = 110) -> list:
     """
     left = to_latex(lhs)
     whole = to_latex(rhs)
-    if len(whole) <= width:
+    if visual_len(whole) <= width:
         return [f"{left} &= {whole}"]
     if isinstance(rhs, sympy.Add):
         return _terms(left + " &= ", list(rhs.as_ordered_terms()), width)
@@ -134,33 +163,45 @@ def _addends(e):
 
 
 def _factors(head, e, width):
-    """A long product, one factor per line."""
-    if not isinstance(e, sympy.Mul) or len(to_latex(e)) <= width:
+    """A long product, one factor per line; a factor that is itself a long sum is broken
+    between its terms, in brackets that open on its first line and close on its last."""
+    if not isinstance(e, sympy.Mul) or visual_len(to_latex(e)) <= width:
         return _terms(head, _addends(e), width)
     lines, cur = [], head
     for k, f in enumerate(e.as_ordered_factors()):
+        joint = r" \cdot " if k else ""
+        if isinstance(f, sympy.Add) and visual_len(to_latex(f)) > width * 0.8:
+            if k:
+                lines.append(cur)
+                cur = r"&\quad \cdot "
+            sub = _terms(cur + r"\left(", list(f.as_ordered_terms()), width, close=True)
+            lines += sub[:-1]
+            cur = sub[-1]
+            continue
         body = to_latex(f) if not isinstance(f, sympy.Add) else r"\left(" + to_latex(f) + r"\right)"
-        if k and len(cur) + len(body) > width:
+        if k and visual_len(cur) + visual_len(body) > width:
             lines.append(cur)
             cur = r"&\quad \cdot " + body
         else:
-            cur += (r" \cdot " if k else "") + body
+            cur += joint + body
     lines.append(cur)
     return lines
 
 
-def _terms(head, terms, width):
+def _terms(head, terms, width, close=False):
+    r"""Terms of a sum, as many on a line as fit. ``close``: the sum sits in an opened
+    bracket, closed at its end (``\right.``/``\left.`` pair the brackets across lines)."""
     lines, cur = [], head
     first = True
     for t in terms:
         neg = t.could_extract_minus_sign()
         body = to_latex(-t if neg else t)
         piece = ("- " if neg else "") + body if first else (" - " if neg else " + ") + body
-        if not first and len(cur) + len(piece) > width:
-            lines.append(cur)
-            cur = "&\\quad" + piece
+        if not first and visual_len(cur) + visual_len(piece) > width:
+            lines.append(cur + (r"\right." if close else ""))
+            cur = "&\\quad" + (r"\left." if close else "") + piece
         else:
             cur += piece
         first = False
-    lines.append(cur)
+    lines.append(cur + (r"\right)" if close else ""))
     return lines

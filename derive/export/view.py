@@ -7,9 +7,11 @@ only lay this out.
 """
 from __future__ import annotations
 
+import re
+
 import sympy
 
-from derive.export.printing import equation_lines, to_latex
+from derive.export.printing import equation_lines, to_latex, visual_len
 from derive.sheet import kinds as element_kinds
 from derive.sheet.units import format_eng
 
@@ -26,6 +28,49 @@ def _value_text(v, unit):
     return format_eng(v, unit)
 
 
+def exact_eng(value, unit) -> str:
+    """An entered (exact rational) value in engineering notation with all of its digits and
+    no rounding: 350.7 ohm stays 350.7 Ω, 4.7k stays 4.7 kΩ. A value with no finite decimal
+    expansion (an entered fraction such as 1/3) falls back to 4 significant figures.
+
+    >>> import sympy
+    >>> exact_eng(sympy.Rational(3507, 10), 'ohm'), exact_eng(sympy.Rational(1, 10**7), 'F')
+    ('350.7 Ω', '100 nF')
+    >>> exact_eng(sympy.Rational(-47, 1000000), 'A'), exact_eng(sympy.Rational(1, 3), 'V')
+    ('-47 µA', '333.3 mV')
+    """
+    from fractions import Fraction
+    from derive.sheet import units as _units
+    q = Fraction(int(sympy.numer(value)), int(sympy.denom(value)))
+    d = q.denominator
+    for p in (2, 5):
+        while d % p == 0:
+            d //= p
+    if d != 1 or q == 0:
+        return format_eng(float(q), unit, digits=4)
+    sign = "-" if q < 0 else ""
+    q = abs(q)
+    # exact decimal digits: q = digits * 10**-k
+    k = 0
+    while (q * 10 ** k).denominator != 1:
+        k += 1
+    digits = str(int(q * 10 ** k))
+    exp10 = len(digits) - 1 - k                     # position of the leading digit
+    exp3 = 3 * (exp10 // 3)
+    if exp3 not in _units._ENG_PREFIX:
+        return format_eng(float(q) * (-1 if sign else 1), unit, digits=max(len(digits), 3))
+    shift = k + exp3                                # the number is digits * 10**-shift
+    if shift <= 0:
+        number = digits + "0" * (-shift)
+    else:
+        digits = digits.rjust(shift + 1, "0")
+        head, tail = digits[:-shift], digits[-shift:].rstrip("0")
+        number = head + ("." + tail if tail else "")
+    shown = _units._UNIT_SHOWN.get(unit, unit) if unit else ""
+    prefix = _units._ENG_PREFIX[exp3]
+    return f"{sign}{number} {prefix}{shown}" if shown else f"{sign}{number}{prefix}"
+
+
 def elements(circuit) -> list:
     rows = []
     nominal = circuit.nominal_values()
@@ -40,7 +85,9 @@ def elements(circuit) -> list:
         if e.value is not None:
             v = e.value.xreplace(nominal)
             if v.is_number:
-                nom = _value_text(float(v), element_kinds.kind(e.kind).unit)
+                # the sheet's exact number, with the digits it was entered with
+                unit = element_kinds.kind(e.kind).unit
+                nom = exact_eng(v, unit) if v.is_Rational else _value_text(float(v), unit)
         info = circuit.symbols.get(e.key)
         tol = ""
         if info is not None and info.tolerance is not None:
@@ -108,9 +155,51 @@ def cautions(circuit) -> list:
     return out
 
 
+# A matrix equation is shown whole up to this many unknowns (and while its widest row fits);
+# beyond it, as the list of its nonzero entries.
+MATRIX_SHOWN = 5
+MATRIX_WIDTH = 60
+
+
+def matrix_lines(lhs, rhs) -> list:
+    """``A x = b`` as aligned lines: whole where it is small, else the unknowns, the nonzero
+    entries of ``A`` (row by row) and of ``b``.
+
+    >>> import sympy
+    >>> a = sympy.Matrix([[1, 0], [0, 2]]); x = sympy.Matrix(sympy.symbols('v_a v_b'))
+    >>> len(matrix_lines(sympy.MatMul(a, x, evaluate=False), sympy.Matrix([1, 0])))
+    1
+    """
+    whole = [to_latex(lhs) + " &= " + to_latex(rhs)]
+    args = lhs.args if isinstance(lhs, sympy.MatMul) else ()
+    if len(args) != 2 or not isinstance(rhs, sympy.MatrixBase):
+        return whole
+    a, x = args
+    if a.shape[0] <= MATRIX_SHOWN and all(
+            visual_len(" & ".join(to_latex(c) for c in a.row(i))) <= MATRIX_WIDTH
+            for i in range(a.shape[0])):
+        return whole
+    n = a.shape[0]
+    out = [r"\mathbf{A}\,\mathbf{x} &= \mathbf{b}, \quad \mathbf{x} = \left(" +
+           ", ".join(to_latex(u) for u in x) + r"\right)^{\mathsf{T}}"
+           r"\quad\text{(%d equations; nonzero entries below)}" % n]
+
+    def entry(name, value):
+        lines = equation_lines(sympy.Symbol("Q"), value)
+        return [name + lines[0][1:]] + lines[1:]
+    for i in range(n):
+        for j in range(a.shape[1]):
+            if a[i, j] != 0:
+                out += entry(f"A_{{{i + 1},{j + 1}}}", a[i, j])
+    for i in range(n):
+        if rhs[i] != 0:
+            out += entry(f"b_{{{i + 1}}}", rhs[i])
+    return out
+
+
 def equation_view(eq) -> dict:
     if isinstance(eq.lhs, sympy.MatMul) or isinstance(eq.rhs, sympy.MatrixBase):
-        lines = [to_latex(eq.lhs) + " &= " + to_latex(eq.rhs)]
+        lines = matrix_lines(eq.lhs, eq.rhs)
     else:
         lines = equation_lines(eq.lhs, eq.rhs)
     return {"lines": lines, "verified": bool(eq.verified),
@@ -126,7 +215,7 @@ def step_view(st) -> dict:
         table = {"head": [str(c) for c in st.table[0]],
                  "rows": [[str(c) for c in r] for r in st.table[1:]]}
     eqs = [equation_view(e) for e in st.equations]
-    return {"text": st.text, "equations": eqs, "table": table,
+    return {"text": eng_prose(st.text), "equations": eqs, "table": table,
             "verified": bool(st.verified) and all(e["verified"] for e in eqs), "kind": st.kind}
 
 
@@ -170,11 +259,167 @@ def quantity_view(q) -> dict:
     if q.expr is not None:
         d["lines"] = equation_lines(sympy.Symbol(q.name), q.expr)
         d["latex"] = to_latex(q.expr)
+        d["long"] = visual_len(d["latex"]) > SHORT_FORM     # not whole in the summary
     else:
+        d["long"] = False
         d["lines"] = []
         d["latex"] = None
     d["sequence"] = [equation_lines(s, e) for s, e in q.sequence] if q.expr is None else []
     return d
+
+
+SHORT_FORM = 45          # closed forms up to this printed width are shown in the summary
+_NUMBER_UNIT = re.compile(r"(?<![\w.])(-?\d+(?:\.\d+)?(?:e[+-]?\d+)?)"
+                          r"(?: to (-?\d+(?:\.\d+)?(?:e[+-]?\d+)?))? (?=(V|A|Ω|ohm|Hz|F|H)\b)")
+
+
+def eng_prose(t: str, digits: int = 4) -> str:
+    """Raw numbers with a unit in generated prose (``0.00500499 V``, ``2.50125e-06 V``,
+    ``-0.0075025 to 0.00250749 V``) in engineering notation with an SI prefix; numbers with
+    few digits (``1 A test current``) are left as written.
+
+    >>> eng_prose("= ± 0.00500499 V, so -0.0075025 to 2.50125e-06 V.")
+    '= ± 5.005 mV, so -7.502 mV to 2.501 µV.'
+    >>> eng_prose("a 1 A test current, 350 Ω")
+    'a 1 A test current, 350 Ω'
+    """
+    def long(n):
+        return "e" in n or len(n.lstrip("-").replace(".", "").strip("0")) > digits
+
+    def one(n, unit):
+        return format_eng(float(n), unit, digits=digits)
+
+    def sub(m):
+        a, b, word = m.group(1), m.group(2), m.group(3)
+        unit = "ohm" if word in ("Ω", "ohm") else word
+        cut = len(_UNIT_WORD.get(unit, unit))
+        def wants(n):
+            x = abs(float(n))
+            return long(n) or (x != 0 and (x < 0.1 or x >= 1e4))
+        if not (wants(a) or (b is not None and wants(b))):
+            return m.group(0)
+        if b is not None:
+            return one(a, unit) + " to " + one(b, unit)[:-cut]
+        return one(a, unit)[:-cut]
+    return _NUMBER_UNIT.sub(sub, t)
+
+
+_UNIT_WORD = {"ohm": "Ω"}
+_QUANTITY_UNIT = {"vth": "V", "voltage": "V", "isc": "A", "current": "A", "rth": "ohm",
+                  "rn": "ohm", "rin": "ohm", "rout": "ohm", "resistance": "ohm"}
+
+
+def _unit_of(record, name):
+    for r in record.results:
+        q = r.quantities.get(name)
+        if q is not None and q.unit:
+            return q.unit
+    return _QUANTITY_UNIT.get(name)
+
+
+def _eng(v, unit):
+    return format_eng(v, unit, digits=4) if v is not None else "—"
+
+
+def _tx(v, unit) -> str:
+    """A value with unit inside math (a true minus sign, the rest upright text)."""
+    t = format_eng(v, unit, digits=4)
+    return r"-\text{%s}" % t[1:] if t.startswith("-") else r"\text{%s}" % t
+
+
+def _plain(v) -> str:
+    """A dimensionless figure to 4 significant digits, without an SI prefix."""
+    t = f"{v:.4g}"
+    return t if "e" not in t else format_eng(v, None, digits=4)
+
+
+def _frequency_items(record, r, q):
+    """f0/ω0/Q, corner, poles and DC gain of a frequency-dependent quantity."""
+    f = (r.extra.get("frequency") or {}).get(q.name)
+    if not f or q.expr is None:
+        return []
+    parts = []
+    if f.get("f0_value") is not None:
+        parts.append(r"f_0 = \text{%s}" % _eng(f["f0_value"], "Hz"))
+    if f.get("w0_value") is not None:
+        parts.append(r"\omega_0 = \text{%s}" % format_eng(f["w0_value"], "rad/s", digits=4))
+    if f.get("Q_value") is not None:
+        parts.append(r"Q = %s" % _plain(f["Q_value"]))
+    if f.get("f_corner_value") is not None:
+        parts.append(r"f_c = \text{%s}" % _eng(f["f_corner_value"], "Hz"))
+    s = sympy.Symbol("s")
+    try:
+        dc = sympy.cancel(q.expr).subs(s, 0)
+        dc = dc.xreplace(record.circuit.nominal_values()) if dc.is_finite is not False else None
+        if dc is not None and dc.is_number and dc.is_finite:
+            parts.append(r"\text{DC gain} = %s" % format_eng(float(dc), None, digits=4)
+                         if q.unit in ("V/V", "A/A") else
+                         r"\text{at DC} = \text{%s}" % _eng(float(dc), q.unit))
+    except (TypeError, ValueError, ZeroDivisionError):
+        pass
+    poles = f.get("poles_value") or []
+    if poles:
+        shown = []
+        for p in poles[:4]:
+            re_, im = (p[0], p[1]) if isinstance(p, (list, tuple)) else (p, 0)
+            txt = _tx(re_, "rad/s") if re_ else "0"
+            if im:
+                txt += r" \pm j\,%s" % _tx(abs(im), "rad/s")
+            shown.append(txt)
+        parts.append(r"\text{poles } s = " + r",\ ".join(dict.fromkeys(shown)))
+    return [{"label": "frequency response", "math": r",\quad ".join(parts), "text": ""}] \
+        if parts else []
+
+
+def request_summary(record, r) -> list:
+    """The answer of one request in a few lines: closed form where short, value with unit,
+    tolerance band, the three largest sensitivities, verdicts, frequency figures."""
+    items = []
+    x = r.extra
+    for q in r.quantities.values():
+        name = to_latex(sympy.Symbol(q.name))
+        form = to_latex(q.expr) if q.expr is not None else None
+        math = name + (" = " + form if form and visual_len(form) <= SHORT_FORM else "")
+        value = _value_text(q.value, q.unit) if q.value is not None else ""
+        items.append({"label": "inverted formula" if q.form == "inverted" else "",
+                      "math": math, "text": ("= " + value) if value else "no value (symbolic)" +
+                      (", closed form below" if form and visual_len(form) > SHORT_FORM
+                       else "")})
+        items += _frequency_items(record, r, q)
+    if "valid_range" in x and x["valid_range"]:
+        rng = x["valid_range"][0]
+        unit = (x.get("measured") or {}).get("unit")
+        if rng.get("low_value") is not None and rng.get("high_value") is not None:
+            items.append({"label": "valid for", "math": "", "text":
+                          f"{_eng(rng['low_value'], unit)} < measured value < "
+                          f"{_eng(rng['high_value'], unit)}"})
+    if "spread" in x:
+        name = x.get("tolerance_of", "")
+        unit = _unit_of(record, name)
+        sp = x["spread"]
+        txt = f"{_eng(sp['low'], unit)} to {_eng(sp['high'], unit)} (extreme values, " \
+              f"nominal {_eng(sp['nominal'], unit)})"
+        rss = x.get("rss")
+        if rss:
+            txt += f"; RSS {_eng(rss['low'], unit)} to {_eng(rss['high'], unit)}"
+        items.append({"label": "tolerance band", "math": to_latex(sympy.Symbol(name)) if name
+                      else "", "text": txt})
+    if "sensitivities" in x:
+        sens = sorted(x["sensitivities"].items(),
+                      key=lambda kv: (kv[1].get("rank") or 1e9, kv[0]))[:3]
+        parts = [f"{k} {_plain(v['value'])}" for k, v in sens
+                 if v.get("value") is not None]
+        items.append({"label": "largest normalized sensitivities (x/Q)(dQ/dx)",
+                      "math": "", "text": ", ".join(parts)})
+    if "holds" in x:
+        if x["holds"]:
+            verdict = "holds (exact)"
+        elif x["holds"] is False:
+            verdict = "does not hold" + (f": {x['diagnosis']}" if x.get("diagnosis") else "")
+        else:
+            verdict = "undecided"
+        items.append({"label": "claim", "math": "", "text": verdict})
+    return items
 
 
 def view(record) -> dict:
@@ -183,6 +428,7 @@ def view(record) -> dict:
     for r in record.results:
         figs = r.extra.get("figures") or []
         results.append({"request": r.request.text, "notes": list(r.notes),
+                        "summary": request_summary(record, r),
                         "quantities": [quantity_view(q) for q in r.quantities.values()],
                         "steps": [step_view(s) for s in r.steps],
                         "figures": list(figs)})
@@ -190,6 +436,8 @@ def view(record) -> dict:
     return {"title": c.sheet.title or "Design calculation", "notes": list(c.sheet.notes),
             "elements": elements(c), "assumptions": assumptions(c), "cautions": cautions(c),
             "results": results,
+            "closed_forms": any(q["long"] and q["lines"] for r in results
+                                for q in r["quantities"]),
             "all_verified": all(s["verified"] for s in all_steps),
             "n_equations": sum(len(s["equations"]) for s in all_steps),
             "verification": verification_sentence(all_steps)}
