@@ -29,7 +29,7 @@ import math
 import numpy as np
 import sympy
 
-from derive.analyses.run import Context, RequestResult, handler
+from derive.forms.results import Context, RequestResult
 from derive.errors import SheetError
 from derive.analyses import sensitivity as _sens     # module object: the two modules import each other
 from derive.derivation.steps import Step
@@ -400,7 +400,6 @@ def spread_of(ctx: Context, a, req) -> tuple:
     return out, steps, values
 
 
-@handler("tolerance")
 def tolerance(ctx: Context, req) -> RequestResult:
     from derive.export import plots
     res = RequestResult(req)
