@@ -73,10 +73,10 @@ def derive_text(text: str, filename: str = "<sheet>", symbolic: Optional[list] =
     >>> q["rth"].expr, q["rth"].value
     (R1*R2/(R1 + R2), 800.0)
     """
-    from derive.analyses.run import Options, analyse
+    from derive.analyses.run import Options, run
     c = circuit_of(text, filename)
     try:
-        results = analyse(c, Options(symbolic=symbolic, max_terms=max_terms, **options))
+        results = run(c, Options(symbolic=symbolic, max_terms=max_terms, **options))
     except SheetError as e:
         raise e.with_context(text, filename)
     return Record(c, results)

@@ -164,8 +164,7 @@ def _run(args, stdin_data: Optional[bytes] = None) -> int:
         else:
             data = render(rec, fmt, args)
         if args.output:
-            if not isinstance(data, (bytes, bytearray)) or fmt != "pdf":
-                write_atomic(args.output, data)
+            write_atomic(args.output, data)       # every format, the PDF too: written here only
         else:
             write_stdout(data)
         return 0

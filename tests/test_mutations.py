@@ -17,7 +17,7 @@ import pytest
 import sympy
 
 import derive
-import derive.analyses.run  # noqa: F401  (loads the handlers before their modules are imported)
+import derive.analyses.run  # noqa: F401  (the handler table and every analysis module)
 from derive.derivation import port_steps as derivation
 from derive.derivation import nodal_steps as derivation_nodal
 from derive.analyses import inversion

@@ -415,14 +415,14 @@ def test_circuit_elements_keep_their_attributes_through_blocks():
     assert c.element("i.U").origin.voltage_noise == Fraction(1, 10**9)
 
 
-# ------------------------------------------------------------------ refused cleanly, for now
-NOT_YET = ["find operating point", "find power in R1", "find stress", "find drift of vth at out",
+# ------------------------------------------------------------------ refused cleanly (no handler)
+NOT_YET = ["find operating point", "find stress", "find drift of vth at out",
            "find budget of vth at out", "choose R2 from E96 for gain from Vin to out = 0.5",
            "choose R1, R2 from E24 for vth at out = 1.2 V",
            "find noise at out from 10 Hz to 100 kHz",
            "find gain from Vin to out approximately within 1%",
-           "find sensitivity of power in R1", "solve power in R1 for R2",
-           "check power in R1 equals R1"]
+           "find power in R1 approximately within 1%", "find drift of power in R1",
+           "choose R2 from E24 for power in R1 = 1 mW"]
 
 
 @pytest.mark.parametrize("line", NOT_YET, ids=range(len(NOT_YET)))
@@ -436,7 +436,7 @@ def test_requests_without_analysis_are_refused_with_a_location(tmp_path, capsys,
     lineno = BASE_LINES + 3
     c = col(line, "approximately") if "approximately" in line else 1
     assert err.startswith(f"{path}:{lineno}:{c}: error: "), err
-    assert "not available yet" in err and "Traceback" not in err
+    assert "not supported by this version" in err and "Traceback" not in err
     assert line in err
 
 

@@ -81,8 +81,10 @@ def test_non_monotone_extremes_equal_brute_force_grid():
     assert ex["spread"]["high"] == pytest.approx(hi, rel=1e-9)
     # the maximum is inside the box (d = 0), at Rn's upper end: 1010/2
     assert ex["spread"]["high"] == pytest.approx(505.0, rel=1e-9)
-    assert "interior search" in ex["spread"]["method"]
-    assert ex["monotone"] == {"Rn": "increasing", "d": "not proven"}
+    # d alone is not monotone: the extreme in d comes from the exact real roots of dQ/dd
+    assert "exact in d" in ex["spread"]["method"]
+    assert "1 critical point(s) inside" in ex["spread"]["method"]
+    assert ex["monotone"] == {"Rn": "increasing", "d": "not monotone"}   # a critical point inside
     # the linear worst case misses the curvature: its high limit exceeds the true maximum
     assert ex["worst_case_linear"]["high"] > ex["spread"]["high"]
 
@@ -159,7 +161,7 @@ def test_extremes_of_a_pure_expression():
     lo, hi, method, mono = extremes(f, {x: Form([], 3 - 2 * x)}, {x: sympy.Rational(3, 2)},
                                     {x: (sympy.Rational(3, 2), sympy.Rational(1, 2))})
     assert hi == pytest.approx(2.25, rel=1e-9) and lo == pytest.approx(2.0, rel=1e-12)
-    assert mono == {x: "not proven"}
+    assert mono == {x: "not monotone"}      # its critical point 3/2 is inside the box
 
 
 def test_json_figure_and_errors(tmp_path):

@@ -16,7 +16,7 @@ import random
 import sympy
 from derive.sheet.expressions import as_expr
 
-from derive.analyses import run as analysis
+from derive.forms import results as analysis
 from derive.circuit import dimensions
 from derive.circuit.build import S, key_of
 from derive.sheet.expressions import to_sympy
@@ -172,7 +172,6 @@ def dimension_verdict(ctx, req, q_unit, q_expr):
     return None, f"dimensions agree ({dimensions.show(want)})"
 
 
-@analysis.handler("check")
 def check_request(ctx, req) -> analysis.RequestResult:
     name, q_expr, q = quantity_of(ctx, req)
     claim = claim_expr(ctx, req)

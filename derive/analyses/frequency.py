@@ -26,6 +26,7 @@ from derive.sheet.quantities import QUANTITIES
 # Bode figures, and all of them
 BODE_KINDS = tuple(n for n, q in QUANTITIES.items() if q.frequency == "bode")
 WRAPPED = tuple(n for n, q in QUANTITIES.items() if q.frequency is not None)
+ANNOTATED = WRAPPED
 
 
 def _coeffs(p):
@@ -250,8 +251,14 @@ def bode_figure(name, caption, num, den, unit=None) -> Figure:
     return Figure(name, caption, draw)
 
 
-def annotate(ctx, req, result, figures: bool = True):
-    """Add ``extra["frequency"]`` (and Bode figures) for every ``s``-dependent quantity."""
+def annotate(ctx, req, result):
+    """Add ``extra["frequency"]`` (and Bode figures) for every ``s``-dependent quantity of a
+    ``find Q`` result whose Q is in :data:`ANNOTATED` (Bode figures for :data:`BODE_KINDS`);
+    any other result is returned as it is. Run on every result by
+    :func:`derive.analyses.run.run`."""
+    if req.statement != "find" or req.analysis is not None or req.quantity not in ANNOTATED:
+        return result
+    figures = req.quantity in BODE_KINDS
     nominal = ctx.nominal
     freq = {}
     for name, q in result.quantities.items():
@@ -273,17 +280,3 @@ def annotate(ctx, req, result, figures: bool = True):
 def _slug(text):
     return "".join(ch if ch.isalnum() else "_" for ch in text).strip("_")
 
-
-def install():
-    """Wrap the handlers of port quantities, models and two-ports with :func:`annotate`."""
-    from derive.analyses import run as analysis
-    for q in WRAPPED:
-        fn = analysis.HANDLERS.get(q)
-        if fn is None or getattr(fn, "_frequency", False):
-            continue
-
-        def wrapped(ctx, req, _fn=fn, _q=q):
-            return annotate(ctx, req, _fn(ctx, req), figures=_q in BODE_KINDS)
-        wrapped._frequency = True
-        wrapped.__wrapped__ = fn
-        analysis.HANDLERS[q] = wrapped

@@ -13,7 +13,7 @@ from __future__ import annotations
 import sympy
 from derive.sheet.expressions import as_expr
 
-from derive.analyses import run as analysis
+from derive.forms import results as analysis
 from derive.solver import convert as edge
 from derive.forms import select as forms
 from derive.forms import elimination as sequence
@@ -172,7 +172,6 @@ def _end_text(end, q, side):
     return to_text(sym) if sym is not None else f"{float(v):.6g}"
 
 
-@analysis.handler("solve")
 def solve_request(ctx, req) -> analysis.RequestResult:
     name, expr, fq = quantity_of(ctx, req)
     x = sympy.Symbol(key_of(req.solve_for))

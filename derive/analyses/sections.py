@@ -24,7 +24,7 @@ import dataclasses
 
 import sympy
 
-from derive.analyses import run as analysis
+from derive.forms import results as analysis
 from derive.solver import convert as edge
 from derive.errors import SheetError
 from derive.solver.stamping import System
@@ -108,7 +108,7 @@ class Dets:
 
     def __init__(self, ctx, req, circuit):
         self.system = System(circuit, ctx.numeric_subs())
-        solver = Solver(self.system, ctx.options.max_terms, req.loc)
+        solver = Solver(self.system, ctx.options.max_terms, req.loc)   # a section's own
         s = self.system
         u1 = s.port_vector(*ctx.port(req.port))
         u2 = s.port_vector(*ctx.port(req.port2))
@@ -116,7 +116,7 @@ class Dets:
         b11 = A.bordered(u1, u1)
         self.m = {"D": A, "D1": b11, "D2": A.bordered(u2, u2), "D12": A.bordered(u1, u2),
                   "D21": A.bordered(u2, u1), "DM": b11.bordered(u2, u2)}
-        self.d = {k: solver._det(m) for k, m in self.m.items()}
+        self.d = {k: solver.det(m) for k, m in self.m.items()}
         d = self.d
         if not (d["D"] * d["DM"] - d["D1"] * d["D2"] + d["D12"] * d["D21"]).is_zero():
             raise AssertionError("internal check failed: Desnanot-Jacobi identity of the "
@@ -214,7 +214,6 @@ def _load_symbol(circuit) -> sympy.Symbol:
     return sympy.Symbol(name)
 
 
-@analysis.handler("model")
 def model_handler(ctx, req) -> analysis.RequestResult:
     out = analysis.RequestResult(req)
     circuit, removed = section_circuit(ctx, req, [req.port])
@@ -332,7 +331,7 @@ def _removal_step(ctx, req, removed, gain):
               elements=[e.name for e in removed], kind="model")
     src = removed[0]
     try:
-        full = Solver(System(ctx.circuit, ctx.numeric_subs()), ctx.options.max_terms, req.loc)
+        full = ctx.solver(req.loc)          # the circuit's own solver (shared)
         g = full.vth(ctx.port(req.port2), only=src.name)
         sign = 1 if src.nodes == ctx.port(req.port) else -1
         st.equations.append(Equation(sympy.Symbol("gain"), gain.expr,
@@ -354,7 +353,6 @@ def block_text(req) -> str:
         "end"])
 
 
-@analysis.handler("twoport")
 def twoport_handler(ctx, req) -> analysis.RequestResult:
     out = analysis.RequestResult(req)
     circuit, removed = section_circuit(ctx, req, [req.port, req.port2])
@@ -399,14 +397,3 @@ def _conversion_step(q):
     return Step("Parameter sets converted into each other (standard two-port conversion "
                 "relations), each conversion checked exactly.", eqs, kind="twoport")
 
-
-def _install_frequency():
-    import importlib
-    importlib.import_module(f"{__package__}.frequency").install()
-
-
-try:
-    _install_frequency()
-except ModuleNotFoundError as _e:       # frequency module not present
-    if _e.name != f"{__package__}.frequency":
-        raise

@@ -44,7 +44,7 @@ import sympy
 
 from derive.solver import convert as edge
 from derive.forms import select as forms
-from derive.analyses.run import Context, RequestResult, handler
+from derive.forms.results import Context, RequestResult
 from derive.circuit.build import S as LAPLACE_S
 from derive.errors import SheetError
 from derive.sheet import quantities
@@ -408,7 +408,7 @@ def _check_scalar(req):
     if not quantities.accepts(req.analysis or "sensitivity", req.quantity):
         raise SheetError(f"sensitivity/tolerance of '{req.quantity}' is not offered: ask for one "
                          "scalar quantity (vth, rth, isc, rn, resistance, impedance, voltage, "
-                         "current, gain)", req.loc.line, req.loc.col)
+                         "current, gain, power)", req.loc.line, req.loc.col)
 
 
 def analysed(ctx: Context, req) -> list:
@@ -541,7 +541,6 @@ def _slug(text: str) -> str:
     return "".join(c if c.isalnum() else "-" for c in text).strip("-").lower()
 
 
-@handler("sensitivity")
 def sensitivity(ctx: Context, req) -> RequestResult:
     res = RequestResult(req)
     items = analysed(ctx, req)

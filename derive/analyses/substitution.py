@@ -5,7 +5,7 @@ taken alone, between the sheet's ports P1 and P2; their voltage-amplifier model 
 rout; see :mod:`derive.analyses.sections`) is derived exactly and put in their place as three
 elements ``q1.rin`` (across P1), ``q1.E`` (a voltage source ``gain·across(P1)`` referred to
 P2's − node) and ``q1.rout`` (from the source to P2's + node). Every request is then answered
-on the substituted circuit. :func:`derive.analyses.run.analyse` applies :func:`annotate` to
+on the substituted circuit. :func:`derive.analyses.run.run` applies :func:`annotate` to
 every result of a substituted circuit, whatever its request (``find``, ``check``, ``solve``,
 ``find sensitivity``, ``find tolerance``, ``find model``, ...): a note on the result that it
 was computed on the model (shown in every record and by ``derive check``), the substitution
@@ -23,7 +23,7 @@ from types import SimpleNamespace
 
 import sympy
 
-from derive.analyses import run as analysis
+from derive.forms import results as analysis
 from derive.solver import convert as edge
 from derive.circuit.build import S, CElement, Control
 from derive.errors import SheetError
@@ -184,7 +184,7 @@ def annotate(ctx, req, result, fn):
     ``derive check``), the substitution as the first step and in ``extra["substitution"]``,
     and with ``compare`` the model's error against the full circuit (``extra["model_error"]``,
     and for ``check`` the verdict on the full circuit in ``extra["full_circuit_holds"]``).
-    Applied by :func:`derive.analyses.run.analyse` to every result of a substituted circuit."""
+    Applied by :func:`derive.analyses.run.run` to every result of a substituted circuit."""
     from derive.export.printing import to_text
     subs = ctx.circuit.model_substitutions
     for s in reversed(subs):

@@ -25,11 +25,12 @@ from __future__ import annotations
 
 import itertools
 import math
+from fractions import Fraction
 
 import numpy as np
 import sympy
 
-from derive.analyses.run import Context, RequestResult, handler
+from derive.forms.results import Context, RequestResult
 from derive.errors import SheetError
 from derive.analyses import sensitivity as _sens     # module object: the two modules import each other
 from derive.derivation.steps import Step
@@ -312,6 +313,17 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
                   f"every toleranced part, so the extremes are corners; {len(vals)} corners "
                   "evaluated exactly")
         return (float(min(v[0] for v in vals)), float(max(v[1] for v in vals)), method, mono)
+    if len(free) == 1:
+        exact = _one_part_extremes(form, free[0], box, base, lo_pt, hi_pt)
+        if exact is not None:
+            x = free[0]
+            mono[x] = "not monotone" if exact[2] else mono[x]
+            method = (f"exact in {x}: monotonicity not proven for {x} alone, so Q (the other "
+                      "parts at the corners proven above) is a rational function of "
+                      f"{x}, whose extremes over its tolerance are taken exactly at the ends "
+                      f"or at the real roots of the derivative's numerator "
+                      f"({exact[2]} critical point(s) inside)")
+            return exact[0], exact[1], method, mono
     f = _vec(form)
     fl = {x: float(v) for x, v in base.items()}
     best = {}
@@ -347,6 +359,42 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
                  "denominator may vanish inside it), so Q may be unbounded there and these "
                  "limits are only the extremes found"))
     return best[1], best[-1], method, mono
+
+
+def _fraction(v):
+    v = sympy.Rational(v)
+    return Fraction(int(v.p), int(v.q))
+
+
+def _one_part_extremes(form: Form, x, box: dict, base: dict, lo_pt: dict, hi_pt: dict):
+    """(low, high, number of critical points) of a closed form that is rational in the one
+    unproven part ``x``, the other parts fixed (``lo_pt`` for the low, ``hi_pt`` for the
+    high); exact (:func:`derive.solver.univariate.extremes`). None where this does not apply
+    (a sequence form, an irrational coefficient, a pole on the interval)."""
+    from derive.solver import univariate
+    if form.defs:
+        return None
+    c, h = box[x]
+    a, b = _fraction(c - h), _fraction(c + h)
+    out, crit = [], 0
+    for fixed, lower in ((lo_pt, True), (hi_pt, False)):
+        point = {k: v for k, v in {**base, **fixed}.items() if k != x}
+        e = sympy.cancel(sympy.together(form.final.xreplace(point)))
+        if e.free_symbols - {x}:
+            return None
+        num, den = sympy.fraction(e)
+        try:
+            N, D = ([_fraction(k) for k in reversed(sympy.Poly(p, x).all_coeffs())]
+                    for p in (num, den))
+            ext = univariate.extremes(N, D, a, b)
+        except (TypeError, ValueError, sympy.PolynomialError, ArithmeticError):
+            return None
+        pick = ext.minimum if lower else ext.maximum
+        v = pick.value if pick.value is not None else (pick.lo + pick.hi) / 2
+        crit = max(crit, sum(1 for r in ext.critical
+                             if not (isinstance(r, Fraction) and r in (a, b))))
+        out.append(float(v))
+    return out[0], out[1], crit
 
 
 class Unbounded(ArithmeticError):
@@ -466,7 +514,6 @@ def spread_of(ctx: Context, a, req) -> tuple:
     return out, steps, values
 
 
-@handler("tolerance")
 def tolerance(ctx: Context, req) -> RequestResult:
     from derive.export import plots
     res = RequestResult(req)

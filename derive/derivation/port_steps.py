@@ -488,3 +488,59 @@ def _value_step(ctx, req, q) -> Step:
         eq.mark(method, indep == exact)
         eqs.append(eq)
     return Step(f"At nominal values: {q.name} = {shown}.", eqs, kind="value", table=rows)
+
+
+# ------------------------------------------------------------------ power in X
+def power_steps(ctx, req, out) -> list:
+    """The verified steps of ``power in X``: ``p = v·i`` in the nodal unknowns (passive sign
+    convention), the nodal equations, then the closed form checked against exact solves of
+    those equations at random rational points; for a reactive circuit the DC value (s = 0)
+    checked against the s-domain product; the value at nominal values."""
+    from derive.circuit.build import S
+    from derive.derivation.nodal_steps import random_solve_check
+    from derive.forms.power import reactive
+    nodal = _nodal(ctx, begin=True)
+    e = ctx.circuit.element(req.element)
+    q = out.quantities["power"]
+    a, b = e.nodes
+    v_form = nodal.v(a) - nodal.v(b)
+    i_form = nodal.current(e.name).xreplace(nodal.src_values)
+    cur = Equation(sympy.Symbol(f"i_{e.name}"), i_form)
+    cur.mark("system", _through_agrees(nodal, e.name, i_form))
+    volt = Equation(sympy.Symbol(f"v_{e.name}"), v_form, definition=True)
+    p = sympy.Symbol("power")
+    steps = [Step(f"Power absorbed by {e.name} (passive sign convention: positive when "
+                  f"{e.name} absorbs power): p = v·i, with v the voltage of {a} against {b} "
+                  f"and i the current through {e.name} from {a} to {b} (its reference "
+                  "direction), in terms of the nodal unknowns:",
+                  [volt, cur, Equation(p, v_form * i_form, definition=True)], [e.name],
+                  kind="power")]
+    steps += equation_steps(nodal)
+    solver = ctx.solver(req.loc)
+    s_form = edge.to_sympy(solver.voltage(a, b) * solver.current(e.name))
+    dc = S in s_form.free_symbols
+    whole = Equation(p, s_form if dc else q.expr)
+    whole.mark("system", *random_solve_check(nodal, v_form * i_form, nodal.b, whole.rhs))
+    steps.append(Step(f"Solving the equations above for v and i of {e.name}: the product, "
+                      "compared with exact solves of the nodal equations at random rational "
+                      "points.", [whole], [e.name], kind="power"))
+    if dc:
+        num, den = sympy.fraction(sympy.cancel(sympy.together(s_form)))
+        limit = Equation(p, q.expr, check=num.subs(S, 0) / den.subs(S, 0))
+        steps.append(Step("At DC (s = 0: capacitors open, inductors shorted), the power of "
+                          "the circuit's DC solution: the product above at s = 0. (The "
+                          "s-domain product is no power: power is asked at DC.)", [limit],
+                          [e.name], kind="power"))
+    elif reactive(ctx.circuit):
+        steps.append(Step("The circuit is reactive; its result does not depend on s, so it "
+                          "holds at DC (s = 0: capacitors open, inductors shorted).",
+                          kind="power"))
+    steps.append(_value_step(ctx, req, q))
+    failed = [st for st in steps if not st.verify()]
+    if failed:
+        st = failed[0]
+        bad = [x for x in st.equations if not x.verified]
+        raise StepFailed(f"internal check failed in the derivation of {req.text!r}: "
+                         f"{st.text} ({bad[0].lhs} = {bad[0].rhs})", steps)
+    return steps
+

@@ -262,8 +262,9 @@ def compile_pdf(source: str, workdir: str) -> bytes:
 
 
 def render(record, fmt: str, args=None):
-    """'tex': the LaTeX source (str). 'pdf': the PDF (bytes); with ``-o`` the PDF is written
-    there whole, and where TeX is missing or fails the ``.tex`` is written beside it."""
+    """'tex': the LaTeX source (str). 'pdf': the PDF (bytes), which the caller writes (the
+    command line, with every other format); with ``-o``, where TeX is missing or fails, the
+    ``.tex`` is written beside the requested PDF."""
     output = getattr(args, "output", None) if args is not None else None
     if fmt == "tex":
         return latex_source(record)
@@ -277,6 +278,4 @@ def render(record, fmt: str, args=None):
                 write_atomic(tex_path, source)
                 raise DeriveError(f"{e}; the LaTeX source was written to {tex_path}") from None
             raise
-    if output:
-        write_atomic(output, pdf)
     return pdf

@@ -12,6 +12,8 @@ import sympy
 
 from derive.solver import convert as edge
 from derive.errors import SheetError
+from derive.forms import power
+from derive.forms.results import QuantityResult
 from derive.sheet import kinds, quantities
 from derive.solver.determinant import estimate_det_terms
 from derive.solver.stamping import System
@@ -20,14 +22,11 @@ from derive.solver.cramer import Solver
 
 
 def system_of(ctx) -> System:
-    if "system" not in ctx.cache:
-        ctx.cache["system"] = System(ctx.circuit, ctx.numeric_subs())
-    return ctx.cache["system"]
+    return ctx.system()
 
 
 def _solver(ctx, req) -> Solver:
-    system = system_of(ctx)
-    return Solver(system, ctx.options.max_terms, req.loc)
+    return ctx.solver(req.loc)
 
 
 def expandable(ctx) -> bool:
@@ -46,8 +45,11 @@ def names_for(req):
 
 
 def port_quantities(ctx, req) -> list:
-    """Results of a thevenin/norton/vth/.../current/gain request (a list of QuantityResult)."""
-    from derive.analyses.run import QuantityResult
+    """Results of a thevenin/norton/vth/.../current/gain/power request (a list of
+    QuantityResult); ``find``, ``solve``, ``check``, ``find sensitivity`` and ``find
+    tolerance`` all take their quantity from here."""
+    if req.quantity == "power":
+        return power.quantities(ctx, req, expandable(ctx))
     out = []
     for name in names_for(req):
         unit = gain_unit(ctx, req.source) if name == "gain" else quantities.unit(name)

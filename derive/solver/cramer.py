@@ -16,10 +16,12 @@ All determinants are taken by :func:`derive.solver.determinant.det` on exact pol
 """
 from __future__ import annotations
 
+import copy
 from dataclasses import dataclass
 
 from derive.errors import SheetError, TooLarge
-from derive.solver.determinant import det, estimate_det_terms
+from derive.solver import determinant
+from derive.solver.determinant import estimate_det_terms
 from derive.solver.stamping import System
 
 
@@ -57,15 +59,31 @@ class Ratio:
 
 
 class Solver:
-    """Determinants of one system, cached, with a guard on their expected size."""
+    """Determinants of one system, cached by what they are, with a guard on their size.
+
+    The cache is keyed by name: ``"A"`` for ``det A`` and ``("bordered", col, row)`` for a
+    bordered determinant whose column and row are named vectors (``("port", plus, minus)``,
+    ``("rhs", only)``, ``("through", element)``). :meth:`at` gives a view with another error
+    location that shares the cache, so one solver serves every request on a circuit."""
 
     def __init__(self, system: System, max_terms: float = 2e6, where=None):
         self.system = system
         self.max_terms = max_terms
         self.where = where
-        self._d0 = None
+        self._dets = {}
 
-    def _det(self, m):
+    def at(self, where) -> "Solver":
+        """This solver (same system and determinant cache) with errors located at ``where``."""
+        if where is self.where:
+            return self
+        view = copy.copy(self)
+        view.where = where
+        return view
+
+    def det(self, m, key=None):
+        """``det m`` after the size guard; cached under ``key`` when one is given."""
+        if key is not None and key in self._dets:
+            return self._dets[key]
         est = estimate_det_terms(m)
         if est > self.max_terms:
             line, col = (self.where.line, self.where.col) if self.where else (0, 0)
@@ -73,34 +91,53 @@ class Solver:
                 f"the expanded result would have about {est:.3g} terms (limit "
                 f"{self.max_terms:.3g}): keep fewer symbols symbolic ('numeric R1, R2' in the "
                 "sheet or --symbolic on the command line) or raise --max-terms", line, col)
-        return det(m)
+        d = determinant.det(m)
+        if key is not None:
+            self._dets[key] = d
+        return d
+
+    def det_a(self):
+        """``det A`` (cached), whether or not it vanishes."""
+        return self.det(self.system.A, "A")
 
     def d0(self):
-        if self._d0 is None:
-            self._d0 = self._det(self.system.A)
-            if self._d0.is_zero():
-                line, col = (self.where.line, self.where.col) if self.where else (0, 0)
-                raise SheetError("the circuit is singular: its node voltages are not fixed "
-                                 "(an op-amp without a feedback path, a floating section, or "
-                                 "sources that contradict each other)", line, col)
-        return self._d0
+        """``det A``, which must not vanish: a located error says why otherwise."""
+        d = self.det_a()
+        if d.is_zero():
+            line, col = (self.where.line, self.where.col) if self.where else (0, 0)
+            raise SheetError("the circuit is singular: its node voltages are not fixed "
+                             "(an op-amp without a feedback path, a floating section, or "
+                             "sources that contradict each other)", line, col)
+        return d
 
-    def bordered(self, col, row, corner=0):
-        return self._det(self.system.A.bordered(col, row, corner))
+    def vector(self, name):
+        """The vector a name stands for: ``("port", plus, minus)``, ``("rhs", only)`` or
+        ``("through", element)`` (the coefficients of the element's current)."""
+        kind = name[0]
+        if kind == "port":
+            return self.system.port_vector(name[1], name[2])
+        if kind == "rhs":
+            return self.system.rhs(only=name[1])
+        if kind == "through":
+            return self.system.through(name[1]).coef
+        raise KeyError(name)
+
+    def bordered(self, col, row):
+        """``det[[A, col], [row^T, 0]]`` of two named vectors (see :meth:`vector`), cached."""
+        return self.det(self.system.A.bordered(self.vector(col), self.vector(row)),
+                        ("bordered", col, row))
 
     # ------------------------------------------------------------ quantities
     def vth(self, port, only=None):
-        u = self.system.port_vector(*port)
-        b = self.system.rhs(only=only)
+        u, b = ("port", *port), ("rhs", only)
         return Ratio(-self.bordered(b, u), self.d0(), self.system).cancel()
 
     def rth(self, port):
-        u = self.system.port_vector(*port)
+        u = ("port", *port)
         return Ratio(-self.bordered(u, u), self.d0(), self.system).cancel()
 
     def isc(self, port):
-        u = self.system.port_vector(*port)
-        b = self.system.rhs()
+        u, b = ("port", *port), ("rhs", None)
         dz = self.bordered(u, u)
         if dz.is_zero():
             return None          # port across an ideal voltage: no finite short-circuit current
@@ -108,7 +145,11 @@ class Solver:
 
     def current(self, element):
         f = self.system.through(element)
-        b = self.system.rhs()
         d0 = self.d0()
-        num = f.const * d0 - self.bordered(b, f.coef) if f.coef else f.const * d0
+        num = f.const * d0 - self.bordered(("rhs", None), ("through", element)) if f.coef \
+            else f.const * d0
         return Ratio(num, d0, self.system).cancel()
+
+    def voltage(self, plus, minus):
+        """The voltage of node ``plus`` against node ``minus`` with every source acting."""
+        return self.vth((plus, minus))

@@ -1,0 +1,87 @@
+"""What a request's answer is made of: :class:`QuantityResult`, :class:`RequestResult`, the
+run's :class:`Options` and the :class:`Context` handlers share (the circuit, its stamped
+system and one :class:`~derive.solver.cramer.Solver` with its determinant cache)."""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Optional
+
+import sympy
+
+from derive.circuit.build import Circuit, key_of
+from derive.solver.cramer import Solver
+from derive.solver.stamping import System
+
+
+@dataclass
+class QuantityResult:
+    """One named result (``vth``, ``rth``, ``gain``, ``power``, ...)."""
+    name: str
+    expr: Optional[sympy.Expr]          # compact closed form (None only if too large)
+    value: Optional[complex | float]    # at nominal values
+    unit: Optional[str]
+    ratio: object = None                # exact Ratio over ring variables, when expanded
+    sequence: list = field(default_factory=list)   # [(name, sympy expr)], in order
+    in_sequence: Optional[sympy.Expr] = None
+    form: str = "expanded"              # 'expanded', 'series-parallel', 'sequence'
+    notes: list = field(default_factory=list)
+
+
+@dataclass
+class RequestResult:
+    request: object                     # model.Request
+    quantities: dict = field(default_factory=dict)
+    steps: list = field(default_factory=list)
+    extra: dict = field(default_factory=dict)
+    notes: list = field(default_factory=list)   # said with the result in every record (str)
+
+
+@dataclass
+class Options:
+    symbolic: Optional[list] = None     # keep only these symbols symbolic
+    max_terms: float = 2e6
+    expand_limit: float = 20000         # expand determinants up to this many terms
+    mc_samples: int = 100_000           # Monte Carlo of `find tolerance`
+    mc_seed: int = 1
+    mc_distribution: str = "uniform"    # or 'normal' (tolerance = 3 sigma)
+
+
+@dataclass
+class Context:
+    """What handlers share: the circuit, options and cached work (``cache``): the stamped
+    system and its solver are made once per context, so every request on the circuit
+    shares their determinants."""
+    circuit: Circuit
+    options: Options
+    cache: dict = field(default_factory=dict)
+
+    @property
+    def nominal(self) -> dict:
+        return self.circuit.nominal_values()
+
+    def numeric_subs(self) -> dict:
+        c = self.circuit
+        if self.options.symbolic is not None:
+            keep = {key_of(n) for n in self.options.symbolic}
+            keys = {k for k, v in c.symbols.items() if v.nominal is not None and k not in keep}
+        else:
+            keys = set(c.numeric)
+        nom = self.nominal
+        return {sympy.Symbol(k): nom[sympy.Symbol(k)] for k in keys}
+
+    def port(self, name):
+        plus, minus, _ = self.circuit.ports[name]
+        return plus, minus
+
+    def system(self) -> System:
+        """The circuit's stamped system (numeric symbols substituted), made once."""
+        if "system" not in self.cache:
+            self.cache["system"] = System(self.circuit, self.numeric_subs())
+        return self.cache["system"]
+
+    def solver(self, where=None) -> Solver:
+        """The system's solver, made once; ``where`` (a request's location) is where its
+        errors point. Every view shares one determinant cache."""
+        if "solver" not in self.cache:
+            self.cache["solver"] = Solver(self.system(), self.options.max_terms)
+        return self.cache["solver"].at(where)
