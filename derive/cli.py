@@ -361,13 +361,43 @@ def _worker(args, stdin_data, r: int, w: int, parent: int, tmp: str) -> None:
         os._exit(status)
 
 
-def _supervised(args, timeout: float) -> _Result:
+_warm = False
+
+
+def _warm_up() -> None:
+    """Import the modules every run needs and build the grammar's parser in this process,
+    so that forked workers inherit them instead of importing them again. Done (once) for
+    in-process callers of :func:`main` with many runs (the test suite); a one-shot command
+    leaves all of it to its worker, inside the deadline."""
+    global _warm
+    if _warm:
+        return
+    import importlib
+    for mod in ("parser", "circuit", "analysis", "exporters", "export_json",
+                "export_markdown"):
+        try:
+            importlib.import_module(f"{__package__}.{mod}")
+        except ImportError:          # reported by the worker, with an install hint
+            return
+    from .grammar_loader import get_parser
+    get_parser()
+    _warm = True
+
+
+def _supervised(args, timeout: float, warm: bool = False) -> _Result:
     """Run the work in a forked worker; kill its process group when ``timeout`` passes."""
     deadline = time.monotonic() + timeout
     try:
         stdin_data = _read_stdin_until(deadline) if args.sheet == "-" else None
     except _Timeout:
         return _Result(2, [], _timeout_message(timeout))
+    if warm:
+        try:
+            _warm_up()
+        except Exception:
+            pass                     # the worker meets (and reports) the same problem
+        if time.monotonic() >= deadline:
+            return _Result(2, [], _timeout_message(timeout))
     tmp = tempfile.mkdtemp(prefix="derive-work-")
     r, w = os.pipe()
     for stream in (sys.stdout, sys.stderr):
@@ -426,6 +456,7 @@ def _supervised(args, timeout: float) -> _Result:
 
 
 def main(argv: Optional[list] = None) -> int:
+    in_process = argv is not None        # called from Python, perhaps many times
     if argv is None:
         argv = sys.argv[1:]
     try:
@@ -434,7 +465,7 @@ def main(argv: Optional[list] = None) -> int:
         return e.code if isinstance(e.code, int) else (0 if e.code is None else 2)
     try:
         if args.timeout is not None and hasattr(os, "fork"):
-            res = _supervised(args, args.timeout)
+            res = _supervised(args, args.timeout, warm=in_process)
         else:
             res = _execute(args)
         return _deliver(res)
