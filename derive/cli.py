@@ -112,6 +112,9 @@ def _read(path: str, stdin_data: Optional[bytes] = None) -> tuple[str, str]:
         name = "<stdin>"
     else:
         name = path
+        if os.path.isdir(path):
+            raise SheetError("cannot read the sheet: it is a folder, not a file", 0, 0,
+                             filename=path)
         try:
             size = os.path.getsize(path)
         except OSError as e:
@@ -119,8 +122,11 @@ def _read(path: str, stdin_data: Optional[bytes] = None) -> tuple[str, str]:
         if size > MAX_SHEET_BYTES:
             raise SheetError(f"the sheet is {size} bytes; sheets over {MAX_SHEET_BYTES} bytes "
                              "are refused", 0, 0, filename=path)
-        with open(path, "rb") as f:
-            data = f.read(MAX_SHEET_BYTES + 1)
+        try:
+            with open(path, "rb") as f:
+                data = f.read(MAX_SHEET_BYTES + 1)
+        except OSError as e:
+            raise SheetError(f"cannot read the sheet: {e.strerror}", 0, 0, filename=path)
     if len(data) > MAX_SHEET_BYTES:
         raise SheetError(f"the sheet is over {MAX_SHEET_BYTES} bytes and is refused", 0, 0,
                          filename=name)
@@ -146,8 +152,15 @@ def _format_of(args) -> str:
 def _run(args, stdin_data: Optional[bytes] = None) -> int:
     """The work of one command; outputs go through :mod:`derive.export.files`."""
     from derive import derive_text
-    from derive.export.files import figures_captured, write_atomic, write_stdout
+    from derive.export.files import (OutputError, check_output, figures_captured,
+                                     write_atomic, write_stdout)
     text, name = _read(args.sheet, stdin_data)
+    output = getattr(args, "output", None)
+    if output:
+        try:
+            check_output(output, _protected(args))
+        except OutputError as e:
+            raise DeriveError(f"cannot write {e.filename}: {e.strerror}") from None
     symbolic = [s.strip() for s in args.symbolic.split(",") if s.strip()] \
         if args.symbolic is not None else None
     if args.samples < 1:
@@ -186,6 +199,11 @@ def _run(args, stdin_data: Optional[bytes] = None) -> int:
     return 2
 
 
+def _protected(args) -> list:
+    """Files no output may replace: the sheet."""
+    return [args.sheet] if args.sheet != "-" and os.path.isfile(args.sheet) else []
+
+
 def run(argv: Optional[list] = None) -> int:
     """Parse ``argv`` and do the work, writing outputs directly; errors propagate."""
     return _run(_parser().parse_args(argv))
@@ -199,6 +217,7 @@ class _Result:
     stdout: list = field(default_factory=list)
     stderr: str = ""
     files: dict = field(default_factory=dict)
+    on_error: set = field(default_factory=set)    # files written also by a failed run
 
 
 def _missing_package(exc: BaseException) -> Optional[str]:
@@ -254,14 +273,16 @@ def _execute(args, stdin_data: Optional[bytes] = None, in_worker: bool = False) 
             else:
                 code, err = 3, (f"derive: internal error: {type(e).__name__}: {e} (please "
                                 "report it; set DERIVE_DEBUG=1 for details)\n")
-    return _Result(code, cap.stdout, err, cap.files)
+    return _Result(code, cap.stdout, err, cap.files, cap.on_error)
 
 
-def _deliver(res: _Result) -> int:
-    """Write the files and standard output of a finished piece of work; its exit status."""
+def _deliver(res: _Result, protect=()) -> int:
+    """Write the files and standard output of a finished piece of work; its exit status.
+    A failed run (status 2 or 3) writes only its ``on_error`` files; no file may replace
+    one of ``protect`` (the sheet)."""
     from derive.export.files import commit
     try:
-        commit(res)
+        commit(res, failed=res.code >= 2, protect=protect)
     except OSError as e:
         sys.stderr.write(res.stderr + f"derive: error: cannot write {e.filename}: "
                                       f"{e.strerror or e}\n")
@@ -438,7 +459,7 @@ def main(argv: Optional[list] = None) -> int:
             res = _supervised(args, args.timeout)
         else:
             res = _execute(args)
-        return _deliver(res)
+        return _deliver(res, _protected(args))
     except KeyboardInterrupt:
         return 130
     except _Stopped as e:

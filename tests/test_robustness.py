@@ -1,0 +1,206 @@
+"""Robustness II: output paths, option values, generated code, valid sheets that used to
+crash, and the error display. Each test names the defect it guards against."""
+from __future__ import annotations
+
+import os
+import stat
+import subprocess
+import sys
+
+import pytest
+
+from derive.cli import main
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+CORPUS = os.path.join(ROOT, "tests", "corpus")
+
+# A voltage divider: 10 V, R1 = 1 kΩ over R2 = 2 kΩ (vth = 10·2/3 V, common practice).
+DIVIDER = ("title \"Divider\"\nvoltage source V1 between in and gnd = 10 V\n"
+           "resistor R1 between in and out = 1 kohm ±1%\n"
+           "resistor R2 between out and gnd = 2 kohm ±1%\n"
+           "port out between out and gnd\nfind vth at out\nfind rth at out\n")
+TOLERANCE = DIVIDER.replace("find rth at out\n", "find tolerance of vth at out\n")
+
+
+@pytest.fixture
+def sheet(tmp_path):
+    p = tmp_path / "s.eqv"
+    p.write_text(DIVIDER, encoding="utf-8")
+    return p
+
+
+def _err(capsys):
+    return capsys.readouterr().err
+
+
+# ------------------------------------------------------------------ 1. output paths
+@pytest.mark.parametrize("timeout", [None, "60"])
+def test_output_onto_dev_null_keeps_the_device(sheet, capsys, timeout):
+    before = os.stat("/dev/null")
+    extra = ["--timeout", timeout] if timeout else []
+    assert main(["record", str(sheet), "-o", "/dev/null", *extra]) == 0
+    after = os.stat("/dev/null")
+    assert stat.S_ISCHR(after.st_mode) and after.st_rdev == before.st_rdev
+
+
+def test_output_onto_a_device_node_writes_into_it(sheet, tmp_path, capsys):
+    dev = tmp_path / "nulldev"
+    try:
+        os.mknod(dev, 0o666 | stat.S_IFCHR, os.makedev(1, 3))   # the null device (Linux)
+    except (PermissionError, AttributeError, OSError) as e:
+        pytest.skip(f"cannot make a device node here: {e}")
+    assert main(["record", str(sheet), "-o", str(dev)]) == 0
+    assert stat.S_ISCHR(os.stat(dev).st_mode)          # before: replaced by a regular file
+    assert sorted(os.listdir(tmp_path)) == ["nulldev", "s.eqv"]
+
+
+def test_output_onto_dev_full_fails_and_keeps_the_device(sheet, capsys):
+    if not os.path.exists("/dev/full"):
+        pytest.skip("no /dev/full on this system")
+    before = os.stat("/dev/full")
+    assert main(["record", str(sheet), "-o", "/dev/full"]) == 2
+    err = _err(capsys)
+    assert "cannot write /dev/full" in err and "internal" not in err
+    assert stat.S_ISCHR(os.stat("/dev/full").st_mode)
+    assert os.stat("/dev/full").st_rdev == before.st_rdev
+
+
+def test_output_onto_a_fifo_writes_through_it(sheet, tmp_path, capsys):
+    fifo = tmp_path / "pipe"
+    os.mkfifo(fifo)
+    reader = subprocess.Popen([sys.executable, "-c",
+                               "import sys; sys.stdout.write(str(len(open(sys.argv[1], 'rb')"
+                               ".read())))", str(fifo)], stdout=subprocess.PIPE)
+    assert main(["record", str(sheet), "-o", str(fifo), "--format", "json"]) == 0
+    out, _ = reader.communicate(timeout=60)
+    assert int(out) > 100
+    assert stat.S_ISFIFO(os.stat(fifo).st_mode)
+
+
+def test_symlink_to_a_regular_file_is_followed(sheet, tmp_path, capsys):
+    real = tmp_path / "real.json"
+    real.write_text("old", encoding="utf-8")
+    os.chmod(real, 0o640)
+    link = tmp_path / "link.json"
+    link.symlink_to(real.name)
+    assert main(["record", str(sheet), "-o", str(link)]) == 0
+    assert link.is_symlink()
+    assert '"vth"' in real.read_text(encoding="utf-8")
+    assert stat.S_IMODE(os.stat(real).st_mode) == 0o640     # the file's mode is kept
+
+
+def test_missing_folder_is_a_clear_error(sheet, tmp_path, capsys):
+    assert main(["record", str(sheet), "-o", str(tmp_path / "nope" / "r.md")]) == 2
+    err = _err(capsys)
+    assert "does not exist" in err and "internal" not in err and ".derive-" not in err
+
+
+def test_folder_as_output_is_a_clear_error(sheet, tmp_path, capsys):
+    (tmp_path / "out").mkdir()
+    assert main(["record", str(sheet), "-o", str(tmp_path / "out")]) == 2
+    assert "is a folder" in _err(capsys)
+
+
+def test_folder_as_sheet_is_a_clear_error(tmp_path, capsys):
+    assert main(["record", str(tmp_path)]) == 2        # before: internal error, exit 3
+    err = _err(capsys)
+    assert "folder" in err and "internal" not in err
+
+
+def test_unwritable_folder_is_a_clear_error(sheet, tmp_path, capsys):
+    if os.geteuid() == 0:
+        # root ignores permission bits; /proc refuses new files to everyone
+        target = "/proc/derive-robustness-test.md"
+        if not os.path.isdir("/proc"):
+            pytest.skip("running as root and no /proc to test an unwritable folder")
+    else:
+        ro = tmp_path / "ro"
+        ro.mkdir()
+        os.chmod(ro, 0o500)
+        target = str(ro / "r.md")
+    try:
+        assert main(["record", str(sheet), "-o", target]) == 2
+        err = _err(capsys)
+        assert f"cannot write {target}" in err and "internal" not in err
+    finally:
+        if os.geteuid() != 0:
+            os.chmod(tmp_path / "ro", 0o700)
+
+
+@pytest.mark.parametrize("how", ["same", "symlink", "hardlink"])
+def test_output_equal_to_the_sheet_is_refused(sheet, tmp_path, capsys, how):
+    target = sheet
+    if how == "symlink":
+        target = tmp_path / "alias.md"
+        target.symlink_to(sheet.name)
+    elif how == "hardlink":
+        target = tmp_path / "hard.md"
+        os.link(sheet, target)
+    assert main(["record", str(sheet), "-o", str(target)]) == 2
+    assert "never overwrites" in _err(capsys)
+    assert sheet.read_text(encoding="utf-8") == DIVIDER
+
+
+def test_code_files_are_written_all_or_none(sheet, tmp_path, capsys):
+    (tmp_path / "f.h").mkdir()                   # the header cannot be written
+    assert main(["code", str(sheet), "--lang", "c", "-o", str(tmp_path / "f.c"),
+                 "--with-tests"]) == 2
+    assert "f.h" in _err(capsys)
+    assert sorted(os.listdir(tmp_path)) == ["f.h", "s.eqv"]      # before: f.c was written
+
+
+def test_code_output_named_like_the_sheet_is_refused(tmp_path, capsys):
+    sheet = tmp_path / "f.h"                     # the header of -o f.c would replace it
+    sheet.write_text(DIVIDER, encoding="utf-8")
+    assert main(["code", str(sheet), "--lang", "c", "-o", str(tmp_path / "f.c")]) == 2
+    assert "never overwrites" in _err(capsys)
+    assert sheet.read_text(encoding="utf-8") == DIVIDER
+    assert sorted(os.listdir(tmp_path)) == ["f.h"]
+
+
+def test_figures_of_a_failed_run_are_removed(tmp_path, capsys):
+    sheet = tmp_path / "t.eqv"
+    sheet.write_text(TOLERANCE, encoding="utf-8")
+    tpl = tmp_path / "tpl"
+    tpl.mkdir()
+    (tpl / "record.md.j2").write_text("{% if %}\n", encoding="utf-8")   # a broken template
+    out = tmp_path / "out"
+    out.mkdir()
+    assert main(["record", str(sheet), "-o", str(out / "r.md"), "--template", str(tpl),
+                 "--samples", "200"]) == 2
+    assert "template" in _err(capsys)
+    assert os.listdir(out) == []               # before: the figure PNG stayed behind
+
+
+def test_failed_pdf_never_overwrites_an_existing_tex(sheet, tmp_path, capsys, monkeypatch):
+    from derive.export import latex
+    monkeypatch.setattr(latex, "_tex_tool", lambda: None)      # TeX "missing"
+    tex = tmp_path / "r.tex"
+    tex.write_text("my own LaTeX", encoding="utf-8")
+    assert main(["record", str(sheet), "-o", str(tmp_path / "r.pdf")]) == 2
+    assert "not written" in _err(capsys)
+    assert tex.read_text(encoding="utf-8") == "my own LaTeX"
+    assert not (tmp_path / "r.pdf").exists()
+
+
+def test_failed_pdf_writes_the_tex_when_there_is_none(sheet, tmp_path, capsys, monkeypatch):
+    from derive.export import latex
+    monkeypatch.setattr(latex, "_tex_tool", lambda: None)
+    assert main(["record", str(sheet), "-o", str(tmp_path / "r.pdf")]) == 2
+    assert "written to" in _err(capsys)
+    assert "\\documentclass" in (tmp_path / "r.tex").read_text(encoding="utf-8")
+
+
+def test_image_links_are_escaped(tmp_path, capsys):
+    sheet = tmp_path / "t.eqv"
+    sheet.write_text(TOLERANCE, encoding="utf-8")
+    out = tmp_path / "my (rec) [1].md"
+    assert main(["record", str(sheet), "-o", str(out), "--samples", "200"]) == 0
+    md = out.read_text(encoding="utf-8")
+    links = [line[line.rindex("](") + 2:-1] for line in md.splitlines()
+             if line.startswith("![")]
+    assert links, md
+    from urllib.parse import unquote
+    for link in links:
+        assert not set(link) & set(" ()[]<>")
+        assert (tmp_path / unquote(link)).is_file()
