@@ -54,6 +54,50 @@ def _seconds(text: str) -> float:
     return value
 
 
+MAX_SAMPLES = 10**9
+
+
+def _whole(text: str, what: str, low: int, high: Optional[int] = None) -> int:
+    """A whole number from ``text`` (digits, or exponent notation such as ``1e6`` that
+    names a whole number), ``low`` or more (and at most ``high``)."""
+    t = text.strip().replace("_", "")
+    value = None
+    try:
+        value = int(t, 10)
+    except ValueError:
+        import re
+        m = re.fullmatch(r"([+-]?\d+)[eE]\+?(\d{1,3})", t)
+        if m:
+            value = int(m.group(1)) * 10 ** int(m.group(2))
+    if value is None:
+        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}")
+    if value < low or (high is not None and value > high):
+        bound = f"from {low} to {high}" if high is not None else f"at least {low}"
+        raise argparse.ArgumentTypeError(f"{what} must be {bound}, not {text!r}")
+    return value
+
+
+def _samples(text: str) -> int:
+    """``--samples``: a spread needs at least 2 samples."""
+    return _whole(text, "the number of samples", 2, MAX_SAMPLES)
+
+
+def _seed(text: str) -> int:
+    """``--seed``: a non-negative whole number (numpy's seeds)."""
+    return _whole(text, "the seed", 0)
+
+
+def _terms(text: str) -> float:
+    """``--max-terms``: a positive number (``inf`` lifts the limit)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if math.isnan(value) or value <= 0:
+        raise argparse.ArgumentTypeError(f"must be a positive number, not {text!r}")
+    return value
+
+
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="derive", description="Exact derivations for linear "
                                 "circuits, written up as design-calculation records.")
@@ -64,14 +108,14 @@ def _parser() -> argparse.ArgumentParser:
         sp.add_argument("--symbolic", metavar="NAMES", default=None,
                         help="keep only these symbols symbolic (comma separated); the others "
                              "take their nominal values")
-        sp.add_argument("--max-terms", type=float, default=2e6, metavar="N",
+        sp.add_argument("--max-terms", type=_terms, default=2e6, metavar="N",
                         help="refuse to expand a determinant estimated above N terms")
         sp.add_argument("--timeout", type=_seconds, default=None, metavar="SECONDS",
                         help="give up after this many seconds (every phase, including TeX "
                              "and compiled algebra); nothing is written then")
-        sp.add_argument("--samples", type=int, default=100_000, metavar="N",
+        sp.add_argument("--samples", type=_samples, default=100_000, metavar="N",
                         help="Monte Carlo samples of tolerance analyses (default 100000)")
-        sp.add_argument("--seed", type=int, default=1, help="Monte Carlo seed (default 1)")
+        sp.add_argument("--seed", type=_seed, default=1, help="Monte Carlo seed (default 1)")
         sp.add_argument("--distribution", choices=("uniform", "normal"), default="uniform",
                         help="parts spread uniformly within tolerance, or normally with the "
                              "tolerance as 3 sigma")
@@ -163,8 +207,6 @@ def _run(args, stdin_data: Optional[bytes] = None) -> int:
             raise DeriveError(f"cannot write {e.filename}: {e.strerror}") from None
     symbolic = [s.strip() for s in args.symbolic.split(",") if s.strip()] \
         if args.symbolic is not None else None
-    if args.samples < 1:
-        raise SheetError("--samples must be at least 1", 0, 0, filename=name)
     rec = derive_text(text, name, symbolic=symbolic, max_terms=args.max_terms,
                       mc_samples=args.samples, mc_seed=args.seed,
                       mc_distribution=args.distribution)

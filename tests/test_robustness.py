@@ -204,3 +204,65 @@ def test_image_links_are_escaped(tmp_path, capsys):
     for link in links:
         assert not set(link) & set(" ()[]<>")
         assert (tmp_path / unquote(link)).is_file()
+
+
+# ------------------------------------------------------------------ 2. option values
+@pytest.mark.parametrize("option", [["--seed", "-1"], ["--seed", "x"], ["--samples", "1"],
+                                    ["--samples", "0"], ["--samples", "-5"],
+                                    ["--samples", "2.5"], ["--samples", "1e12"],
+                                    ["--max-terms", "-1"], ["--max-terms", "nan"],
+                                    ["--max-terms", "0"], ["--timeout", "0"],
+                                    ["--timeout", "nan"], ["--timeout", "inf"],
+                                    ["--timeout", "-3"]])
+def test_bad_option_values_are_usage_errors(tmp_path, capsys, option):
+    sheet = tmp_path / "t.eqv"
+    sheet.write_text(TOLERANCE, encoding="utf-8")
+    assert main(["record", str(sheet), *option]) == 2   # before: internal error or a
+    err = _err(capsys)                                    # false "denominator vanishes"
+    assert f"argument {option[0]}" in err and "internal" not in err
+
+
+
+
+def test_chunked_monte_carlo_matches_the_whole_sample(monkeypatch):
+    """Chunked sampling (bounded memory) gives numpy's mean, standard deviation and
+    quantiles of the whole sample (numpy on the concatenated draws as the reference)."""
+    import numpy as np
+    from derive.analyses import tolerance
+    chunks = []
+
+    def draw(form, nominal, box, rng, m, distribution):
+        v = rng.normal(5.0, 2.0, m)
+        v[rng.random(m) < 0.01] = np.inf          # a few non-finite values
+        chunks.append(v.copy())
+        return v
+    monkeypatch.setattr(tolerance, "_draw", draw)
+    monkeypatch.setattr(tolerance, "CHUNK", 1000)
+    _v, out = tolerance.monte_carlo(None, {}, {}, samples=5500, seed=3)
+    whole = np.concatenate(chunks)
+    assert len(chunks) == 6 and whole.size == 5500
+    fin = whole[np.isfinite(whole)]
+    lo, hi = np.quantile(fin, tolerance.QUANTILES)
+    assert out["low"] == pytest.approx(lo, rel=1e-12)
+    assert out["high"] == pytest.approx(hi, rel=1e-12)
+    assert out["mean"] == pytest.approx(fin.mean(), rel=1e-12)
+    assert out["std"] == pytest.approx(fin.std(ddof=1), rel=1e-10)
+    assert out["non_finite_samples"] == whole.size - fin.size
+
+
+def test_library_samples_below_two_is_a_located_error():
+    from derive import derive_text
+    from derive.errors import SheetError
+    with pytest.raises(SheetError) as e:
+        derive_text(TOLERANCE, "t.eqv", mc_samples=1)
+    assert "at least 2 samples" in str(e.value) and e.value.line == 7
+
+
+def test_samples_in_exponent_notation_are_accepted(tmp_path, capsys):
+    import json
+    sheet = tmp_path / "t.eqv"
+    sheet.write_text(TOLERANCE, encoding="utf-8")
+    assert main(["record", str(sheet), "--samples", "2e3", "--format", "json"]) == 0
+    text = capsys.readouterr().out
+    assert '"samples": 2000' in text.replace("\n", " ") or \
+        '"samples": 2000' in json.dumps(json.loads(text))
