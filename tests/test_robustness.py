@@ -266,3 +266,96 @@ def test_samples_in_exponent_notation_are_accepted(tmp_path, capsys):
     text = capsys.readouterr().out
     assert '"samples": 2000' in text.replace("\n", " ") or \
         '"samples": 2000' in json.dumps(json.loads(text))
+
+
+# ------------------------------------------------------------------ 3. generated code
+GCC = ["gcc", "-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic"]
+CODE_SHEETS = sorted(
+    [os.path.join(ROOT, "worked", f) for f in os.listdir(os.path.join(ROOT, "worked"))
+     if f.endswith(".eqv")] +
+    [os.path.join(CORPUS, f) for f in os.listdir(CORPUS) if f.startswith("code_")])
+
+
+@pytest.mark.skipif(__import__("shutil").which("gcc") is None, reason="gcc not installed")
+@pytest.mark.parametrize("path", CODE_SHEETS, ids=os.path.basename)
+def test_generated_c_builds_strictly_and_passes(path, tmp_path, capsys):
+    """Every generated C file and its test program compile with strict C99 flags and the
+    test passes on its exact vectors (before: M_SQRT2, and parameters named NULL, EOF,
+    FP_ZERO, PREFIX_EDIV ... broke the build)."""
+    stem = os.path.splitext(os.path.basename(path))[0]
+    out = tmp_path / f"{stem}.c"
+    assert main(["code", path, "--lang", "c", "-o", str(out), "--with-tests"]) == 0
+    src = out.read_text(encoding="utf-8") + (tmp_path / f"{stem}.h").read_text("utf-8")
+    assert "M_SQRT" not in src and "M_PI" not in src
+    exe = tmp_path / "t"
+    subprocess.run(GCC + ["-o", str(exe), str(tmp_path / f"{stem}_test.c"), str(out), "-lm"],
+                   check=True, capture_output=True)
+    run = subprocess.run([str(exe)], capture_output=True, text=True)
+    assert run.returncode == 0, run.stdout
+    assert " 0 failures" in run.stdout and not run.stdout.startswith("0 vectors")
+
+
+@pytest.mark.parametrize("path", [p for p in CODE_SHEETS if "corpus" in p], ids=os.path.basename)
+def test_generated_python_passes(path, tmp_path, capsys):
+    stem = os.path.splitext(os.path.basename(path))[0]
+    out = tmp_path / f"{stem}.py"
+    assert main(["code", path, "--lang", "python", "-o", str(out), "--with-tests"]) == 0
+    run = subprocess.run([sys.executable, str(tmp_path / f"{stem}_test.py")],
+                         capture_output=True, text=True)
+    assert run.returncode == 0, run.stdout + run.stderr
+
+
+def test_c_constants_are_strict_c99():
+    import sympy
+    from derive.export.code import _CPrinter
+    x = sympy.Symbol("x")
+    text = _CPrinter().doprint(sympy.sqrt(2) * x + sympy.pi / sympy.sqrt(3))
+    assert "M_" not in text and "sqrt(2.0)" in text and "const double" not in text
+
+
+def test_reserved_parameter_names_are_renamed():
+    from derive.export.code_forms import ident
+    for name in ("FP_ZERO", "NULL", "EOF", "HUGE_VALF", "math_errhandling", "int", "for",
+                 "EDOM", "M_PI", "FP_NAN"):
+        new = ident(name)
+        assert new != name and not new.startswith("_")
+    assert ident("out_error", prefix="out") != "out_error"
+    assert ident("OUT_EDIV", prefix="out") != "OUT_EDIV"
+    assert ident("R1", prefix="out") == "R1"
+
+
+def _no_vector_table(monkeypatch, module):
+    """A record whose one formula has no test vector (every point undefined)."""
+    from derive import derive_text
+    rec = derive_text(DIVIDER, "s.eqv")
+    monkeypatch.setattr(module, "evaluate", lambda f, inputs: None)
+    return rec
+
+
+@pytest.mark.skipif(__import__("shutil").which("gcc") is None, reason="gcc not installed")
+def test_c_test_program_without_vectors_fails(tmp_path, monkeypatch):
+    from derive.export import code, code_vectors
+    rec = _no_vector_table(monkeypatch, code_vectors)
+    header, src = code.render_c(rec, "f", "f.h")
+    (tmp_path / "f.h").write_text(header, encoding="utf-8")
+    (tmp_path / "f.c").write_text(src, encoding="utf-8")
+    files = code_vectors.c_tests(rec, str(tmp_path / "f"), "f.h", "f")
+    for p, text in files.items():
+        open(p, "w", encoding="utf-8").write(text)
+    exe = tmp_path / "t"
+    subprocess.run(GCC + ["-o", str(exe), str(tmp_path / "f_test.c"), str(tmp_path / "f.c"),
+                          "-lm"], check=True, capture_output=True)
+    run = subprocess.run([str(exe)], capture_output=True, text=True)
+    assert run.returncode == 1 and "nothing was checked" in run.stdout   # before: exit 0
+
+
+def test_python_test_program_without_vectors_fails(tmp_path, monkeypatch):
+    from derive.export import code, code_vectors
+    rec = _no_vector_table(monkeypatch, code_vectors)
+    (tmp_path / "f.py").write_text(code.render_python(rec), encoding="utf-8")
+    files = code_vectors.py_tests(rec, str(tmp_path / "f"), "f.py")
+    for p, text in files.items():
+        open(p, "w", encoding="utf-8").write(text)
+    run = subprocess.run([sys.executable, str(tmp_path / "f_test.py")], capture_output=True,
+                         text=True)
+    assert run.returncode == 1 and "nothing was checked" in run.stdout
