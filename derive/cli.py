@@ -54,6 +54,50 @@ def _seconds(text: str) -> float:
     return value
 
 
+MAX_SAMPLES = 10**9
+
+
+def _whole(text: str, what: str, low: int, high: Optional[int] = None) -> int:
+    """A whole number from ``text`` (digits, or exponent notation such as ``1e6`` that
+    names a whole number), ``low`` or more (and at most ``high``)."""
+    t = text.strip().replace("_", "")
+    value = None
+    try:
+        value = int(t, 10)
+    except ValueError:
+        import re
+        m = re.fullmatch(r"([+-]?\d+)[eE]\+?(\d{1,3})", t)
+        if m:
+            value = int(m.group(1)) * 10 ** int(m.group(2))
+    if value is None:
+        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}")
+    if value < low or (high is not None and value > high):
+        bound = f"from {low} to {high}" if high is not None else f"at least {low}"
+        raise argparse.ArgumentTypeError(f"{what} must be {bound}, not {text!r}")
+    return value
+
+
+def _samples(text: str) -> int:
+    """``--samples``: a spread needs at least 2 samples."""
+    return _whole(text, "the number of samples", 2, MAX_SAMPLES)
+
+
+def _seed(text: str) -> int:
+    """``--seed``: a non-negative whole number (numpy's seeds)."""
+    return _whole(text, "the seed", 0)
+
+
+def _terms(text: str) -> float:
+    """``--max-terms``: a positive number (``inf`` lifts the limit)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if math.isnan(value) or value <= 0:
+        raise argparse.ArgumentTypeError(f"must be a positive number, not {text!r}")
+    return value
+
+
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="derive", description="Exact derivations for linear "
                                 "circuits, written up as design-calculation records.")
@@ -64,14 +108,14 @@ def _parser() -> argparse.ArgumentParser:
         sp.add_argument("--symbolic", metavar="NAMES", default=None,
                         help="keep only these symbols symbolic (comma separated); the others "
                              "take their nominal values")
-        sp.add_argument("--max-terms", type=float, default=2e6, metavar="N",
+        sp.add_argument("--max-terms", type=_terms, default=2e6, metavar="N",
                         help="refuse to expand a determinant estimated above N terms")
         sp.add_argument("--timeout", type=_seconds, default=None, metavar="SECONDS",
                         help="give up after this many seconds (every phase, including TeX "
                              "and compiled algebra); nothing is written then")
-        sp.add_argument("--samples", type=int, default=100_000, metavar="N",
+        sp.add_argument("--samples", type=_samples, default=100_000, metavar="N",
                         help="Monte Carlo samples of tolerance analyses (default 100000)")
-        sp.add_argument("--seed", type=int, default=1, help="Monte Carlo seed (default 1)")
+        sp.add_argument("--seed", type=_seed, default=1, help="Monte Carlo seed (default 1)")
         sp.add_argument("--distribution", choices=("uniform", "normal"), default="uniform",
                         help="parts spread uniformly within tolerance, or normally with the "
                              "tolerance as 3 sigma")
@@ -112,6 +156,9 @@ def _read(path: str, stdin_data: Optional[bytes] = None) -> tuple[str, str]:
         name = "<stdin>"
     else:
         name = path
+        if os.path.isdir(path):
+            raise SheetError("cannot read the sheet: it is a folder, not a file", 0, 0,
+                             filename=path)
         try:
             size = os.path.getsize(path)
         except OSError as e:
@@ -119,8 +166,11 @@ def _read(path: str, stdin_data: Optional[bytes] = None) -> tuple[str, str]:
         if size > MAX_SHEET_BYTES:
             raise SheetError(f"the sheet is {size} bytes; sheets over {MAX_SHEET_BYTES} bytes "
                              "are refused", 0, 0, filename=path)
-        with open(path, "rb") as f:
-            data = f.read(MAX_SHEET_BYTES + 1)
+        try:
+            with open(path, "rb") as f:
+                data = f.read(MAX_SHEET_BYTES + 1)
+        except OSError as e:
+            raise SheetError(f"cannot read the sheet: {e.strerror}", 0, 0, filename=path)
     if len(data) > MAX_SHEET_BYTES:
         raise SheetError(f"the sheet is over {MAX_SHEET_BYTES} bytes and is refused", 0, 0,
                          filename=name)
@@ -146,12 +196,17 @@ def _format_of(args) -> str:
 def _run(args, stdin_data: Optional[bytes] = None) -> int:
     """The work of one command; outputs go through :mod:`derive.export.files`."""
     from derive import derive_text
-    from derive.export.files import figures_captured, write_atomic, write_stdout
+    from derive.export.files import (OutputError, check_output, figures_captured,
+                                     write_atomic, write_stdout)
     text, name = _read(args.sheet, stdin_data)
+    output = getattr(args, "output", None)
+    if output:
+        try:
+            check_output(output, _protected(args))
+        except OutputError as e:
+            raise DeriveError(f"cannot write {e.filename}: {e.strerror}") from None
     symbolic = [s.strip() for s in args.symbolic.split(",") if s.strip()] \
         if args.symbolic is not None else None
-    if args.samples < 1:
-        raise SheetError("--samples must be at least 1", 0, 0, filename=name)
     rec = derive_text(text, name, symbolic=symbolic, max_terms=args.max_terms,
                       mc_samples=args.samples, mc_seed=args.seed,
                       mc_distribution=args.distribution)
@@ -185,6 +240,11 @@ def _run(args, stdin_data: Optional[bytes] = None) -> int:
     return 2
 
 
+def _protected(args) -> list:
+    """Files no output may replace: the sheet."""
+    return [args.sheet] if args.sheet != "-" and os.path.isfile(args.sheet) else []
+
+
 def run(argv: Optional[list] = None) -> int:
     """Parse ``argv`` and do the work, writing outputs directly; errors propagate."""
     return _run(_parser().parse_args(argv))
@@ -198,6 +258,7 @@ class _Result:
     stdout: list = field(default_factory=list)
     stderr: str = ""
     files: dict = field(default_factory=dict)
+    on_error: set = field(default_factory=set)    # files written also by a failed run
 
 
 def _missing_package(exc: BaseException) -> Optional[str]:
@@ -253,14 +314,16 @@ def _execute(args, stdin_data: Optional[bytes] = None, in_worker: bool = False) 
             else:
                 code, err = 3, (f"derive: internal error: {type(e).__name__}: {e} (please "
                                 "report it; set DERIVE_DEBUG=1 for details)\n")
-    return _Result(code, cap.stdout, err, cap.files)
+    return _Result(code, cap.stdout, err, cap.files, cap.on_error)
 
 
-def _deliver(res: _Result) -> int:
-    """Write the files and standard output of a finished piece of work; its exit status."""
+def _deliver(res: _Result, protect=()) -> int:
+    """Write the files and standard output of a finished piece of work; its exit status.
+    A failed run (status 2 or 3) writes only its ``on_error`` files; no file may replace
+    one of ``protect`` (the sheet)."""
     from derive.export.files import commit
     try:
-        commit(res)
+        commit(res, failed=res.code >= 2, protect=protect)
     except OSError as e:
         sys.stderr.write(res.stderr + f"derive: error: cannot write {e.filename}: "
                                       f"{e.strerror or e}\n")
@@ -468,7 +531,7 @@ def main(argv: Optional[list] = None) -> int:
             res = _supervised(args, args.timeout, warm=in_process)
         else:
             res = _execute(args)
-        return _deliver(res)
+        return _deliver(res, _protected(args))
     except KeyboardInterrupt:
         return 130
     except _Stopped as e:

@@ -427,10 +427,11 @@ def _affine(dform: Form, x) -> bool:
     return x not in dform.final.free_symbols or sympy.cancel(sympy.diff(dform.final, x)) == 0
 
 
-def monte_carlo(form: Form, nominal: dict, box: dict, samples=100_000, seed=1,
-                distribution="uniform"):
-    """(values array, dict for JSON) by seeded sampling of the box."""
-    rng = np.random.default_rng(seed)
+CHUNK = 1_000_000       # Monte Carlo samples drawn and evaluated at a time
+
+
+def _draw(form: Form, nominal: dict, box: dict, rng, samples: int, distribution: str):
+    """Values of Q at ``samples`` seeded draws of the box (non-finite ones included)."""
     env = {x: float(v) for x, v in nominal.items()}
     order = sorted(box, key=str)
     # one draw for all parts (row k belongs to order[k]), scaled in place
@@ -449,20 +450,85 @@ def monte_carlo(form: Form, nominal: dict, box: dict, samples=100_000, seed=1,
             row += c - h
         env[x] = row
     with np.errstate(all="ignore"):
-        v = np.broadcast_to(np.asarray(_vec(form)(env), dtype=float), (samples,))
-    finite = np.isfinite(v)
-    bad = int(samples - finite.sum())
-    if bad:
-        v = v[finite]
-    if v.size < 2:
-        raise ZeroDivisionError("no finite Monte Carlo sample")
-    lo, hi = np.quantile(v, QUANTILES)
+        return np.broadcast_to(np.asarray(_vec(form)(env), dtype=float), (samples,))
+
+
+def _order_stat_quantiles(low_tail, high_tail, n: int) -> tuple:
+    """``np.quantile`` (linear interpolation) of QUANTILES from the smallest values
+    (``low_tail``, sorted) and the largest (``high_tail``, sorted) of ``n`` values."""
+    out = []
+    for q in QUANTILES:
+        pos = (n - 1) * q
+        i = int(math.floor(pos))
+        frac = pos - i
+        j = min(i + 1, n - 1)
+
+        def at(k):
+            if k < len(low_tail):
+                return low_tail[k]
+            return high_tail[k - (n - len(high_tail))]
+        out.append(at(i) + (at(j) - at(i)) * frac if frac else at(i))
+    return tuple(out)
+
+
+def monte_carlo(form: Form, nominal: dict, box: dict, samples=100_000, seed=1,
+                distribution="uniform"):
+    """(values array, dict for JSON) by seeded sampling of the box. Up to :data:`CHUNK`
+    samples are drawn at once; more are drawn chunk by chunk, so memory stays bounded: the
+    mean and standard deviation are combined chunk by chunk, the quantiles come from the
+    extreme order statistics kept across chunks (the same values ``np.quantile`` gives on the
+    whole sample), and the returned values are the first chunk's (for the histogram)."""
+    samples = int(samples)
+    if samples < 2:
+        raise ValueError(f"Monte Carlo needs at least 2 samples, not {samples}")
+    rng = np.random.default_rng(seed)
+    if samples <= CHUNK:
+        v = _draw(form, nominal, box, rng, samples, distribution)
+        finite = np.isfinite(v)
+        bad = int(samples - finite.sum())
+        if bad:
+            v = v[finite]
+        if v.size < 2:
+            raise ZeroDivisionError("no finite Monte Carlo sample")
+        lo, hi = np.quantile(v, QUANTILES)
+        mean, std, first = float(v.mean()), float(v.std(ddof=1)), v
+    else:
+        # tails long enough for every quantile position of the finite sample
+        keep = int(math.ceil(samples * max(QUANTILES[0], 1 - QUANTILES[-1]))) + 2
+        low_tail = high_tail = np.empty(0)
+        count, mean, m2, bad, first, left = 0, 0.0, 0.0, 0, None, samples
+        while left:
+            m = min(CHUNK, left)
+            left -= m
+            v = _draw(form, nominal, box, rng, m, distribution)
+            finite = np.isfinite(v)
+            bad += int(m - finite.sum())
+            v = np.array(v[finite], dtype=float)
+            if first is None:
+                first = v
+            if v.size == 0:
+                continue
+            cm, cn = float(v.mean()), v.size       # Chan et al.'s pairwise combination
+            c2 = float(((v - cm) ** 2).sum())
+            delta, tot = cm - mean, count + cn
+            mean += delta * cn / tot
+            m2 += c2 + delta * delta * count * cn / tot
+            count = tot
+            low_tail = np.sort(np.concatenate([low_tail, np.partition(v, min(keep, v.size) - 1)
+                                               [:keep]]))[:keep]
+            high_tail = np.sort(np.concatenate([high_tail,
+                                                -np.partition(-v, min(keep, v.size) - 1)
+                                                [:keep]]))[-keep:]
+        if count < 2:
+            raise ZeroDivisionError("no finite Monte Carlo sample")
+        lo, hi = _order_stat_quantiles(low_tail, high_tail, count)
+        std = math.sqrt(m2 / (count - 1))
     out = {"samples": int(samples), "seed": int(seed), "distribution": distribution,
-           "mean": float(v.mean()), "std": float(v.std(ddof=1)),
+           "mean": float(mean), "std": float(std),
            "low": float(lo), "high": float(hi)}
     if bad:
         out["non_finite_samples"] = bad
-    return v, out
+    return first, out
 
 
 def spread_of(ctx: Context, a, req) -> tuple:
@@ -477,6 +543,12 @@ def spread_of(ctx: Context, a, req) -> tuple:
     opts = ctx.options
     n = getattr(opts, "mc_samples", 100_000)
     seed = getattr(opts, "mc_seed", 1)
+    if not isinstance(n, int) or n < 2:
+        raise SheetError(f"a Monte Carlo spread needs at least 2 samples (mc_samples={n!r})",
+                         req.loc.line, req.loc.col)
+    if not isinstance(seed, int) or seed < 0:
+        raise SheetError(f"the Monte Carlo seed must be a non-negative integer, not {seed!r}",
+                         req.loc.line, req.loc.col)
     dist = getattr(opts, "mc_distribution", "uniform")
     wc, rss, rows = linear(a, box)
     lo, hi, method, mono = extremes(a.form, {s.symbol: s.deriv for s in a.sens}, ctx.nominal, box,

@@ -10,226 +10,35 @@ outside both languages' keywords, and user text in comments cannot end the comme
 """
 from __future__ import annotations
 
-import keyword
 import os
-import re
-from dataclasses import dataclass, field
 from typing import Optional
 
 import sympy
 from sympy.printing.c import C99CodePrinter
 from sympy.printing.pycode import PythonCodePrinter
 
-from derive.circuit.build import S
-from derive.export.printing import to_text
+from derive.export.code_forms import (C_KEYWORDS, RESERVED, Formula, Lowering,  # noqa: F401
+                                      collect, comment, ident, num17)
 
-C_KEYWORDS = set("""auto break case char const continue default do double else enum extern
-float for goto if inline int long register restrict return short signed sizeof static struct
-switch typedef union unsigned void volatile while _Bool _Complex _Imaginary bool true false
-NAN INFINITY HUGE_VAL errno main math sqrt pow fabs isnan isfinite exp log printf size_t
-ValueError None True False""".split())
-RESERVED = C_KEYWORDS | set(keyword.kwlist) | set(getattr(keyword, "softkwlist", []))
-
-
-def ident(text: str, taken: set = frozenset()) -> str:
-    """A safe identifier from user-derived text, distinct from ``taken``.
-
-    >>> ident("div1.Rt"), ident("int"), ident("9lives"), ident("__x"), ident("a*/b")
-    ('div1_Rt', 'int_', 'v9lives', 'v_x', 'a_b')
-    """
-    s = re.sub(r"[^A-Za-z0-9_]+", "_", text).strip("_") if text.strip("_") else "v"
-    if not s:
-        s = "v"
-    if text.startswith("__") or text.startswith("_") and len(text) > 1 and text[1].isupper():
-        s = "v_" + s
-    if s[0].isdigit():
-        s = "v" + s
-    while s in RESERVED or s in taken:
-        s += "_"
-    return s
-
-
-def comment(text: str) -> str:
-    """User text made safe inside a C block comment or a Python line comment.
-
-    >>> comment("a */ b /* c ??/ d\\\\\\nx")
-    'a * / b / * c ? ?/ d/ x'
-    """
-    text = "".join(ch if ch.isprintable() else " " for ch in str(text))
-    text = text.replace("\\", "/")
-    while "*/" in text or "/*" in text or "??" in text:
-        text = text.replace("*/", "* /").replace("/*", "/ *").replace("??", "? ?")
-    return text
-
-
-@dataclass
-class Formula:
-    name: str
-    params: list                 # [(Symbol in expressions, unit text)]
-    defs: list                   # [(Symbol, expr)] successive locals (sequence form)
-    final: sympy.Expr
-    unit: Optional[str]
-    what: str
-    origin: str
-    forward: Optional[tuple] = None   # (closed form, solved symbol, measured symbol)
-    lines: list = field(default_factory=list)
-
-
-def _function_name(req, qname: str, extra: dict) -> str:
-    if req.statement == "solve":
-        meas = extra.get("measured", {}).get("symbol", req.quantity)
-        return f"{qname}_from_{meas}_at_{req.port}"
-    if req.quantity == "current":
-        return f"current_through_{req.element}"
-    if req.quantity == "gain":
-        return f"gain_from_{req.source}_to_{req.port}"
-    if req.port2:
-        return f"{qname}_from_{req.port}_to_{req.port2}"
-    return f"{qname}_at_{req.port}"
-
-
-def collect(record) -> tuple:
-    """(formulas, skipped notes) from a derived record."""
-    c = record.circuit
-    order = {k: i for i, k in enumerate(c.symbols)}
-    sheet = os.path.basename(c.sheet.filename or "<sheet>")
-    formulas, skipped, names = [], [], set()
-    for r in record.results:
-        req = r.request
-        if req.statement not in ("find", "solve") or req.analysis:
-            continue
-        for qname, q in r.quantities.items():
-            origin = f"sheet {sheet}, line {req.loc.line}: {req.text}"
-            if q.expr is not None and len(str(q.expr)) <= 4000 or not q.sequence:
-                defs, final = [], q.expr
-            else:
-                defs, final = list(q.sequence), q.in_sequence
-            if final is None:
-                skipped.append(f"{qname} ({origin}): no closed form")
-                continue
-            syms = set(final.free_symbols)
-            for _s, e in defs:
-                syms |= e.free_symbols
-            syms -= {s for s, _e in defs}
-            if S in syms:
-                skipped.append(f"{qname} ({origin}): a function of the Laplace variable s")
-                continue
-            meas = r.extra.get("measured", {}) if req.statement == "solve" else {}
-            msym = sympy.Symbol(meas["symbol"]) if meas else None
-            params = sorted(syms, key=lambda x: (x != msym, order.get(x.name, 10**6), x.name))
-            units = []
-            for x in params:
-                if x == msym:
-                    units.append(meas.get("unit"))
-                else:
-                    info = c.symbols.get(x.name)
-                    units.append(info.unit if info else None)
-            name = ident(_function_name(req, qname, r.extra), names)
-            names.add(name)
-            what = (f"{qname} from the measured {meas.get('quantity')} at port {req.port}"
-                    if meas else f"{qname} of request '{req.text}'")
-            fwd = None
-            if meas:
-                fwd = (_forward(record, req), sympy.Symbol(qname), msym)
-            formulas.append(Formula(name, list(zip(params, units)), defs, final, q.unit,
-                                    what, origin, fwd))
-    return formulas, skipped
-
-
-def _forward(record, req):
-    """The closed form that a solve request inverted (for test points on its branch)."""
-    for r in record.results:
-        if r.request is req:
-            for st in r.steps:
-                if st.equations:
-                    return st.equations[0].rhs
-    return None
-
-
-class _Lowering:
-    """A formula as statements: ('let', sym, expr), ('guard', sym, kind, text), then the
-    returned expression; identifiers already sanitised."""
-
-    def __init__(self, f: Formula):
-        self.taken = set()
-        self.rename = {}
-        for x, _u in f.params:
-            self.rename[x] = sympy.Symbol(ident(x.name, self.taken))
-            self.taken.add(self.rename[x].name)
-        for s, _e in f.defs:
-            self.rename[s] = sympy.Symbol(ident(s.name, self.taken))
-            self.taken.add(self.rename[s].name)
-        self.taken.add(f.name)
-        self.count = 0
-        self.stmts, self.guarded, self.meaning = [], set(), {}
-        for s, e in f.defs:
-            self._emit_cse(e.xreplace(self.rename), self.rename[s])
-        self.result = self._emit_cse(f.final.xreplace(self.rename), None)
-
-    def fresh(self) -> sympy.Symbol:
-        while True:
-            n = f"t{self.count}"
-            self.count += 1
-            if n not in self.taken:
-                self.taken.add(n)
-                return sympy.Symbol(n)
-
-    def _emit_cse(self, e, target):
-        reps, (red,) = sympy.cse([e], symbols=iter(self.fresh, None), optimizations=None)
-        for s, rep in reps:
-            self.stmts.append(("let", s, self._hoist(rep)))
-            self.meaning[s] = rep
-        red = self._hoist(red)
-        if target is None:
-            return red
-        self.stmts.append(("let", target, red))
-        self.meaning[target] = red
-        return target
-
-    def _text(self, b):
-        for _ in range(len(self.meaning) + 1):
-            new = b.xreplace(self.meaning)
-            if new == b:
-                break
-            b = new
-        return to_text(b)
-
-    def _hoist(self, e):
-        if e.is_Atom:
-            return e
-        args = [self._hoist(a) for a in e.args]
-        if e.is_Pow and not e.base.is_Number:
-            b, k = args[0], e.exp
-            neg, root = k.is_negative, not k.is_Integer
-            if neg or root:
-                if not b.is_Symbol:
-                    d = self.fresh()
-                    self.stmts.append(("let", d, b))
-                    self.meaning[d] = b
-                    b = d
-                for kind, need in (("nonneg", root), ("nonzero", neg)):
-                    if need and (b, kind) not in self.guarded:
-                        self.guarded.add((b, kind))
-                        self.stmts.append(("guard", b, kind, self._text(b)))
-            return sympy.Pow(b, k)
-        return e.func(*args)
-
-
-def _num17(v) -> str:
-    from decimal import Context, Decimal
-    if not isinstance(v, sympy.Rational):
-        v = sympy.Rational(sympy.N(v, 40))
-    ctx = Context(prec=17)
-    d = ctx.divide(Decimal(int(v.p)), Decimal(int(v.q)))
-    return f"{d:.16E}"
-
-
-def _param_doc(f: Formula, low: _Lowering) -> str:
+def _param_doc(f: Formula, low: Lowering) -> str:
     return ", ".join(f"{low.rename[x].name} [{u or 'no unit given'}]" for x, u in f.params)
 
 
 # ------------------------------------------------------------------ C
 class _CPrinter(C99CodePrinter):
+    """C99 without the POSIX/XSI constants of ``<math.h>`` (``M_SQRT2``, ``M_PI``, ...),
+    which strict C99 lacks: ``sqrt(2.0)``, and other constants as 17-digit literals."""
+
+    def __init__(self, settings=None):
+        super().__init__(settings)
+        self.math_macros = {}
+
+    def _print_NumberSymbol(self, expr):
+        return f"({num17(expr)})"
+
+    _print_Pi = _print_Exp1 = _print_GoldenRatio = _print_EulerGamma = _print_Catalan = \
+        _print_NumberSymbol
+
     def _print_Rational(self, expr):
         return f"({expr.p}.0/{expr.q}.0)"
 
@@ -239,7 +48,7 @@ class _CPrinter(C99CodePrinter):
 
 def c_function(f: Formula, prefix: str) -> tuple:
     """(prototype with its comment, definition) of one formula in C99."""
-    low = _Lowering(f)
+    low = Lowering(f, prefix)
     pr = _CPrinter()
     args = ", ".join(f"double {low.rename[x].name}" for x, _u in f.params) or "void"
     proto = (f"/* {f.name}: {comment(f.what)} [{comment(f.unit or 'no unit')}].\n"
@@ -300,7 +109,7 @@ def render_c(record, prefix: str, header_name: Optional[str]) -> tuple:
 
 # ------------------------------------------------------------------ Python
 def py_function(f: Formula) -> str:
-    low = _Lowering(f)
+    low = Lowering(f)
     pr = PythonCodePrinter({"standard": "python3"})
     args = ", ".join(low.rename[x].name for x, _u in f.params)
     out = [f"def {f.name}({args}):",

@@ -15,7 +15,7 @@ import random
 
 import sympy
 
-from derive.export.code import _Lowering, _num17, collect
+from derive.export.code_forms import Lowering, collect, num17
 
 TOLERANCE = 1e-12
 
@@ -83,11 +83,13 @@ def _all(record):
     return [(f, vectors(f, nominal)) for f in formulas]
 
 
-def vectors_json(table) -> str:
-    return json.dumps({f.name: [{"inputs": {_Lowering(f).rename[x].name: str(v)
+def vectors_json(table, prefix=None) -> str:
+    """The vectors as JSON, inputs named as the generated code (C: with ``prefix``) names
+    its parameters."""
+    return json.dumps({f.name: [{"inputs": {Lowering(f, prefix).rename[x].name: str(v)
                                             for (x, _u), v in zip(f.params, ins)},
-                                 "expected": str(want) if want.is_Rational else _num17(want),
-                                 "expected_17": _num17(want)} for ins, want in vs]
+                                 "expected": str(want) if want.is_Rational else num17(want),
+                                 "expected_17": num17(want)} for ins, want in vs]
                        for f, vs in table}, indent=2) + "\n"
 
 
@@ -98,31 +100,38 @@ def c_tests(record, base: str, header_name: str, prefix: str) -> dict:
              f"{TOLERANCE:g}. */",
              "#include <math.h>", "#include <stdio.h>", f'#include "{header_name}"', "",
              "static double worst = 0.0;", "static int failures = 0;", "static int count = 0;",
-             "", "static void compare(double got, double want)", "{",
-             "    double err = want != 0.0 ? fabs(got - want) / fabs(want) : fabs(got);",
-             "    count++;",
-             f"    if (!(err <= {TOLERANCE!r})) failures++;",
-             "    if (!(err <= worst)) worst = err;", "}", ""]
-    main = ["int main(void)", "{", "    size_t i;"]
+             ""]
+    if any(vs for _f, vs in table):      # (an unused static function fails -Werror)
+        lines += ["static void compare(double got, double want)", "{",
+                  "    double err = want != 0.0 ? fabs(got - want) / fabs(want) : fabs(got);",
+                  "    count++;",
+                  f"    if (!(err <= {TOLERANCE!r})) failures++;",
+                  "    if (!(err <= worst)) worst = err;", "}", ""]
+    main = ["int main(void)", "{"] + (["    size_t i;"] if any(vs for _f, vs in table) else [])
     for f, vs in table:
         if not vs:
             continue
         n = len(f.params)
-        rows = ",\n".join("    {" + ", ".join(_num17(v) for v in ins + [want]) + "}"
+        rows = ",\n".join("    {" + ", ".join(num17(v) for v in ins + [want]) + "}"
                           for ins, want in vs)
         lines.append(f"static const double v_{f.name}[{len(vs)}][{n + 1}] = {{\n{rows}\n}};")
         call = ", ".join(f"v_{f.name}[i][{j}]" for j in range(n))
         main += [f"    for (i = 0; i < sizeof v_{f.name} / sizeof v_{f.name}[0]; i++)",
                  f"        compare({f.name}({call}), v_{f.name}[i][{n}]);"]
     main += ['    printf("%d vectors, max relative error %.3g, %d failures\\n", count, worst, '
-             'failures);', f"    return failures == 0 && {prefix}_error == 0 ? 0 : 1;", "}"]
+             'failures);',
+             '    if (count == 0) {',
+             '        printf("no test vectors: nothing was checked\\n");',
+             '        return 1;',
+             '    }',
+             f"    return failures == 0 && {prefix}_error == 0 ? 0 : 1;", "}"]
     return {base + "_test.c": "\n".join(lines + [""] + main) + "\n",
-            base + "_vectors.json": vectors_json(table)}
+            base + "_vectors.json": vectors_json(table, prefix)}
 
 
 def py_tests(record, base: str, module_file: str) -> dict:
     table = _all(record)
-    data = {f.name: [([_num17(v) for v in ins], _num17(want)) for ins, want in vs]
+    data = {f.name: [([num17(v) for v in ins], num17(want)) for ins, want in vs]
             for f, vs in table}
     text = f'''"""Checks the generated functions against exact test vectors (derive code --with-tests)."""
 import importlib.util
@@ -152,6 +161,9 @@ def main():
             worst = max(worst, err)
             failures += not err <= {TOLERANCE!r}
     print(f"{{count}} vectors, max relative error {{worst:.3g}}, {{failures}} failures")
+    if count == 0:
+        print("no test vectors: nothing was checked")
+        return 1
     return 1 if failures else 0
 
 

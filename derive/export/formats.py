@@ -11,8 +11,13 @@ def render(record, fmt: str, args=None):
     if fmt == "json":
         return record.to_json()
     if fmt == "md":
+        import jinja2
         from derive.export.markdown import record_markdown
-        return record_markdown(record, template, getattr(args, "output", None))
+        try:
+            return record_markdown(record, template, getattr(args, "output", None))
+        except jinja2.TemplateError as e:      # a user's --template folder
+            where = f" (line {e.lineno})" if getattr(e, "lineno", None) else ""
+            raise DeriveError(f"the record template cannot be used{where}: {e}") from None
     if fmt in ("tex", "pdf"):
         try:
             from derive.export import latex as export_latex

@@ -275,7 +275,11 @@ def render(record, fmt: str, args=None):
         except DeriveError as e:
             if output:
                 tex_path = os.path.splitext(output)[0] + ".tex"
-                write_atomic(tex_path, source)
+                if os.path.lexists(tex_path) or os.path.abspath(tex_path) == \
+                        os.path.abspath(output):
+                    raise DeriveError(f"{e}; the LaTeX source was not written, since "
+                                      f"{tex_path} exists already") from None
+                write_atomic(tex_path, source, on_error=True)
                 raise DeriveError(f"{e}; the LaTeX source was written to {tex_path}") from None
             raise
     return pdf

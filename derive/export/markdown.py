@@ -8,6 +8,7 @@ from __future__ import annotations
 import os
 import re
 from typing import Optional
+from urllib.parse import quote
 
 import jinja2
 
@@ -77,8 +78,9 @@ def _figures(record, output: Optional[str]):
             if output and hasattr(f, "draw"):
                 stem = os.path.splitext(os.path.basename(output))[0]
                 name = "".join(ch if ch.isalnum() or ch in "-_" else "-" for ch in f.name)
-                path = f"{stem}-{name}.png"
-                f.draw(os.path.join(os.path.dirname(os.path.abspath(output)), path))
+                file = f"{stem}-{name}.png"
+                f.draw(os.path.join(os.path.dirname(os.path.abspath(output)), file))
+                path = quote(file)      # a link target: no space, bracket or parenthesis
             figs.append({"caption": getattr(f, "caption", ""), "path": path})
         out[i] = figs
     return out
