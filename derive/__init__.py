@@ -47,10 +47,14 @@ def parse(text: str, filename: str = "<sheet>"):
 
 
 def circuit_of(text: str, filename: str = "<sheet>"):
-    """Parse and build the validated, flattened circuit."""
+    """Parse and build the validated, flattened circuit (its well-posedness decided by the
+    solver)."""
     from derive.circuit.build import build_circuit
+    from derive.solver.well_posed import check_well_posed
     try:
-        return build_circuit(parse(text, filename))
+        c = build_circuit(parse(text, filename))
+        check_well_posed(c)
+        return c
     except SheetError as e:
         raise e.with_context(text, filename)
 

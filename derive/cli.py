@@ -436,13 +436,13 @@ def _warm_up() -> None:
     if _warm:
         return
     import importlib
-    for mod in ("parser", "circuit", "analysis", "exporters", "export_json",
-                "export_markdown"):
+    for mod in ("sheet.parser", "circuit.build", "solver.well_posed", "analyses.run",
+                "export.formats", "export.json_record", "export.markdown"):
         try:
-            importlib.import_module(f"{__package__}.{mod}")
+            importlib.import_module(f"derive.{mod}")
         except ImportError:          # reported by the worker, with an install hint
             return
-    from .grammar_loader import get_parser
+    from derive.sheet.grammar import get_parser
     get_parser()
     _warm = True
 

@@ -23,11 +23,17 @@ OFFLINE = re.compile(r"NewConnectionError|Temporary failure in name resolution|N
                      r"ProxyError|ConnectTimeoutError|Read timed out|SSLError")
 
 # (Rn + d) || (Rn - d) = (Rn^2 - d^2)/(2 Rn) is not monotone in d over a box containing
-# d = 0, so its true extremes need the bounded interior search (scipy) of tolerance.py.
+# d = 0. With two such parts (d and e) in series the exact one-variable path does not apply,
+# so the true extremes need the bounded interior search (scipy) of tolerance.py.
+# rth = Rn - (d^2 + e^2)/(2 Rn): maximum at d = e = 0, Rn = 1010 ohm (1010 ohm); minimum at
+# d = 60 ohm, e = 120 ohm, Rn = 990 ohm (990 - 18000/1980 ohm). Closed forms, worked by hand.
 NON_MONOTONE = """nominal Rn = 1 kohm ±1%
 nominal d = 10 ohm ±500%
-resistor R1 between a and gnd = Rn + d
-resistor R2 between a and gnd = Rn - d
+nominal e = 20 ohm ±500%
+resistor R1 between a and b = Rn + d
+resistor R2 between a and b = Rn - d
+resistor R3 between b and gnd = Rn + e
+resistor R4 between b and gnd = Rn - e
 port p between a and gnd
 find tolerance of resistance at p
 """
@@ -124,8 +130,9 @@ def test_fresh_venv_runs_from_another_directory(installed, tmp_path):
     assert r.returncode == 0, r.stderr
     spread = json.loads(r.stdout)["results"][0]["spread"]
     assert "interior search" in spread["method"]
-    # maximum at d = 0, Rn = 1010 ohm: (Rn^2 - 0)/(2 Rn) = 505 ohm (closed form above)
-    assert spread["high"] == pytest.approx(505.0, rel=1e-9)
+    # the closed forms above
+    assert spread["high"] == pytest.approx(1010.0, rel=1e-9)
+    assert spread["low"] == pytest.approx(990 - 18000 / 1980, rel=1e-9)
     # the installed copy is the one that ran, not the checkout
     r = subprocess.run([str(venv / "bin" / "python"), "-c",
                         "import derive; print(derive.__file__)"], cwd=work,

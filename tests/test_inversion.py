@@ -66,7 +66,7 @@ def test_quadratic_roots_against_numpy():
     rth_nom = 1000 + 1000 * 2000 / 3000
     ref = sorted(numpy.roots([1.0, 2 * 2000 - rth_nom, -rth_nom * 2000]))
     chosen = r.quantities["R"].expr.xreplace({rth: sympy.Rational(5000, 3), Rc: 2000})
-    other = sympy.sympify(roots[1]["expr"].replace("rth", "(5000/3)").replace("Rc", "2000"))
+    other = roots[1]["expr"].xreplace({rth: sympy.Rational(5000, 3), Rc: 2000})
     assert float(chosen) == pytest.approx(ref[1], rel=1e-12)
     assert float(other) == pytest.approx(ref[0], rel=1e-12)
     assert r.quantities["R"].value == pytest.approx(1000.0)

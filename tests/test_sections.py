@@ -47,7 +47,7 @@ def test_common_emitter_model():
     assert any("signal source" in s.text and s.verified for s in r.steps)
     assert all(s.verified for s in r.steps)
     f = r.extra["forms"]
-    assert f["transconductance"]["gm"]["expr"] == "-gm"      # out of c into a short
+    assert same(f["transconductance"]["gm"]["expr"], -gm)      # out of c into a short
     assert f["current amplifier"]["ai"]["value"] == pytest.approx(-0.04 * 2500)
     assert f["transresistance"]["rm"]["value"] == pytest.approx(-0.04 * 2500 * 4700 * 10000 / 14700)
 
@@ -301,7 +301,7 @@ def test_replace_by_model(extra, exact):
     assert sub["instance"] == "q1" and sub["unilateral"] is exact
     rpi, gm, Rc, Rs, RL = (sym(n) for n in ("q1_rpi", "gm", "q1_Rc", "Rs", "RL"))
     if exact:
-        assert sub["rin"] == "q1_rpi" and sub["rout"] == "q1_Rc"
+        assert sub["rin"] == rpi and sub["rout"] == Rc
         e = {"rin": rpi, "gain": -gm * Rc, "rout": Rc}
     else:
         # the same stage alone, modelled by find model (signal source across its input)

@@ -8,6 +8,7 @@ import pytest
 import sympy
 
 import derive
+from derive.export import plots
 from derive.analyses import run as analysis
 from derive.errors import SheetError
 from derive.analyses.sensitivity import Form, derivative
@@ -152,7 +153,7 @@ def test_json_and_figure(tmp_path):
     assert r["sensitivities"]["R1"]["normalized"] == "-R1/(R1 + R2)"
     fig = rec.results[0].extra["figures"][0]
     path = tmp_path / (fig.name + ".png")
-    fig.draw(str(path))
+    plots.draw(fig, str(path))
     assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
 

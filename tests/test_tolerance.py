@@ -10,6 +10,7 @@ import pytest
 import sympy
 
 from derive.errors import SheetError
+from derive.export import plots
 from derive.analyses.sensitivity import Form
 from derive.analyses.tolerance import derivative_sign, extremes, interval, monte_carlo
 from helpers import run
@@ -171,7 +172,7 @@ def test_json_figure_and_errors(tmp_path):
     assert set(d["monte_carlo"]) >= {"samples", "seed", "mean", "std", "low", "high"}
     assert "figures" not in d
     fig = rec.results[0].extra["figures"][0]
-    fig.draw(str(tmp_path / "h.png"))
+    plots.draw(fig, str(tmp_path / "h.png"))
     assert (tmp_path / "h.png").read_bytes()[:4] == b"\x89PNG"
     steps = rec.results[0].steps
     assert len(steps) == 4 and steps[0].table[0][0] == "symbol" and len(steps[0].table) == 6

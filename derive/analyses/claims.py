@@ -21,8 +21,8 @@ from derive.circuit import dimensions
 from derive.circuit.build import S, key_of
 from derive.sheet.expressions import to_sympy
 from derive.analyses.inversion import quantity_of
-from derive.export.printing import to_text
-from derive.analyses.inversion import _derived_equation
+from derive.forms.text import to_text
+from derive.analyses.inversion import derived_equation
 from derive.derivation.steps import Equation, Step
 
 POINTS = 12
@@ -176,7 +176,7 @@ def check_request(ctx, req) -> analysis.RequestResult:
     name, q_expr, q = quantity_of(ctx, req)
     claim = claim_expr(ctx, req)
     qs = sympy.Symbol(name)
-    steps = [Step(f"The derived {name} ({q.form} form).", [_derived_equation(qs, q_expr, q)],
+    steps = [Step(f"The derived {name} ({q.form} form).", [derived_equation(qs, q_expr, q)],
                   kind="check"),
              Step("The claim, built from the sheet's expression.",
                   [Equation(sympy.Symbol(f"{name}_claimed"), claim, definition=True)],

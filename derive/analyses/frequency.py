@@ -109,11 +109,6 @@ def sensitivities(expr, nominal) -> dict:
     return out
 
 
-def _txt(e):
-    from derive.export.printing import to_text
-    return None if e is None else to_text(e)
-
-
 def _fnum(e, nominal):
     if e is None:
         return None
@@ -129,26 +124,26 @@ def _cplx(z):
 
 
 def analyse_quantity(q, nominal) -> tuple:
-    """(json dict, step, numeric (num, den) coefficient lists or None) for one quantity."""
+    """(dict for ``extra["frequency"]``, holding sympy expressions that the JSON exporter
+    prints; step; numeric (num, den) coefficient lists or None) for one quantity."""
     f = rational_form(q.expr)
-    d = {"s_power": f["s_power"], "k": _txt(f["k"]), "dc_gain": _txt(f["dc_gain"]),
-         "numerator": [_txt(c) for c in f["numerator"]],
-         "denominator": [_txt(c) for c in f["denominator"]]}
+    d = {"s_power": f["s_power"], "k": f["k"], "dc_gain": f["dc_gain"],
+         "numerator": list(f["numerator"]), "denominator": list(f["denominator"])}
     for key in ("w0", "Q", "w_corner"):
-        d[key] = _txt(f[key])
+        d[key] = f[key]
         d[key + "_value"] = _fnum(f[key], nominal)
-    d["f_corner"] = _txt(f["w_corner"] / (2 * sympy.pi)) if f["w_corner"] is not None else None
+    d["f_corner"] = f["w_corner"] / (2 * sympy.pi) if f["w_corner"] is not None else None
     d["f_corner_value"] = (d["w_corner_value"] / (2 * math.pi)
                            if d["w_corner_value"] is not None else None)
     d["f0_value"] = d["w0_value"] / (2 * math.pi) if d["w0_value"] is not None else None
     for key, cs in (("poles", f["denominator"]), ("zeros", f["numerator"])):
-        d[key] = [_txt(r) for r in f[key]] if f[key] is not None else None
+        d[key] = list(f[key]) if f[key] is not None else None
         nr = numeric_roots(cs, nominal)
         d[key + "_value"] = [_cplx(z) for z in nr] if nr is not None else None
     sens = {}
     for key in ("w0", "Q", "w_corner"):
         if f[key] is not None:
-            sens[key] = {x: {"normalized": _txt(v["expr"]), "value": v["value"]}
+            sens[key] = {x: {"normalized": v["expr"], "value": v["value"]}
                          for x, v in sensitivities(f[key], nominal).items()}
     if sens:
         d["sensitivity"] = sens
@@ -232,23 +227,9 @@ def _range(num, den):
 
 
 def bode_figure(name, caption, num, den, unit=None) -> Figure:
-    def draw(path):
-        from matplotlib.figure import Figure as MplFigure
-        f, mag, phase = bode_data(num, den)
-        fig = MplFigure(figsize=(6.4, 5.2))
-        a1, a2 = fig.subplots(2, 1, sharex=True)
-        a1.semilogx(f, mag)
-        a1.set_ylabel("magnitude / dB" + (f" re 1 {unit}" if unit and unit not in ("V/V", "A/A")
-                                          else ""))
-        a1.grid(True, which="both", alpha=0.3)
-        a2.semilogx(f, phase)
-        a2.set_ylabel("phase / degrees")
-        a2.set_xlabel("frequency / Hz")
-        a2.grid(True, which="both", alpha=0.3)
-        a1.set_title(caption, fontsize=9)
-        fig.tight_layout()
-        fig.savefig(path)
-    return Figure(name, caption, draw)
+    """A Bode plot at nominal values of ``num(s)/den(s)`` (ascending numeric coefficients);
+    drawn by :func:`derive.export.plots.draw` over the range of :func:`bode_data`."""
+    return Figure(name, caption, "bode", {"num": list(num), "den": list(den), "unit": unit})
 
 
 def annotate(ctx, req, result):

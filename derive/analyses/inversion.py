@@ -20,7 +20,7 @@ from derive.forms import elimination as sequence
 from derive.circuit.build import key_of
 from derive.errors import SheetError
 from derive.sheet import quantities
-from derive.export.printing import to_latex, to_text
+from derive.forms.text import to_text
 from derive.derivation.steps import Equation, Step
 
 
@@ -93,7 +93,7 @@ def _sub_back(expr, x, root, q) -> bool:
         return False
 
 
-def _derived_equation(sym, expr, fq) -> Equation:
+def derived_equation(sym, expr, fq) -> Equation:
     """``sym = expr`` for a derived closed form, checked against the solver's exact ratio
     (or, where only a sequence exists, against the sequence it was inlined from)."""
     if fq.ratio is not None:
@@ -195,7 +195,7 @@ def solve_request(ctx, req) -> analysis.RequestResult:
     if have_nominal:
         nominal[q] = q_nom
     steps = [Step(f"Write the measured {name} as a symbol of its own, {q}, equal to its "
-                  "closed form.", [_derived_equation(q, expr, fq)], kind="inversion"),
+                  "closed form.", [derived_equation(q, expr, fq)], kind="inversion"),
              Step(f"Multiply out the denominator (assumed not zero): {q}·({to_text(den)}) = "
                   f"{to_text(num)}, a polynomial of degree {poly.degree()} in {x} that must "
                   "vanish.",       # checked against (closed form - q)·den
@@ -208,7 +208,7 @@ def solve_request(ctx, req) -> analysis.RequestResult:
         real_pos = v is not None and abs(v.imag) <= 1e-20 * max(1.0, abs(v.real)) and v.real > 0
         matches = info.nominal is not None and v is not None and \
             abs(v - float(info.nominal)) <= 1e-9 * abs(float(info.nominal))
-        listed.append({"expr": to_text(r), "latex": to_latex(r),
+        listed.append({"expr": r, "latex": r,
                        "value": v.real if v is not None and real_pos else None,
                        "real_positive_at_nominal": bool(real_pos), "verified": ok})
         if real_pos and (chosen is None or matches):
@@ -247,7 +247,7 @@ def solve_request(ctx, req) -> analysis.RequestResult:
     out.extra.update({
         "measured": {"symbol": q.name, "quantity": name, "unit": fq.unit,
                      "value": float(q_nom) if have_nominal else None,
-                     "closed_form": to_text(expr)},
+                     "closed_form": expr},
         "method": method,
         "roots": listed,
         "chosen_root": pick if chosen is not None else None,

@@ -197,14 +197,9 @@ def quantity(ctx, ratio, name, unit):
 
 
 def _expr_json(ctx, ratio, unit):
-    from derive.export.printing import to_text
     e = edge.to_sympy(ratio)
-    return {"expr": to_text(e), "value": _num(edge.value_at(ratio, ctx.nominal)), "unit": unit}
-
-
-def _num(v):
-    from derive.export.json_record import _num as num
-    return num(v)
+    return {"expr": e, "value": edge.finite_float(edge.value_at(ratio, ctx.nominal)),
+            "unit": unit}
 
 
 def _load_symbol(circuit) -> sympy.Symbol:
@@ -250,7 +245,7 @@ def model_handler(ctx, req) -> analysis.RequestResult:
         sc = dets.ratio(-1, "DM", "D2")
         loaded = _loaded_rin(dets, zl)
         out.extra["loaded_rin"] = {
-            "load": str(zl), "expr": _text(loaded),
+            "load": str(zl), "expr": loaded,
             "shorted": _expr_json(ctx, sc, "ohm") if sc is not None else None,
             "open": _expr_json(ctx, dets.ratio(-1, "D1", "D"), "ohm")}
         out.steps.append(Step(
@@ -265,11 +260,6 @@ def model_handler(ctx, req) -> analysis.RequestResult:
     for st in out.steps:
         st.verify()
     return out
-
-
-def _text(e):
-    from derive.export.printing import to_text
-    return to_text(e)
 
 
 def _loaded_rin(dets, zl):

@@ -10,7 +10,8 @@ Where Q exists only as a sequence of named intermediates, the derivative is carr
 the sequence in forward mode (chain rule, one new named entry ``dq3_dRa`` per intermediate
 that depends on x), so the derivative is itself a sequence.
 
-JSON (in ``RequestResult.extra``):
+JSON (in ``RequestResult.extra``; expressions are sympy objects, printed by the JSON
+exporter):
 
 - ``"sensitivities"``: ``{x: {"expr", "normalized", "value", "derivative_value", "rank"}}``
   for the request's quantity; for ``thevenin``/``norton`` for the first member (vth, isc);
@@ -48,8 +49,8 @@ from derive.forms.results import Context, RequestResult
 from derive.circuit.build import S as LAPLACE_S
 from derive.errors import SheetError
 from derive.sheet import quantities
-from derive.export.printing import to_text
-from derive.derivation.steps import Equation, Step, compare
+from derive.forms.text import to_text
+from derive.derivation.steps import Equation, Figure, Step, compare
 
 TIDY_OPS = 600          # factor only expressions up to this many operations
 
@@ -477,11 +478,11 @@ def sens_json(a: Analysed) -> dict:
     for rank, s in enumerate(a.sens, 1):
         e: dict = {}
         if s.deriv.defs:
-            e["sequence"] = [[str(n), to_text(x)] for n, x in s.deriv.defs[nseq:]]
-            e["in_sequence"] = to_text(s.deriv.final)
+            e["sequence"] = [[str(n), x] for n, x in s.deriv.defs[nseq:]]
+            e["in_sequence"] = s.deriv.final
         else:
-            e["expr"] = to_text(s.deriv.final)
-        e["normalized"] = to_text(s.normalized)
+            e["expr"] = s.deriv.final
+        e["normalized"] = s.normalized
         e["value"] = _f(s.s_value)
         e["derivative_value"] = _f(s.d_value)
         e["rank"] = rank
@@ -548,18 +549,18 @@ def sensitivity(ctx: Context, req) -> RequestResult:
     res.extra["sensitivity_of"] = items[0].q.name
     res.extra["sensitivities"] = by[items[0].q.name]
     res.extra["sensitivities_by_quantity"] = by
-    seqs = {a.q.name: {"sequence": [[str(n), to_text(x)] for n, x in a.form.defs],
-                       "in_sequence": to_text(a.form.final)} for a in items if a.form.defs}
+    seqs = {a.q.name: {"sequence": [[str(n), x] for n, x in a.form.defs],
+                       "in_sequence": a.form.final} for a in items if a.form.defs}
     if seqs:        # the names that sequence-form derivatives refer to
         res.extra["quantity_sequences"] = seqs
     figs = []
     for a in items:
         res.steps.extend(_steps(a))
-        from derive.export import plots
-        figs.append(plots.sensitivity_figure(
+        figs.append(Figure(
             f"{_slug(req.text)}-{a.q.name}",
             f"Normalized sensitivities of {a.q.name} ({req.text}), ranked by magnitude.",
-            [str(s.symbol) for s in a.sens], [_f(s.s_value) for s in a.sens]))
+            "sensitivity", {"symbols": [str(s.symbol) for s in a.sens],
+                            "values": [_f(s.s_value) for s in a.sens]}))
     res.extra["figures"] = figs
     return res
 

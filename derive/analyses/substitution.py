@@ -185,7 +185,6 @@ def annotate(ctx, req, result, fn):
     and with ``compare`` the model's error against the full circuit (``extra["model_error"]``,
     and for ``check`` the verdict on the full circuit in ``extra["full_circuit_holds"]``).
     Applied by :func:`derive.analyses.run.run` to every result of a substituted circuit."""
-    from derive.export.printing import to_text
     subs = ctx.circuit.model_substitutions
     for s in reversed(subs):
         rep, e = s["rep"], s["exprs"]
@@ -203,7 +202,7 @@ def annotate(ctx, req, result, fn):
     result.extra["substitution"] = [
         {"instance": s["rep"].instance, "from": s["rep"].port, "to": s["rep"].port2,
          "unilateral": s["unilateral"], "compare": s["rep"].compare,
-         **{k: (to_text(v) if v is not None else None) for k, v in s["exprs"].items()}}
+         **s["exprs"]}
         for s in subs]
     note = ("Computed on a substituted circuit, not on the full circuit: "
             + "; ".join(_model_words(s) for s in subs) + ".")

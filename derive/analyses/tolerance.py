@@ -33,7 +33,7 @@ import sympy
 from derive.forms.results import Context, RequestResult
 from derive.errors import SheetError
 from derive.analyses import sensitivity as _sens     # module object: the two modules import each other
-from derive.derivation.steps import Step
+from derive.derivation.steps import Figure, Step
 
 QUANTILES = (0.00135, 0.99865)
 MAX_BOXES = 256
@@ -587,7 +587,6 @@ def spread_of(ctx: Context, a, req) -> tuple:
 
 
 def tolerance(ctx: Context, req) -> RequestResult:
-    from derive.export import plots
     res = RequestResult(req)
     by, figs = {}, []
     for a in _sens.analysed(ctx, req):
@@ -604,11 +603,12 @@ def tolerance(ctx: Context, req) -> RequestResult:
         marks = {"linear worst case": (out["worst_case_linear"]["low"],
                                        out["worst_case_linear"]["high"]),
                  "extreme values": (out["spread"]["low"], out["spread"]["high"])}
-        figs.append(plots.histogram_figure(
+        figs.append(Figure(
             f"{_sens._slug(req.text)}-{a.q.name}",
             f"Monte Carlo spread of {a.q.name} ({out['monte_carlo']['samples']} samples) with "
-            "the linear worst-case and extreme-value limits.", counts, edges, a.q.name, a.q.unit,
-            marks))
+            "the linear worst-case and extreme-value limits.", "histogram",
+            {"counts": [float(c) for c in counts], "edges": [float(e) for e in edges],
+             "quantity": a.q.name, "unit": a.q.unit, "marks": marks}))
     first = next(iter(by))
     res.extra.update(by[first])
     res.extra["tolerance_of"] = first

@@ -17,14 +17,13 @@ from derive.errors import SheetError
 from derive.sheet import kinds
 from derive.sheet.expressions import names_in, to_sympy
 from derive.sheet.model import Call, Element, Loc, Name, OpAmp, Sheet, Use
+from derive.circuit.naming import key_of
+from derive.circuit.requests import check_requests
 from derive.circuit.topology import check_topology, dependent_cuts
 
 S = sympy.Symbol("s")
 
 
-def key_of(name: str) -> str:
-    """The symbol name of a (possibly qualified) element name: ``div1.Rt`` -> ``div1_Rt``."""
-    return name.replace(".", "_")
 
 
 @dataclass
@@ -97,6 +96,10 @@ class Circuit:
     ports: dict                     # name -> (plus, minus, Loc)
     requests: list
     numeric: set = field(default_factory=set)   # keys to substitute before solving
+    # node sets joined to the rest only through current sources, some dependent: well posed
+    # only if the nodal matrix is regular, which the solver decides
+    # (derive.solver.well_posed.check_well_posed)
+    dependent_cuts: list = field(default_factory=list)
 
     def element(self, name: str) -> CElement:
         for e in self.elements:
@@ -359,29 +362,10 @@ def build_circuit(sheet: Sheet) -> Circuit:
                 raise SheetError(f"numeric: {n!r} has no nominal value", l.line, l.col)
             numeric.add(k)
     c = Circuit(sheet, b.ground, nodes, b.elements, symbols, ports, list(sheet.requests), numeric)
-    _check_dependent_cuts(c)
-    from derive.circuit.requests import check_requests
+    c.dependent_cuts = dependent_cuts(c.elements, c.ground, c.nodes)
     check_requests(c)
     return c
 
-
-def _check_dependent_cuts(c: Circuit):
-    """Nodes joined to the rest only through current sources, some of them dependent: well
-    posed exactly when the stamped nodal matrix is regular (decided exactly, see
-    :meth:`derive.solver.stamping.System.regular`); otherwise a located error at the first dependent
-    source of the cut."""
-    cuts = dependent_cuts(c.elements, c.ground, c.nodes)
-    if not cuts:
-        return
-    from derive.solver.stamping import System
-    if System(c).regular():
-        return
-    members, srcs = cuts[0]
-    raise SheetError(f"the circuit is singular: node(s) {', '.join(members)} are joined to the "
-                     "rest of the circuit only through current sources "
-                     f"({', '.join(e.name for e in srcs)} dependent), and the nodal equations "
-                     "do not fix their voltages (the determinant of the nodal matrix is 0)",
-                     srcs[0].loc.line, srcs[0].loc.col)
 
 
 def _symbols(b: _Builder, sheet: Sheet) -> dict:

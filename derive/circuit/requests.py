@@ -1,7 +1,7 @@
 """Name checks of the request statements against a built circuit."""
 from __future__ import annotations
 
-from derive.circuit.build import key_of
+from derive.circuit.naming import key_of
 from derive.errors import SheetError
 from derive.sheet import quantities
 from derive.sheet.expressions import names_in

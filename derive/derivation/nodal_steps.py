@@ -27,7 +27,7 @@ import sympy
 
 from derive.forms import select as forms
 from derive.sheet import kinds
-from derive.forms.elimination import _entry_expr
+from derive.forms.elimination import entry_expr
 from derive.derivation.steps import ATTEMPTS, POINTS, Equation, Program, Step, random_point
 
 MAX_CRAMER = 4        # unknowns up to which determinants are written out (symbolic
@@ -166,11 +166,11 @@ class Nodal:
         sysm = self.system
         for i in range(sysm.n):
             for j in range(sysm.n):
-                if sympy.cancel(self.A[i, j] - _entry_expr(sysm, sysm.A.get(i, j))) != 0:
+                if sympy.cancel(self.A[i, j] - entry_expr(sysm, sysm.A.get(i, j))) != 0:
                     return False
         rhs = sysm.rhs()
         for i in range(sysm.n):
-            ref = _entry_expr(sysm, rhs[i]) if i in rhs else 0
+            ref = entry_expr(sysm, rhs[i]) if i in rhs else 0
             if sympy.cancel(self.b[i] - ref) != 0:
                 return False
         return True
@@ -205,9 +205,9 @@ def stamped_rows(nodal) -> list:
     rhs = sysm.rhs()
     out = []
     for i in range(sysm.n):
-        row = sympy.Add(*[_entry_expr(sysm, p) * nodal.unknowns[j]
+        row = sympy.Add(*[entry_expr(sysm, p) * nodal.unknowns[j]
                           for j, p in sysm.A.rows[i].items()])
-        out.append(row - (_entry_expr(sysm, rhs[i]) if i in rhs else 0))
+        out.append(row - (entry_expr(sysm, rhs[i]) if i in rhs else 0))
     return out
 
 
@@ -267,14 +267,14 @@ def cramer_step(nodal: Nodal, name, form, b, expected, why: str, tag: str = "") 
     if isinstance(expected, tuple):     # (sequence, result): only named intermediates exist
         seq, final = expected
         eq = Equation(lhs, final, defs=dict(seq))
-        eq.mark("system", *_random_solve_check(nodal, form, b, final, defs=dict(seq)))
+        eq.mark("system", *random_solve_check(nodal, form, b, final, defs=dict(seq)))
         return Step(f"{why} The result is the sequence of {len(seq)} named intermediate "
                     "quantities given with it (node elimination); it was compared with a "
                     "direct exact solve of the equations above at random rational points.",
                     [eq], kind="cramer")
     if A.shape[0] > MAX_CRAMER:
         eq = Equation(lhs, expected)
-        eq.mark("system", *_random_solve_check(nodal, form, b, expected))
+        eq.mark("system", *random_solve_check(nodal, form, b, expected))
         return Step(f"{why} The system has {A.shape[0]} unknowns; its determinants are too "
                     "large to write out. The exact result was compared with a direct exact "
                     "solve of the equations above at random rational points.", [eq],
@@ -325,7 +325,7 @@ def _kernel_det(nodal, A):
     sysm = nodal.system
     if A.shape[0] != sysm.n:
         return None
-    return _entry_expr(sysm, nodal.solver.det_a())
+    return entry_expr(sysm, nodal.solver.det_a())
 
 
 def _draws(syms, seed, points):
@@ -367,7 +367,7 @@ def _exact_solve(A, b) -> list:
     return [sympy.Rational(int(x[i, 0].p), int(x[i, 0].q)) for i in range(A.shape[0])]
 
 
-def _random_solve_check(nodal, form, b, expected, points=2, defs=None, over=None) -> tuple:
+def random_solve_check(nodal, form, b, expected, points=2, defs=None, over=None) -> tuple:
     """(agrees, points used): exact solves of the nodal equations at random rational points
     (python-flint ``fmpq_mat``) against ``expected`` (which may use the named intermediates
     ``defs``). With ``over = (form2, b2)`` the solved value is the ratio of ``form`` solved
@@ -410,8 +410,7 @@ def _random_solve_check(nodal, form, b, expected, points=2, defs=None, over=None
         return False, None
 
 
-random_solve_check = _random_solve_check      # the public name (other modules use it)
 
 
 def _random_solve_agrees(nodal, form, b, expected, points=2, defs=None) -> bool:
-    return _random_solve_check(nodal, form, b, expected, points, defs)[0]
+    return random_solve_check(nodal, form, b, expected, points, defs)[0]

@@ -72,15 +72,15 @@ def _check(ctx, req, eq: Equation, ref, nodal_form=None):
     if ref is not None:
         eq.check = ref
         return eq
-    from derive.derivation.nodal_steps import _random_solve_check
+    from derive.derivation.nodal_steps import random_solve_check
     nodal = _nodal(ctx)
     if len(nodal_form) == 4:        # isc: open-circuit voltage over resistance seen
         f1, b1, f2, b2 = nodal_form
-        eq.mark("system", *_random_solve_check(nodal, f1, b1, eq.rhs, defs=eq.defs,
+        eq.mark("system", *random_solve_check(nodal, f1, b1, eq.rhs, defs=eq.defs,
                                                over=(f2, b2)))
         return eq
     form, b = nodal_form
-    eq.mark("system", *_random_solve_check(nodal, form, b, eq.rhs, defs=eq.defs))
+    eq.mark("system", *random_solve_check(nodal, form, b, eq.rhs, defs=eq.defs))
     return eq
 
 
@@ -364,14 +364,14 @@ def _current_steps(ctx, req, out, refs):
 def _through_agrees(nodal, name, form) -> bool:
     """The element's current in the unknowns equals the stamped system's own linear form
     of that current (:meth:`derive.solver.stamping.System.through`)."""
-    from derive.forms.elimination import _entry_expr
+    from derive.forms.elimination import entry_expr
     try:
         sysm = nodal.system
         lf = sysm.through(name)
-        ref = sympy.Add(*[_entry_expr(sysm, p) * nodal.unknowns[i]
+        ref = sympy.Add(*[entry_expr(sysm, p) * nodal.unknowns[i]
                           for i, p in lf.coef.items() if not _zero_poly(p)])
         if not _zero_poly(lf.const):
-            ref += _entry_expr(sysm, lf.const)
+            ref += entry_expr(sysm, lf.const)
         d = sympy.expand(form - ref)
         return d == 0 or sympy.cancel(sympy.together(d)) == 0
     except Exception:

@@ -24,9 +24,11 @@ Every equation carries how it was verified (``Equation.verified_by``):
 
 ``Step.verified`` is true only when every equation is verified (definitions included); a
 step without equations is vacuously verified and has an empty ``verified_by`` list in JSON.
-In JSON every step carries ``"verified_by"``: one entry per equation, in order, each an
-object ``{"method": "exact" | "points" | "system" | "definition" | null}`` with
-``"points": n`` where random points were used.
+Steps hold sympy equations only; the exporters render them (JSON:
+:func:`derive.export.json_record.step_json`). In JSON every step carries ``"verified_by"``:
+one entry per equation, in order, each an object
+``{"method": "exact" | "points" | "system" | "definition" | null}`` with ``"points": n``
+where random points were used.
 
 >>> import sympy
 >>> R1, R2 = sympy.symbols('R1 R2')
@@ -44,7 +46,7 @@ from __future__ import annotations
 import random
 from dataclasses import dataclass, field
 from fractions import Fraction
-from typing import Callable, Optional
+from typing import Optional
 
 import flint
 import sympy
@@ -95,19 +97,18 @@ class Equation:
             return self.mark("definition", True)
         return self.mark(None, False)
 
-    def method_json(self) -> dict:
-        d = {"method": self.verified_by if self.verified else None}
-        if self.verified and self.points is not None:
-            d["points"] = int(self.points)
-        return d
-
 
 @dataclass
 class Figure:
-    """A plot that an exporter may draw: ``draw(path)`` writes an image file."""
+    """A plot that an exporter may draw: its ``chart`` and the plain numbers it needs
+    (``data``); :func:`derive.export.plots.draw` draws it. Charts: ``"sensitivity"``
+    (``symbols``, ``values``), ``"histogram"`` (``counts``, ``edges``, ``quantity``,
+    ``unit``, ``marks``), ``"bode"`` (``num``, ``den`` ascending numeric coefficients,
+    ``unit``)."""
     name: str
     caption: str
-    draw: Callable[[str], None]
+    chart: str
+    data: dict = field(default_factory=dict)
 
 
 @dataclass
@@ -125,17 +126,6 @@ class Step:
             ok = eq.run_check() and ok
         self.verified = ok
         return ok
-
-    def to_json(self) -> dict:
-        from derive.export.printing import to_text
-        out = {"text": self.text,
-               "equations": [f"{to_text(e.lhs)} = {to_text(e.rhs)}" for e in self.equations],
-               "elements": list(self.elements),
-               "verified": bool(self.verified) and all(e.verified for e in self.equations),
-               "verified_by": [e.method_json() for e in self.equations]}
-        if self.table:
-            out["table"] = [[str(c) for c in row] for row in self.table]
-        return out
 
 
 # ------------------------------------------------------------------ exact evaluation

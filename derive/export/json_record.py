@@ -2,20 +2,29 @@
 from __future__ import annotations
 
 import json
-import math
+
+import sympy
 
 from derive.export.printing import to_latex, to_text
+from derive.solver.convert import finite_float
 
 
-def _num(v):
-    if v is None:
-        return None
-    if isinstance(v, complex):
-        if v.imag != 0:
-            return None
-        v = v.real
-    v = float(v)
-    return v if math.isfinite(v) else None
+def printed(v, key=None):
+    """``v`` with every sympy object printed: under the key ``"latex"`` as LaTeX, anywhere
+    else as the ``expr`` text; dicts, lists and tuples are walked (tuples become lists).
+    The analyses keep sympy expressions in ``RequestResult.extra``; this renders them.
+
+    >>> import sympy
+    >>> printed({"expr": sympy.Symbol('R1')/2, "latex": sympy.Symbol('R1')/2, "n": [1, None]})
+    {'expr': 'R1/2', 'latex': '\\\\frac{R_{1}}{2}', 'n': [1, None]}
+    """
+    if isinstance(v, sympy.Basic):
+        return to_latex(v) if key == "latex" else to_text(v)
+    if isinstance(v, dict):
+        return {k: printed(x, k) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [printed(x, key) for x in v]
+    return v
 
 
 def quantity_json(q) -> dict:
@@ -26,12 +35,34 @@ def quantity_json(q) -> dict:
     if q.sequence:
         d["sequence"] = [[str(s), to_text(e)] for s, e in q.sequence]
         d["in_sequence"] = to_text(q.in_sequence)
-    d["value"] = _num(q.value)
+    d["value"] = finite_float(q.value)
     d["unit"] = q.unit
     d["form"] = q.form
     if q.notes:
         d["notes"] = list(q.notes)
     return d
+
+
+def method_json(eq) -> dict:
+    """How an :class:`~derive.derivation.steps.Equation` was verified, as JSON:
+    ``{"method": ...}`` plus ``"points"`` where random points were used."""
+    d = {"method": eq.verified_by if eq.verified else None}
+    if eq.verified and eq.points is not None:
+        d["points"] = int(eq.points)
+    return d
+
+
+def step_json(step) -> dict:
+    """A :class:`~derive.derivation.steps.Step` as JSON: its sentence, its equations as
+    ``lhs = rhs`` strings, the elements involved and how it was verified."""
+    out = {"text": step.text,
+           "equations": [f"{to_text(e.lhs)} = {to_text(e.rhs)}" for e in step.equations],
+           "elements": list(step.elements),
+           "verified": bool(step.verified) and all(e.verified for e in step.equations),
+           "verified_by": [method_json(e) for e in step.equations]}
+    if step.table:
+        out["table"] = [[str(c) for c in row] for row in step.table]
+    return out
 
 
 def symbols_json(circuit) -> dict:
@@ -53,9 +84,9 @@ def result_json(r) -> dict:
         d["quantities"] = {n: quantity_json(q) for n, q in r.quantities.items()}
     for k, v in r.extra.items():
         if k != "figures":          # Figure objects are for the renderers, not JSON
-            d[k] = v
+            d[k] = printed(v, k)
     if r.steps:
-        d["steps"] = [s if isinstance(s, dict) else s.to_json() for s in r.steps]
+        d["steps"] = [s if isinstance(s, dict) else step_json(s) for s in r.steps]
     return d
 
 

@@ -17,6 +17,7 @@ from pylatex import Command, Document, Package, Section, Subsection, Tabular
 from pylatex.utils import NoEscape, escape_latex
 
 from derive.errors import DeriveError
+from derive.export import plots
 from derive.export.files import write_atomic
 from derive.export.view import view
 
@@ -207,10 +208,10 @@ def document(record, figures_dir=None) -> Document:
                     _math_block(doc, eq["lines"])
             doc.append(NoEscape(r"\end{enumerate}"))
             for k, f in enumerate(record.results[i].extra.get("figures") or []):
-                if figures_dir is None or not hasattr(f, "draw"):
+                if figures_dir is None or not plots.can_draw(f):
                     continue
                 path = os.path.join(figures_dir, f"fig{i}_{k}.png")
-                f.draw(path)
+                plots.draw(f, path)
                 doc.append(NoEscape(r"\begin{figure}[h]\centering\includegraphics[width=0.8"
                                     r"\linewidth]{" + os.path.basename(path) + r"}\caption{"))
                 doc.append(text(getattr(f, "caption", "")))

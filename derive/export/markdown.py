@@ -12,6 +12,7 @@ from urllib.parse import quote
 
 import jinja2
 
+from derive.export import plots
 from derive.export.view import view
 from derive.export.resources import template_dir
 from derive.sheet.units import format_eng
@@ -75,11 +76,11 @@ def _figures(record, output: Optional[str]):
         figs = []
         for f in r.extra.get("figures") or []:
             path = None
-            if output and hasattr(f, "draw"):
+            if output and plots.can_draw(f):
                 stem = os.path.splitext(os.path.basename(output))[0]
                 name = "".join(ch if ch.isalnum() or ch in "-_" else "-" for ch in f.name)
                 file = f"{stem}-{name}.png"
-                f.draw(os.path.join(os.path.dirname(os.path.abspath(output)), file))
+                plots.draw(f, os.path.join(os.path.dirname(os.path.abspath(output)), file))
                 path = quote(file)      # a link target: no space, bracket or parenthesis
             figs.append({"caption": getattr(f, "caption", ""), "path": path})
         out[i] = figs

@@ -1,7 +1,8 @@
 """Expressions to text: the plain string form of the JSON record, and LaTeX.
 
 The string form uses names, numbers, ``+ - * /``, ``**``, parentheses and ``sqrt(...)``
-only, so any reader can parse it back with a small expression grammar.
+only, so any reader can parse it back with a small expression grammar; it belongs to the
+form stage (:mod:`derive.forms.text`) and is re-exported here.
 
 >>> import sympy
 >>> a, b = sympy.symbols('div1_Rt R_load')
@@ -16,25 +17,9 @@ import re
 
 import sympy
 from sympy.printing.latex import LatexPrinter
-from sympy.printing.str import StrPrinter
 
 from derive.sheet.quantities import QUANTITIES
-
-
-class _TextPrinter(StrPrinter):
-    def _print_ImaginaryUnit(self, expr):
-        return "sqrt(-1)"
-
-    def _print_Infinity(self, expr):
-        raise ValueError("infinite result")
-
-    _print_ComplexInfinity = _print_Infinity
-    _print_NegativeInfinity = _print_Infinity
-
-
-def to_text(expr) -> str:
-    """The JSON record's ``expr`` string."""
-    return _TextPrinter().doprint(expr)
+from derive.forms.text import to_text      # the plain-text form, re-exported for exporters
 
 
 _SPLIT = re.compile(r"^([A-Za-z]+)_?([A-Za-z0-9]*)$")

@@ -17,7 +17,7 @@ from derive.sheet import quantities
 from derive.solver import convert as edge
 
 
-def _entry_expr(system, p):
+def entry_expr(system, p):
     """A ring polynomial entry as a sympy expression in circuit symbols (1/R for recips)."""
     vals = [1 / v.expr if v.kind == "recip" else v.expr for v in system.vars]
     return edge.poly_expr(p, vals)
@@ -111,19 +111,18 @@ def bordered_entries(system, col: dict, row: dict):
     ent = {}
     for i, r in enumerate(system.A.rows):
         for j, v in r.items():
-            ent[(i, j)] = _entry_expr(system, v)
+            ent[(i, j)] = entry_expr(system, v)
     n = system.n
     for i, v in col.items():
-        ent[(i, n)] = _entry_expr(system, v) if not isinstance(v, int) else sympy.Integer(v)
+        ent[(i, n)] = entry_expr(system, v) if not isinstance(v, int) else sympy.Integer(v)
     for j, v in row.items():
-        ent[(n, j)] = _entry_expr(system, v) if not isinstance(v, int) else sympy.Integer(v)
+        ent[(n, j)] = entry_expr(system, v) if not isinstance(v, int) else sympy.Integer(v)
     return ent
 
 
 def quantity_sequence(ctx, req, name):
     """(sequence, final expression, value at nominal) for a port/branch quantity."""
-    from derive.forms.select import system_of
-    system = system_of(ctx)
+    system = ctx.system()
     base = quantities.twin(name)
     port = ctx.port(req.port) if req.port else None
     reserved = set(ctx.circuit.symbols)
@@ -146,7 +145,7 @@ def quantity_sequence(ctx, req, name):
         f = system.through(req.element)
         b = system.rhs()
         seq, final = eliminate(bordered_entries(system, b, f.coef), system.n, reserved)
-        final = _entry_expr(system, f.const) - final if not isinstance(f.const, int) else -final
+        final = entry_expr(system, f.const) - final if not isinstance(f.const, int) else -final
     else:
         raise KeyError(name)
     return seq, final, evaluate(seq, final, ctx.nominal)

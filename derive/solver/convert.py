@@ -8,6 +8,7 @@ and builds the sympy expression. :func:`value_at` evaluates exactly at nominal v
 """
 from __future__ import annotations
 
+import math
 from fractions import Fraction
 
 import flint
@@ -178,6 +179,20 @@ def exact_number(v):
         return None
     c = complex(sympy.N(v, 30))
     return c.real if c.imag == 0 else c
+
+
+def finite_float(v):
+    """A value at the edge as a finite real float, or None: None stays None, a complex
+    number with a nonzero imaginary part and an infinite or NaN value become None (the
+    record's numbers are finite reals or null)."""
+    if v is None:
+        return None
+    if isinstance(v, complex):
+        if v.imag != 0:
+            return None
+        v = v.real
+    v = float(v)
+    return v if math.isfinite(v) else None
 
 
 def value_at(ratio, nominal: dict):
