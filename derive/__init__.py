@@ -36,8 +36,36 @@ class Record:
         return record_dict(self.circuit, self.results)
 
     def to_markdown(self, template_dir: Optional[str] = None) -> str:
+        """The Markdown record (figures are not drawn: their captions stay)."""
         from derive.export.markdown import record_markdown
         return record_markdown(self, template_dir)
+
+    def to_latex(self) -> str:
+        """The LaTeX source of the record."""
+        from derive.export.formats import render
+        return render(self, "tex")
+
+    def to_pdf(self) -> bytes:
+        """The PDF record (needs TeX Live's ``latexmk`` or ``pdflatex``)."""
+        from derive.export.formats import render
+        return render(self, "pdf")
+
+    def to_code(self, language: str = "c") -> str:
+        """The requested closed forms and inverted formulas as C99 (``"c"``) or Python."""
+        from derive.export.formats import render_code
+        files = render_code(self, language)
+        return files["<stdout>"]
+
+    def __repr__(self) -> str:
+        sheet = getattr(self.circuit, "sheet", None)
+        name = getattr(sheet, "title", None) or getattr(sheet, "filename", None) or "sheet"
+        asked = "; ".join(r.request.text for r in self.results)
+        return f"<Record of {name!r}: {len(self.results)} result(s): {asked}>"
+
+    def _repr_markdown_(self) -> str:
+        """Jupyter: the Markdown record with its figures inline (PNG data URIs)."""
+        from derive.export.markdown import record_markdown
+        return record_markdown(self, inline_figures=True)
 
 
 def parse(text: str, filename: str = "<sheet>"):

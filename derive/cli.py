@@ -101,6 +101,8 @@ def _terms(text: str) -> float:
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="derive", description="Exact derivations for linear "
                                 "circuits, written up as design-calculation records.")
+    from derive import __version__
+    p.add_argument("--version", action="version", version=f"derive {__version__}")
     sub = p.add_subparsers(dest="command", required=True)
 
     def common(sp):

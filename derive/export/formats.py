@@ -19,25 +19,16 @@ def render(record, fmt: str, args=None):
             where = f" (line {e.lineno})" if getattr(e, "lineno", None) else ""
             raise DeriveError(f"the record template cannot be used{where}: {e}") from None
     if fmt in ("tex", "pdf"):
-        try:
-            from derive.export import latex as export_latex
-        except ImportError:
-            raise DeriveError("LaTeX and PDF records are not available yet")
+        from derive.export import latex as export_latex
         return export_latex.render(record, fmt, args)
     raise DeriveError(f"unknown format {fmt!r}")
 
 
 def render_code(record, lang: str, args=None) -> dict:
-    try:
-        from derive.export import code as export_code
-    except ImportError:
-        raise DeriveError("code generation is not available yet")
+    from derive.export import code as export_code
     return export_code.render(record, lang, args)
 
 
 def check_lines(record):
-    try:
-        from derive.analyses import claims
-    except ImportError:
-        raise DeriveError("claim checks are not available yet")
+    from derive.analyses import claims
     return claims.check_lines(record)

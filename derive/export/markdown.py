@@ -69,14 +69,28 @@ def md_text(t, line_start: bool = True) -> str:
     return text
 
 
-def _figures(record, output: Optional[str]):
-    """Draw figures as PNG files beside ``output``; a dict per figure for the template."""
+def _inline(figure) -> str:
+    """``figure`` drawn as a PNG ``data:`` URI (for a notebook, which has no file beside it)."""
+    import base64
+    import tempfile
+    with tempfile.TemporaryDirectory(prefix="derive-fig-") as work:
+        path = os.path.join(work, "figure.png")
+        plots.draw(figure, path)
+        with open(path, "rb") as fh:
+            return "data:image/png;base64," + base64.b64encode(fh.read()).decode("ascii")
+
+
+def _figures(record, output: Optional[str], inline: bool = False):
+    """Draw figures as PNG files beside ``output`` (or inline as data URIs); a dict per
+    figure for the template."""
     out = {}
     for i, r in enumerate(record.results):
         figs = []
         for f in r.extra.get("figures") or []:
             path = None
-            if output and plots.can_draw(f):
+            if inline and plots.can_draw(f):
+                path = _inline(f)
+            elif output and plots.can_draw(f):
                 stem = os.path.splitext(os.path.basename(output))[0]
                 name = "".join(ch if ch.isalnum() or ch in "-_" else "-" for ch in f.name)
                 file = f"{stem}-{name}.png"
@@ -88,10 +102,12 @@ def _figures(record, output: Optional[str]):
 
 
 def record_markdown(record, template_dir_override: Optional[str] = None,
-                    output: Optional[str] = None) -> str:
+                    output: Optional[str] = None, inline_figures: bool = False) -> str:
+    """The Markdown record; figures drawn beside ``output`` as PNG files, or embedded as data
+    URIs with ``inline_figures``, or left as captions."""
     env = environment(template_dir_override)
     v = view(record)
-    figs = _figures(record, output)
+    figs = _figures(record, output, inline_figures)
     for i, r in enumerate(v["results"]):
         r["figures"] = figs[i]
     return env.get_template("record.md.j2").render(v=v, record=v, circuit=record.circuit)

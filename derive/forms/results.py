@@ -9,6 +9,7 @@ from typing import Optional
 import sympy
 
 from derive.circuit.build import Circuit, key_of
+from derive.sheet.units import format_eng
 from derive.solver.cramer import Solver
 from derive.solver.stamping import System
 
@@ -26,6 +27,17 @@ class QuantityResult:
     form: str = "expanded"              # 'expanded', 'series-parallel', 'sequence'
     notes: list = field(default_factory=list)
 
+    def __repr__(self) -> str:
+        value = "no value" if self.value is None else format_eng(self.value, self.unit)
+        return f"<{self.name} = {_short(self.expr)} ({value}, {self.form})>"
+
+    def _repr_latex_(self) -> str:
+        """Jupyter: the closed form and its value at nominal."""
+        rhs = sympy.latex(self.expr) if self.expr is not None else r"\text{(sequence)}"
+        value = "" if self.value is None else \
+            r" \approx \text{" + format_eng(self.value, self.unit) + "}"
+        return f"$\\mathrm{{{self.name}}} = {rhs}{value}$"
+
 
 @dataclass
 class RequestResult:
@@ -34,6 +46,23 @@ class RequestResult:
     steps: list = field(default_factory=list)
     extra: dict = field(default_factory=dict)
     notes: list = field(default_factory=list)   # said with the result in every record (str)
+
+    def __repr__(self) -> str:
+        names = ", ".join(self.quantities) or "no quantities"
+        return f"<result of {getattr(self.request, 'text', '?')!r}: {names}; " \
+               f"{len(self.steps)} step(s)>"
+
+    def _repr_markdown_(self) -> str:
+        """Jupyter: the request and one line per quantity (closed form and value)."""
+        lines = [f"**{getattr(self.request, 'text', '')}**", ""]
+        lines += [f"- {q._repr_latex_()}" for q in self.quantities.values()]
+        lines += [f"- {n}" for n in self.notes]
+        return "\n".join(lines) + "\n"
+
+
+def _short(expr, limit: int = 60) -> str:
+    text = str(expr)
+    return text if len(text) <= limit else text[: limit - 1] + "…"
 
 
 @dataclass
