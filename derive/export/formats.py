@@ -16,12 +16,29 @@ def render(record, fmt: str, args=None):
         try:
             return record_markdown(record, template, getattr(args, "output", None))
         except jinja2.TemplateError as e:      # a user's --template folder
-            where = f" (line {e.lineno})" if getattr(e, "lineno", None) else ""
-            raise DeriveError(f"the record template cannot be used{where}: {e}") from None
+            raise DeriveError(f"the record template cannot be used{_where(e)}: {e}") \
+                from None
     if fmt in ("tex", "pdf"):
         from derive.export import latex as export_latex
         return export_latex.render(record, fmt, args)
     raise DeriveError(f"unknown format {fmt!r}")
+
+
+def _where(e) -> str:
+    """Which template and line a jinja2 error comes from (a syntax error knows it; a runtime
+    error, such as the sandbox refusing an attribute, is found in the traceback)."""
+    name, line = getattr(e, "filename", None) or getattr(e, "name", None), \
+        getattr(e, "lineno", None)
+    if line is None:
+        tb = e.__traceback__
+        while tb is not None:
+            fname = tb.tb_frame.f_code.co_filename
+            if fname.endswith(".j2"):
+                name, line = fname, tb.tb_lineno
+            tb = tb.tb_next
+    if name and line:
+        return f" ({name}, line {line})"
+    return f" (line {line})" if line else ""
 
 
 def render_code(record, lang: str, args=None) -> dict:

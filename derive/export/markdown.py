@@ -11,6 +11,7 @@ from typing import Optional
 from urllib.parse import quote
 
 import jinja2
+from jinja2.sandbox import ImmutableSandboxedEnvironment
 
 from derive.export import plots
 from derive.export.view import view
@@ -19,10 +20,14 @@ from derive.sheet.units import format_eng
 
 
 def environment(extra_dir: Optional[str] = None) -> jinja2.Environment:
+    """The template environment: sandboxed (a template, which may be a user's ``--template``
+    folder shared by a colleague, can read the record's view but cannot reach Python
+    internals, change objects or run code; jinja2's immutable sandbox) and strict (an
+    undefined name is an error, not an empty string)."""
     dirs = ([extra_dir] if extra_dir else []) + [str(template_dir())]
-    env = jinja2.Environment(loader=jinja2.FileSystemLoader(dirs),
-                             undefined=jinja2.StrictUndefined, autoescape=False,
-                             keep_trailing_newline=True, trim_blocks=True, lstrip_blocks=True)
+    env = ImmutableSandboxedEnvironment(
+        loader=jinja2.FileSystemLoader(dirs), undefined=jinja2.StrictUndefined,
+        autoescape=False, keep_trailing_newline=True, trim_blocks=True, lstrip_blocks=True)
     env.filters["eng"] = lambda v, unit=None: "—" if v is None else format_eng(v, unit)
     env.filters["md"] = md_text
     env.filters["txt"] = md_text
