@@ -78,8 +78,8 @@ def test_quadratic_roots_against_numpy():
 def test_substituting_back_is_checked_exactly():
     from derive.analyses.inversion import _sub_back
     expr = Rt * Vref / (R1 + Rt)
-    assert _sub_back(expr, Rt, R1 * vth / (Vref - vth), vth)
-    assert not _sub_back(expr, Rt, R1 * vth / (Vref + vth), vth)
+    assert _sub_back(expr, Rt, R1 * vth / (Vref - vth), vth)[1]
+    assert not _sub_back(expr, Rt, R1 * vth / (Vref + vth), vth)[1]
 
 
 def test_solve_for_symbol_not_in_quantity():

@@ -270,6 +270,36 @@ def test_a_wrong_derivative_is_caught(monkeypatch):
             assert sympy.simplify(e.rhs - e.check) == 0
 
 
+def test_a_wrong_derivative_of_a_large_form_is_caught_by_forward_differentiation(monkeypatch):
+    """Large closed forms get no sympy derivative to compare with: their derivative steps are
+    checked by forward-mode differentiation in exact rationals (Program.dual). Forced here
+    on a small sheet (RAW_OPS = 0) with a wrong quotient-rule derivative."""
+    monkeypatch.setattr(sensitivity, "RAW_OPS", 0)
+    rec = derive.derive_text(SENS)
+    st = [s for s in rec.results[0].steps if s.kind == "sensitivity"][0]
+    assert st.verified and st.equations
+    assert all(e.verified_by == "points" and e.check is None for e in st.equations)
+    # every verified derivative is right (sympy's own derivative as the oracle, in the test)
+    R1, R2, V = sympy.symbols("R1 R2 V")
+    vth = R2 * V / (R1 + R2)
+    for e in st.equations:
+        x = sympy.Symbol(str(e.lhs).split("/d")[-1]) if str(e.lhs).startswith("d") else None
+        if x is not None:
+            assert sympy.simplify(e.rhs - sympy.diff(vth, x)) == 0
+
+    orig = sensitivity._rational_derivative
+
+    def wrong(e, x, **kw):
+        r = orig(e, x, **kw)
+        if r is None or r == sensitivity.TOO_LONG:
+            return r
+        return 2 * r[0], (2 * r[1] if r[1] is not None else None)
+    monkeypatch.setattr(sensitivity, "_rational_derivative", wrong)
+    rec = derive.derive_text(SENS)
+    st = [s for s in rec.results[0].steps if s.kind == "sensitivity"][0]
+    _refused(rec, 0, st)
+
+
 # ------------------------------------------------------------------ inversion
 def test_a_wrong_inverted_formula_is_caught(monkeypatch):
     orig = inversion.polynomial_roots

@@ -14,7 +14,6 @@ from __future__ import annotations
 import random
 
 import sympy
-from derive.sheet.expressions import as_expr
 
 from derive.forms import results as analysis
 from derive.circuit import dimensions
@@ -24,8 +23,10 @@ from derive.analyses.inversion import quantity_of
 from derive.forms.text import to_text
 from derive.analyses.inversion import derived_equation
 from derive.derivation.steps import Equation, Step
+from derive.solver import rational
 
 POINTS = 12
+SHOWN = 160        # longest ratio written out in a diagnosis (characters)
 
 
 def claim_expr(ctx, req) -> sympy.Expr:
@@ -34,73 +35,56 @@ def claim_expr(ctx, req) -> sympy.Expr:
     return e.xreplace(ctx.numeric_subs())
 
 
-def _rational_limit(e, x, at_infinity: bool):
-    """The limit of a rational function of ``x`` at 0 or infinity: an expression, or
-    ``sympy.oo`` when it diverges; None when ``e`` is not rational in ``x``.
-
-    >>> x, a = sympy.symbols('x a')
-    >>> _rational_limit(a*x/(a + x), x, True), _rational_limit(a*x/(a + x), x, False)
-    (a, 0)
-    """
-    try:
-        n, d = sympy.fraction(sympy.cancel(sympy.together(e)))
-        pn, pd = sympy.Poly(n, x), sympy.Poly(d, x)
-    except sympy.PolynomialError:
-        return None
-    if pn.is_zero:
-        return sympy.Integer(0)
-    if at_infinity:
-        kn, kd = pn.degree(), pd.degree()
-        cn, cd = pn.LC(), pd.LC()
-    else:
-        kn, kd = min(m[0] for m in pn.monoms()), min(m[0] for m in pd.monoms())
-        cn, cd = pn.coeff_monomial(x**kn), pd.coeff_monomial(x**kd)
-    if (kn > kd) == at_infinity and kn != kd:
-        return sympy.oo
-    if kn != kd:
-        return sympy.Integer(0)
-    return sympy.factor(as_expr(cn) / as_expr(cd))
-
-
 def _degenerate(v) -> bool:
-    return v is None or v == sympy.oo or v == 0
+    return v is None or v is rational.INFINITE or v.is_zero()
 
 
 def diagnose(q_expr, claim, name: str) -> str:
-    """What an engineer can use: a constant factor, a sign, or single-symbol limits.
+    """What an engineer can use: a constant factor, a sign, or single-symbol limits (each
+    limit of a rational function at 0 or infinity read off its extreme-degree terms, in
+    python-flint).
 
     >>> a, b, c = sympy.symbols('Ra Rb Rc')
     >>> diagnose(a*b*c/(a*b + b*c + a*c), a*b/(a + b), 'rth')
     'agrees with rth when Rc → ∞ (the claim leaves out Rc)'
+    >>> diagnose(a*b/(a + b), -a*b/(a + b), 'rth')
+    'differs in sign: the claim is -rth'
     """
-    r = sympy.cancel(sympy.together(claim / q_expr))
-    if r.is_number:
-        if r == -1:
+    try:
+        fq, fc = rational.common([q_expr, claim])
+    except (rational.NotPolynomial, ZeroDivisionError):
+        return "not a rational function of its symbols: no diagnosis by limits"
+    if fq.is_zero():
+        return f"{name} is identically zero"
+    r = fc / fq
+    if r.is_constant():
+        k = r.to_sympy()
+        if k == -1:
             return f"differs in sign: the claim is -{name}"
-        return f"differs by a factor {to_text(r)}: the claim is {to_text(r)}·{name}"
+        return f"differs by a factor {to_text(k)}: the claim is {to_text(k)}·{name}"
     agree, relative = [], []
-    syms = sorted(q_expr.free_symbols | claim.free_symbols, key=lambda s: s.name)
-    for x in syms:
+    for x in fq.symbols:
         for at_inf, label in ((False, "0"), (True, "∞")):
-            lq = _rational_limit(q_expr, x, at_inf)
-            lc = _rational_limit(claim, x, at_inf)
-            if lq is None or lc is None:
-                continue
-            if not _degenerate(lq) and lc != sympy.oo:
-                if sympy.cancel(sympy.together(lc - lq)) == 0:
+            lq = fq.limit(x, at_inf)
+            lc = fc.limit(x, at_inf)
+            if not _degenerate(lq) and lc is not rational.INFINITE:
+                if lc == lq:
                     missing = " (the claim leaves out " + x.name + ")" \
                         if x not in claim.free_symbols else ""
                     agree.append(f"{x.name} → {label}{missing}")
-            elif _rational_limit(r, x, at_inf) == 1:
-                relative.append(f"{x.name} → {label}")
+            else:
+                lr = r.limit(x, at_inf)
+                if lr is not rational.INFINITE and lr == 1:
+                    relative.append(f"{x.name} → {label}")
+    ratio = to_text(r.to_sympy())
+    ratio = f"claim/{name} = {ratio}" if len(ratio) <= SHOWN else \
+        f"claim/{name} (a ratio of {len(r.num)}- and {len(r.den)}-term polynomials)"
     if agree:
         return f"agrees with {name} when " + " or when ".join(agree)
     if relative:
         return (f"agrees with {name} only approximately: the relative error vanishes when "
-                + " or when ".join(relative) + f" (claim/{name} = "
-                f"{to_text(sympy.factor(r))})")
-    return (f"no single symbol sent to 0 or ∞ makes it agree, and claim/{name} = "
-            f"{to_text(sympy.factor(r))} is not constant")
+                + " or when ".join(relative) + f" ({ratio})")
+    return f"no single symbol sent to 0 or ∞ makes it agree, and {ratio} is not constant"
 
 
 def _point(ctx, syms, rnd, use_nominal: bool) -> dict:
@@ -187,7 +171,11 @@ def check_request(ctx, req) -> analysis.RequestResult:
                   (" (the quantity is the exact ratio of the nodal solution)"
                    if q.ratio is not None else ""))
         raw = claim - q_expr
-        diff = sympy.factor(sympy.cancel(sympy.together(raw)))
+        try:                                  # cancelled and factored in python-flint
+            (fd,) = rational.common([raw])
+            diff = fd.to_sympy()
+        except (rational.NotPolynomial, ZeroDivisionError):     # roots: sympy
+            diff = sympy.factor(sympy.cancel(sympy.together(raw)))
         holds = diff == 0
         steps.append(Step(f"The difference claim - {name} cancels " +
                           ("to zero exactly." if holds else "to a non-zero expression."),

@@ -21,7 +21,7 @@ from derive.circuit.build import key_of
 from derive.errors import SheetError
 from derive.sheet import quantities
 from derive.forms.text import to_text
-from derive.derivation.steps import Equation, Step
+from derive.derivation.steps import Equation, Step, compare
 
 
 def quantity_of(ctx, req):
@@ -62,10 +62,10 @@ def polynomial_roots(poly: sympy.Poly):
     d = poly.degree()
     cs = poly.all_coeffs()
     if d == 1:
-        return [sympy.factor(-cs[1] / cs[0])], "linear"
+        return [edge.factor(-cs[1] / cs[0])], "linear"
     if d == 2:
         a, b, c = cs
-        disc = sympy.factor(b**2 - 4*a*c)
+        disc = edge.factor(b**2 - 4*a*c)
         r = sympy.sqrt(disc)
         return [(-b + r) / (2*a), (-b - r) / (2*a)], "quadratic formula"
     found = sympy.roots(poly, multiple=True)
@@ -81,16 +81,21 @@ def _num(e):
     return v
 
 
-def _sub_back(expr, x, root, q) -> bool:
-    """Whether ``expr`` with ``x`` replaced by ``root`` is ``q`` identically (exact; an
-    error while checking counts as not verified)."""
+def _sub_back(expr, x, root, q) -> tuple:
+    """(method, holds, points): whether ``expr`` with ``x`` replaced by ``root`` is ``q``
+    identically, by :func:`derive.derivation.steps.compare` with ``x`` a named intermediate
+    standing for the root (exact rational evaluation at random points, or exact sympy
+    substitution where the root has radicals). An error while checking counts as not
+    verified.
+
+    >>> a, b, x, q = sympy.symbols('a b x q')
+    >>> _sub_back(a*x/(b + x), x, b*q/(a - q), q)[:2]
+    ('points', True)
+    """
     try:
-        diff = sympy.together(expr.xreplace({x: root}) - q)
-        if not diff.has(sympy.Pow) or all(p.exp.is_Integer for p in diff.atoms(sympy.Pow)):
-            return sympy.cancel(diff) == 0
-        return sympy.simplify(sympy.radsimp(diff)) == 0
+        return compare(expr, q, {x: root})
     except Exception:
-        return False
+        return None, False, None
 
 
 def derived_equation(sym, expr, fq) -> Equation:
@@ -106,7 +111,7 @@ def derived_equation(sym, expr, fq) -> Equation:
 def _chosen(x, root, listed) -> Equation:
     """The chosen root again: verified as its root step was (substituted back exactly)."""
     eq = Equation(x, root)
-    eq.mark("exact", listed["verified"])
+    eq.mark(listed["verified_by"] or "points", listed["verified"], listed["points"])
     return eq
 
 
@@ -121,12 +126,12 @@ def _critical(poly, x, q, nominal):
     for e in exprs:
         e = sympy.together(as_expr(e))
         n_sym, _ = sympy.fraction(e)
-        for fac, _m in sympy.factor_list(n_sym)[1]:
+        for fac, _m in edge.factor_list(n_sym)[1]:
             if q not in fac.free_symbols:
                 continue
             pq = sympy.Poly(fac, q)
             if pq.degree() == 1:
-                sym = sympy.factor(-pq.all_coeffs()[1] / pq.all_coeffs()[0])
+                sym = edge.factor(-pq.all_coeffs()[1] / pq.all_coeffs()[0])
                 v = sym.xreplace(nominal)
                 if v.is_number and v.is_real:
                     pts[sympy.nsimplify(v)] = sym
@@ -182,8 +187,8 @@ def solve_request(ctx, req) -> analysis.RequestResult:
         raise SheetError(f"{name} at {req.port} does not depend on {req.solve_for}{why}",
                          loc.line, loc.col)
     q = measured_symbol(ctx, name)
-    num, den = sympy.fraction(sympy.cancel(sympy.together(expr)))
-    poly = sympy.Poly(sympy.expand(num - q * den), x)
+    num, den = edge.cancelled(expr)
+    poly = sympy.Poly(num - q * den, x)
     roots, method = polynomial_roots(poly)
     if not roots:
         raise SheetError(f"{name} is a degree-{poly.degree()} polynomial in {req.solve_for}; no "
@@ -203,20 +208,21 @@ def solve_request(ctx, req) -> analysis.RequestResult:
                             check=(expr - q) * den)], kind="inversion")]
     listed, chosen = [], None
     for i, r in enumerate(roots):
-        ok = _sub_back(expr, x, r, q)
+        how, ok, used = _sub_back(expr, x, r, q)
         v = _num(r.xreplace(nominal)) if have_nominal else None
         real_pos = v is not None and abs(v.imag) <= 1e-20 * max(1.0, abs(v.real)) and v.real > 0
         matches = info.nominal is not None and v is not None and \
             abs(v - float(info.nominal)) <= 1e-9 * abs(float(info.nominal))
         listed.append({"expr": r, "latex": r,
                        "value": v.real if v is not None and real_pos else None,
-                       "real_positive_at_nominal": bool(real_pos), "verified": ok})
+                       "real_positive_at_nominal": bool(real_pos), "verified": ok,
+                       "verified_by": how, "points": used})
         if real_pos and (chosen is None or matches):
             chosen = i
         eq = Equation(x, r)
         back = Equation(q, expr.xreplace({x: r}))
-        back.mark("exact", ok)
-        eq.mark("exact", ok)        # the root is checked by substituting it back
+        back.mark(how or "points", ok, used)
+        eq.mark(how or "points", ok, used)    # the root is checked by substituting it back
         steps.append(Step(f"Root {i + 1} ({method}); substituting it back into the closed form "
                           f"gives {q} identically.", [eq, back], [req.solve_for],
                           kind="inversion"))
@@ -226,10 +232,10 @@ def solve_request(ctx, req) -> analysis.RequestResult:
         d["chosen"] = i == pick
     conditions = []
     rnum, rden = sympy.fraction(sympy.together(root))
-    for fac, _m in sympy.factor_list(rden)[1]:
+    for fac, _m in edge.factor_list(rden)[1]:
         if fac.free_symbols:
             conditions.append(f"{to_text(fac)} != 0")
-    for fac, _m in sympy.factor_list(den)[1]:
+    for fac, _m in edge.factor_list(den)[1]:
         if fac.free_symbols:
             conditions.append(f"{to_text(fac)} != 0 (the closed form of {name} is defined)")
     rng = valid_range(root, poly, x, q, nominal) if have_nominal else []

@@ -260,6 +260,7 @@ def _rational_cached(e):
     return r, _RATIONAL_MEMO["e"][2]
 
 
+RAW_OPS = 150           # above this size, no sympy derivative is taken for comparison
 TOO_LONG = "too long"    # _rational_derivative: the expanded derivative is longer than the budget
 
 
@@ -328,6 +329,45 @@ def _agree_how(a, b, points: int = 3, seed: int = 5):
     return used > 0, (used if syms else None)
 
 
+def _dual_checked(name, q_expr, s, points: int = 3, seed: int = 5) -> list:
+    """The equations dQ/dx = ... and S_x = ... checked by forward-mode differentiation of Q
+    in exact rationals (:meth:`derive.derivation.steps.Program.dual`) at random rational
+    points: an independent computation of the derivative, not the quotient rule that
+    produced the formulas."""
+    from derive.derivation.steps import ATTEMPTS, NotRational, Program, fmpq_of, random_point
+    import random
+    x = s.symbol
+    e1 = Equation(sympy.Symbol(f"d{name}/d{x}"), s.deriv.final)
+    e2 = Equation(sympy.Symbol(f"S_{x}"), s.normalized)
+    try:
+        q_prog, f_prog = Program([q_expr]), Program([s.deriv.final, s.normalized])
+    except NotRational:
+        return [e1, e2]                 # neither is verified
+    syms = q_prog.symbols() | f_prog.symbols() | {x}
+    rnd = random.Random(seed)
+    used, ok = 0, True
+    for _ in range(ATTEMPTS * points):
+        pt = random_point(rnd, syms)
+        try:
+            (q,) = q_prog.dual(pt, x)
+            d, sn = f_prog.run(pt)
+            if q.a == 0:
+                continue
+            want_s = fmpq_of(pt[x]) * q.b / q.a
+        except ZeroDivisionError:
+            continue
+        if d != q.b or sn != want_s:
+            ok = False
+            break
+        used += 1
+        if used == points:
+            break
+    ok = ok and used > 0
+    for e in (e1, e2):
+        e.mark("points", ok, used if ok else None)
+    return [e1, e2]
+
+
 def _fresh(base: str, taken: set) -> sympy.Symbol:
     name, k = base, 1
     while name in taken:
@@ -344,6 +384,13 @@ def derivative(form: Form, x: sympy.Symbol, taken: Optional[set] = None):
     intermediate that depends on x gets a derivative entry after the original entries.
     """
     if not form.defs:
+        if sympy.count_ops(form.final) > RAW_OPS:
+            fast = _rational_derivative(form.final, x)
+            if fast is not None and fast is not TOO_LONG:
+                # large: the flint quotient rule alone (sympy's own derivative of a large
+                # expression costs more than the rest of the analysis); its step is checked
+                # by forward-mode differentiation in exact rationals instead
+                return Form([], fast[0]), None
         raw = sympy.diff(form.final, x)
         fast = _rational_derivative(form.final, x, budget=len(str(raw)))
         if fast is TOO_LONG:        # raw is the same rational function, shorter than expanded
@@ -503,6 +550,8 @@ def _steps(a: Analysed) -> list:
     eqs = []
     for s in a.sens:
         if s.raw is None:
+            if not a.form.defs and s.deriv.final != 0 and not s.deriv.defs:
+                eqs += _dual_checked(name, a.form.final, s)
             continue
         dsym = sympy.Symbol(f"d{name}/d{s.symbol}")
         e1 = Equation(dsym, s.deriv.final, check=s.raw)

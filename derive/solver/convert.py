@@ -234,3 +234,68 @@ def value_at(ratio, nominal: dict):
     if den == 0:
         return float("inf")
     return float(Fraction(int(num.p), int(num.q)) / Fraction(int(den.p), int(den.q)))
+
+
+def _flint_of(expr, symbols):
+    """A polynomial sympy expression as an ``fmpq_mpoly`` in ``symbols`` (exact)."""
+    ctx = flint.fmpq_mpoly_ctx.get(tuple(f"x{i}" for i in range(len(symbols))) or ("x0",),
+                                   "lex")
+    d = sympy.Poly(expr, *symbols).as_dict() if symbols else {(): sympy.Rational(expr)}
+    out = {}
+    for k, c in d.items():
+        c = sympy.Rational(c)
+        out[k if symbols else (0,)] = flint.fmpq(int(c.p), int(c.q))
+    return ctx.from_dict(out) if out else ctx.constant(0)
+
+
+def factor_list(expr) -> tuple:
+    """(content, [(factor, multiplicity)]) of a polynomial sympy expression with rational
+    coefficients, factored by python-flint (much faster than sympy's ``factor_list`` on the
+    polynomials a circuit gives); the factors are sympy expressions.
+
+    >>> a, b = sympy.symbols('a b')
+    >>> factor_list(2*a**2 - 2*b**2)
+    (2, [(a - b, 1), (a + b, 1)])
+    """
+    expr = sympy.expand(expr)
+    symbols = sorted(expr.free_symbols, key=str)
+    p = _flint_of(expr, symbols)
+    if p.is_zero():
+        return sympy.Integer(0), []
+    content, factors = p.factor()
+    out = [(poly_expr(f, symbols), e) for f, e in factors]
+    out.sort(key=lambda fe: sympy.default_sort_key(fe[0]))
+    return sympy.Rational(int(content.p), int(content.q)), out
+
+
+def _cancelled(expr):
+    num, den = sympy.fraction(sympy.together(expr))
+    symbols = sorted(sympy.Add(num, den).free_symbols, key=str)
+    n, d = _flint_of(sympy.expand(num), symbols), _flint_of(sympy.expand(den), symbols)
+    g = n.gcd(d)
+    if not g.is_one() and not g.is_zero():
+        n, d = n / g, d / g
+    return n, d, symbols
+
+
+def cancelled(expr) -> tuple:
+    """(numerator, denominator) of a rational function of symbols, expanded, with their
+    greatest common divisor cancelled by python-flint (``sympy.cancel`` without its cost).
+
+    >>> a, b = sympy.symbols('a b')
+    >>> cancelled((a**2 - b**2)/(a*b + b**2))
+    (a - b, b)
+    """
+    n, d, symbols = _cancelled(expr)
+    return poly_expr(n, symbols), poly_expr(d, symbols)
+
+
+def factor(expr) -> sympy.Expr:
+    """A rational function of symbols, cancelled and factored by python-flint.
+
+    >>> a, b = sympy.symbols('a b')
+    >>> factor((a**2 - b**2)/(a*b + b**2))
+    (a - b)/b
+    """
+    n, d, symbols = _cancelled(expr)
+    return factored_expr(n, symbols) / factored_expr(d, symbols)
