@@ -153,3 +153,24 @@ def test_rational_form_high_pass_and_roots():
     L = sym("L")
     g = frequency.rational_form(1 / (1 + s**2 * L * C))       # lossless: Q infinite
     assert g["Q"] is None and sympy.simplify(g["w0"] - 1 / sympy.sqrt(L * C)) == 0
+
+
+def test_w0_q_sensitivities_against_sympy_derivatives():
+    """The flint route (S of w0, Q from S of the reduced denominator's coefficients) against
+    sympy's own derivative of the displayed w0 and Q, and the unity-gain Sallen-Key closed
+    forms (common practice, no source): S(w0) = -1/2 for every part; S(Q) = +1/2 for C1,
+    -1/2 for C2, (R2 - R1)/(2 (R1 + R2)) for R1."""
+    r = _sk()
+    fr = r[0].extra["frequency"]["gain"]
+    R1, R2, C1, C2 = sympy.symbols("R1 R2 C1 C2")
+    w0 = 1 / sympy.sqrt(R1 * R2 * C1 * C2)
+    Q = sympy.sqrt(R1 * R2 * C1 * C2) / (C2 * (R1 + R2))
+    for key, f in (("w0", w0), ("Q", Q)):
+        got = fr["sensitivity"][key]
+        for x in (R1, R2, C1, C2):
+            want = sympy.simplify(x / f * sympy.diff(f, x))
+            assert sympy.simplify(got[str(x)]["normalized"] - want) == 0, (key, x)
+            nominal = {R1: 10e3, R2: 10e3, C1: 22e-9, C2: 10e-9}
+            assert got[str(x)]["value"] == pytest.approx(float(want.subs(nominal)), abs=1e-12)
+    assert sympy.simplify(fr["sensitivity"]["Q"]["R1"]["normalized"]
+                          - (R2 - R1) / (2 * (R1 + R2))) == 0

@@ -20,6 +20,7 @@ import sympy
 
 from derive.circuit.build import S
 from derive.derivation.steps import Equation, Figure, Step
+from derive.solver import rational
 from derive.sheet.quantities import QUANTITIES
 
 # request words whose results get the frequency annotation (derive.sheet.quantities): with
@@ -39,7 +40,64 @@ def _low(cs):
 
 
 def rational_form(expr) -> dict:
-    """The normalised rational function of ``expr`` in ``s`` (sympy values; see module doc)."""
+    """The normalised rational function of ``expr`` in ``s`` (sympy values; see module doc).
+
+    Cancelled, split into powers of ``s`` and normalised in python-flint; sympy only for the
+    results. Expressions that are not rational functions (roots) take sympy's route."""
+    try:
+        (h,) = rational.common([expr], extra=[S])
+    except (rational.NotPolynomial, ZeroDivisionError):
+        return _rational_form_sympy(expr)
+    nc, dc = h.coefficients(S)
+    m = next(i for i, c in enumerate(nc) if not c.is_zero()) if not h.is_zero() else 0
+    p = next(i for i, c in enumerate(dc) if not c.is_zero())
+    lead = dc[p]
+    nr = [rational.ratio(c, lead, h) for c in nc]
+    dr = [rational.ratio(c, lead, h) for c in dc]
+    ncn, dcn = [r.to_sympy() for r in nr], [r.to_sympy() for r in dr]
+    k = m - p
+    out = {"numerator": ncn, "denominator": dcn, "s_power": k, "k": ncn[m],
+           "dc_gain": ncn[m] if k == 0 else (sympy.Integer(0) if k > 0 else None),
+           "poles": None, "zeros": None, "w0": None, "Q": None, "w_corner": None,
+           "_reduced": dr[p:]}
+    red = dr[p:]                   # reduced denominator 1 + a1 s + ...
+    if len(red) == 2:
+        out["w_corner"] = red[1].inverse().to_sympy()
+    elif len(red) == 3 and not red[2].is_zero():
+        a2 = red[2].to_sympy()
+        out["w0"] = 1 / sympy.sqrt(a2)
+        out["Q"] = sympy.sqrt(a2) / dcn[p + 1] if not red[1].is_zero() else None
+    if len(dc) - 1 <= 2:
+        out["poles"] = _roots_exact(dr)
+    if len(nc) - 1 <= 2:
+        out["zeros"] = _roots_exact(nr)
+    return out
+
+
+def _roots_exact(cs):
+    """:func:`_roots` on flint coefficients: the root of a linear factor and the
+    discriminant of a quadratic taken in flint."""
+    cs = list(cs)
+    while cs and cs[-1].is_zero():
+        cs.pop()
+    out = []
+    while cs and cs[0].is_zero():
+        out.append(sympy.Integer(0))
+        cs.pop(0)
+    if len(cs) == 2:
+        out.append((-cs[0] / cs[1]).to_sympy())
+    elif len(cs) == 3:
+        c0, c1, c2 = cs
+        disc = (c1 * c1 + -4 * c0 * c2).to_sympy()
+        b, a = c1.to_sympy(), c2.to_sympy()
+        for sg in (-1, 1):
+            out.append((-b + sg * sympy.sqrt(disc)) / (2 * a))
+    elif len(cs) > 3:
+        return None
+    return out
+
+
+def _rational_form_sympy(expr) -> dict:
     num, den = sympy.fraction(sympy.cancel(sympy.together(expr)))
     nc, dc = _coeffs(num), _coeffs(den)
     m, p = _low(nc), _low(dc)
@@ -51,7 +109,8 @@ def rational_form(expr) -> dict:
            "k": sympy.factor(nc[m] / lead),
            "dc_gain": (sympy.factor(nc[m] / lead) if k == 0 else (sympy.Integer(0) if k > 0
                                                                    else None)),
-           "poles": None, "zeros": None, "w0": None, "Q": None, "w_corner": None}
+           "poles": None, "zeros": None, "w0": None, "Q": None, "w_corner": None,
+           "_reduced": None}
     red = dcn[p:]                  # reduced denominator 1 + a1 s + ...
     if len(red) == 2:
         out["w_corner"] = sympy.factor(1 / red[1])
@@ -104,8 +163,34 @@ def sensitivities(expr, nominal) -> dict:
     out = {}
     for x in sorted(expr.free_symbols - {S}, key=str):
         e = sympy.simplify(x / expr * sympy.diff(expr, x))
-        v = e.xreplace(nominal)
-        out[str(x)] = {"expr": e, "value": float(v) if v.is_number and v.is_real else None}
+        out[str(x)] = _sens_entry(e, nominal)
+    return out
+
+
+def _sens_entry(e, nominal) -> dict:
+    v = e.xreplace(nominal)
+    return {"expr": e, "value": float(v) if v.is_number and v.is_real else None}
+
+
+def reduced_sensitivities(key: str, red, nominal) -> dict:
+    """Normalised sensitivities of ω0, Q or ωc from those of the reduced denominator's
+    coefficients a1, a2 (flint :class:`~derive.solver.rational.Rational`), exactly:
+    S(ωc) = -S(a1), S(ω0) = -S(a2)/2, S(Q) = S(a2)/2 - S(a1) (ωc = 1/a1, ω0 = a2^(-1/2),
+    Q = a2^(1/2)/a1)."""
+    a1 = red[1]
+    a2 = red[2] if len(red) > 2 else None
+    syms = sorted({x for r in red[1:] for x in r.to_sympy().free_symbols} - {S}, key=str)
+    half = sympy.Rational(1, 2)
+    out = {}
+    for x in syms:
+        s1 = a1.sensitivity(x)
+        if key == "w_corner":
+            e = (-s1).to_sympy()
+        elif key == "w0":
+            e = (a2.sensitivity(x) * half).to_sympy() * -1
+        else:
+            e = (a2.sensitivity(x) * half + -s1).to_sympy()
+        out[str(x)] = _sens_entry(e, nominal)
     return out
 
 
@@ -143,12 +228,14 @@ def analyse_quantity(q, nominal) -> tuple:
     sens = {}
     for key in ("w0", "Q", "w_corner"):
         if f[key] is not None:
+            got = reduced_sensitivities(key, f["_reduced"], nominal) \
+                if f["_reduced"] is not None else sensitivities(f[key], nominal)
             sens[key] = {x: {"normalized": v["expr"], "value": v["value"]}
-                         for x, v in sensitivities(f[key], nominal).items()}
+                         for x, v in got.items()}
     if sens:
         d["sensitivity"] = sens
     eqs = [Equation(sympy.Symbol(q.name), _normal_expr(f), q.expr)]
-    ind = _independent(q.expr)
+    ind = _independent(q.expr) if f["w0"] is not None or f["w_corner"] is not None else {}
     if f["w0"] is not None:
         eqs += [Equation(sympy.Symbol("omega0"), f["w0"], ind.get("w0")),
                 Equation(sympy.Symbol("Q"), f["Q"], ind.get("Q"))
@@ -172,13 +259,30 @@ def analyse_quantity(q, nominal) -> tuple:
 def _independent(expr) -> dict:
     """ω0, Q and ωc again, from Taylor coefficients of the denominator at s = 0 taken by
     differentiation (not from the polynomial coefficients that :func:`rational_form`
-    reads): the independent values the displayed ones are checked against."""
+    reads): the independent values the displayed ones are checked against. Only the first
+    three nonzero Taylor coefficients are taken (what a first- or second-order reduced
+    denominator needs), in python-flint."""
     try:
-        num, den = sympy.fraction(sympy.cancel(sympy.together(expr)))
-        deg = sympy.degree(den, S)
-        c = [sympy.diff(den, S, k).subs(S, 0) / sympy.factorial(k) for k in range(deg + 1)]
-        p = next(i for i, x in enumerate(c) if x != 0)
-        red = [x / c[p] for x in c[p:]]
+        (h,) = rational.common([expr], extra=[S])
+        i = h.symbols.index(S)
+        den = h.den
+        deg = den.degrees()[i]
+        c, d, fact = [], den, 1
+        for k in range(deg + 1):
+            if k:
+                d = d.derivative(i)
+                fact *= k
+            at0 = {m: v for m, v in d.to_dict().items() if m[i] == 0}
+            c.append(rational.ratio(h.ctx.from_dict(at0) if at0 else h.ctx.constant(0),
+                                    h.ctx.constant(fact), h))
+            nonzero = [x for x in c if not x.is_zero()]
+            if len(nonzero) == 3:
+                break
+        p = next(j for j, x in enumerate(c) if not x.is_zero())
+        red = [(x / c[p]) for x in c[p:]]
+        if len(red) > 3 or (len(red) == 3 and deg - p > 2) or (len(red) == 2 and deg - p > 1):
+            return {}
+        red = [x.to_sympy() for x in red]
     except Exception:
         return {}
     out = {}

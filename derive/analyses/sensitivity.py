@@ -125,9 +125,11 @@ def _too_long(p, budget: int) -> bool:
 FACTOR_TERMS = 3000     # edge.factored_expr factors polynomials up to this many terms
 
 
-def rational(e: sympy.Expr, defs=()):
+def rational(e: sympy.Expr, defs=(), max_terms: int | None = None):
     """(num, den, symbols): ``e`` as a cancelled ratio of flint polynomials over its free
-    symbols, or None when ``e`` is not a rational function (roots, other functions).
+    symbols, or None when ``e`` is not a rational function (roots, other functions) or,
+    with ``max_terms``, when an intermediate numerator and denominator together pass that
+    many terms (the expansion of a large sequence would cost more than it can save).
     ``defs``: named intermediates [(Symbol, expr)] that ``e`` uses, each converted once."""
     names = {q for q, _ in defs}
     syms = set(e.free_symbols)
@@ -175,6 +177,8 @@ def rational(e: sympy.Expr, defs=()):
         else:
             raise _NotRational
         if r[1].is_zero():
+            raise _NotRational
+        if max_terms is not None and len(r[0]) + len(r[1]) > max_terms:
             raise _NotRational
         memo[x] = r
         return r

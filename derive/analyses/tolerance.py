@@ -207,6 +207,7 @@ def _vec(form: Form):
 
 
 EXACT_PRODUCT_TERMS = 5e7     # largest len(n)*len(d) of a derivative numerator formed
+EXACT_TERMS = 200_000         # largest expansion of a sequence rebuilt for the sign proofs
 
 
 def exact_signs(form: Form, nominal: dict, box: dict) -> dict:
@@ -219,7 +220,7 @@ def exact_signs(form: Form, nominal: dict, box: dict) -> dict:
     coefficients share one sign (a nonzero polynomial with positive coefficients is positive
     at positive arguments). Parts not settled this way are left out (interval arithmetic
     may still prove them)."""
-    r = _sens.rational(form.final, list(form.defs))
+    r = _sens.rational(form.final, list(form.defs), max_terms=EXACT_TERMS)
     if r is None:
         return {}
     n, d, syms = r

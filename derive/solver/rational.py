@@ -52,6 +52,53 @@ class Rational:
 
     __hash__ = None
 
+    def _lift(self, other) -> "Rational":
+        if isinstance(other, Rational):
+            return other
+        if isinstance(other, sympy.Basic):
+            other = flint.fmpq(int(other.p), int(other.q))
+        return Rational(self.ctx.constant(other), self.ctx.constant(1), self.symbols, self.ctx,
+                        cancel=False)
+
+    def __mul__(self, other) -> "Rational":
+        other = self._lift(other)
+        return Rational(self.num * other.num, self.den * other.den, self.symbols, self.ctx)
+
+    __rmul__ = __mul__
+
+    def __add__(self, other) -> "Rational":
+        other = self._lift(other)
+        return Rational(self.num * other.den + other.num * self.den, self.den * other.den,
+                        self.symbols, self.ctx)
+
+    __radd__ = __add__
+
+    def __neg__(self) -> "Rational":
+        return Rational(-self.num, self.den, self.symbols, self.ctx, cancel=False)
+
+    def inverse(self) -> "Rational":
+        return Rational(self.den, self.num, self.symbols, self.ctx)
+
+    def derivative(self, x) -> "Rational":
+        """d/dx, by the quotient rule on the polynomials."""
+        i = self.symbols.index(x)
+        return Rational(self.num.derivative(i) * self.den - self.num * self.den.derivative(i),
+                        self.den * self.den, self.symbols, self.ctx)
+
+    def sensitivity(self, x) -> "Rational":
+        """The normalised sensitivity (x/f)·df/dx."""
+        i = self.symbols.index(x)
+        xg = self.ctx.gens()[i]
+        return Rational(xg * (self.num.derivative(i) * self.den -
+                              self.num * self.den.derivative(i)),
+                        self.num * self.den, self.symbols, self.ctx)
+
+    def coefficients(self, x) -> tuple:
+        """(numerator, denominator) as ascending lists of their coefficients in the powers of
+        the symbol ``x`` (flint polynomials in the other symbols)."""
+        i = self.symbols.index(x)
+        return _split(self.num, i, self.ctx), _split(self.den, i, self.ctx)
+
     def __truediv__(self, other) -> "Rational":
         return Rational(self.num * other.den, self.den * other.num, self.symbols, self.ctx)
 
@@ -87,10 +134,27 @@ def _extreme_part(p, i, highest: bool, ctx):
     return k, ctx.from_dict(part)
 
 
-def common(exprs) -> list:
+def _split(p, i, ctx) -> list:
+    terms = p.to_dict()
+    if not terms:
+        return [ctx.constant(0)]
+    top = max(m[i] for m in terms)
+    parts = [dict() for _ in range(top + 1)]
+    for m, c in terms.items():
+        parts[m[i]][m[:i] + (0,) + m[i + 1:]] = c
+    return [ctx.from_dict(d) if d else ctx.constant(0) for d in parts]
+
+
+def ratio(num, den, like: Rational) -> Rational:
+    """``num/den`` (flint polynomials of ``like``'s ring) as a cancelled :class:`Rational`."""
+    return Rational(num, den, like.symbols, like.ctx)
+
+
+def common(exprs, extra=()) -> list:
     """Sympy rational functions as :class:`Rational` on one shared set of symbols (sorted by
-    name); :class:`NotPolynomial` where one is not a rational function of its symbols."""
-    symbols = sorted(set().union(*(e.free_symbols for e in exprs)), key=str) or \
+    name, ``extra`` symbols included); :class:`NotPolynomial` where one is not a rational
+    function of its symbols."""
+    symbols = sorted(set().union(*(e.free_symbols for e in exprs), extra), key=str) or \
         [sympy.Symbol("_none")]
     ctx = flint.fmpq_mpoly_ctx.get(tuple(f"x{i}" for i in range(len(symbols))), "lex")
     out = []
