@@ -75,7 +75,13 @@ def test_c_inverse_matches_hand_formula_and_guards_division(tmp_path):
         '    printf("%.17g\\n", Rt_from_vth_at_divider(1.2, 3.3, 10000.0));\n'
         '    printf("%d\\n", th_error);\n'
         '    printf("%d\\n", isnan(Rt_from_vth_at_divider(3.3, 3.3, 10000.0)) ? 1 : 0);\n'
-        '    printf("%d\\n", th_error == TH_EDIV);\n'
+        '    printf("%d\\n", th_error == TH_ERANGE);\n'
+        '    th_error = TH_OK;\n'
+        '    printf("%d\\n", isnan(Rt_from_vth_at_divider(3.4, 3.3, 10000.0)) ? 1 : 0);\n'
+        '    printf("%d\\n", th_error == TH_ERANGE);\n'
+        '    th_error = TH_OK;\n'
+        '    printf("%d\\n", isnan(Rt_from_vth_at_divider(-0.1, 3.3, 10000.0)) ? 1 : 0);\n'
+        '    printf("%d\\n", th_error == TH_ERANGE);\n'
         "    return 0;\n}\n")
     exe = str(tmp_path / "drv")
     subprocess.run(GCC + ["-o", exe, str(tmp_path / "th.c"), str(tmp_path / "drv.c"), "-lm"],
@@ -84,7 +90,10 @@ def test_c_inverse_matches_hand_formula_and_guards_division(tmp_path):
     # Rt = Rpu*v/(Vref - v) for a thermistor below a pull-up (common practice, no source)
     want = Fraction(10000) * Fraction("1.2") / (Fraction("3.3") - Fraction("1.2"))
     assert float(lines[0]) == pytest.approx(float(want), rel=1e-13)
-    assert lines[1:] == ["0", "1", "1"]
+    # an open sensor (vth = Vref), a reading above Vref and a negative one are outside the
+    # range the record derives (0 < vth < Vref: a positive Rt): NAN and TH_ERANGE, never a
+    # negative or infinite resistance
+    assert lines[1:] == ["0", "1", "1", "1", "1", "1", "1"]
 
 
 def load_module(path):
@@ -110,8 +119,8 @@ def test_python_module_against_exact_vectors(tmp_path):
     run = subprocess.run(["python", str(tmp_path / "thermistor_test.py")], capture_output=True,
                          text=True)
     assert run.returncode == 0 and "0 failures" in run.stdout
-    with pytest.raises(ValueError, match="Vref - vth is zero"):
-        mod.Rt_from_vth_at_divider(3.3, 3.3, 10000.0)
+    with pytest.raises(ValueError, match="outside the valid range 0 < vth < Vref"):
+        mod.Rt_from_vth_at_divider(3.3, 3.3, 10000.0)       # an open sensor
     # hand formula, as above (common practice, no source)
     assert mod.Rt_from_vth_at_divider(1.2, 3.3, 1e4) == pytest.approx(1e4 * 1.2 / 2.1, rel=1e-14)
 
@@ -167,3 +176,15 @@ def test_identifier_and_comment_sanitising():
     assert ident("a b-c") == "a_b_c" and ident("x", {"x"}) == "x_"
     assert "*/" not in comment("*/*/") and "??" not in comment("???")
     assert "\n" not in comment("a\nb")
+
+
+def test_python_calibration_refuses_readings_outside_the_valid_range(tmp_path):
+    files = render(record(), "python", Args(str(tmp_path / "th.py")))
+    write(files)
+    mod = load_module(str(tmp_path / "th.py"))
+    # Rt = Rpu*v/(Vref - v) (common practice, no source)
+    assert mod.Rt_from_vth_at_divider(1.2, 3.3, 10000.0) == pytest.approx(
+        10000 * 1.2 / (3.3 - 1.2), rel=1e-13)
+    for v in (3.3, 3.4, -0.1, 0.0):
+        with pytest.raises(ValueError, match="outside the valid range"):
+            mod.Rt_from_vth_at_divider(v, 3.3, 10000.0)

@@ -250,6 +250,8 @@ def solve_request(ctx, req) -> analysis.RequestResult:
     unit = info.unit
     out = analysis.RequestResult(req)
     out.quantities[x.name] = analysis.QuantityResult(x.name, root, value, unit, form="inverted")
+    if rng and all((e[0] is None) or (e[1] is not None) for lo, hi in rng for e in (lo, hi)):
+        out.quantities[x.name].validity = [(lo[1], hi[1]) for lo, hi in rng]
     out.extra.update({
         "measured": {"symbol": q.name, "quantity": name, "unit": fq.unit,
                      "value": float(q_nom) if have_nominal else None,

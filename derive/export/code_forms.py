@@ -114,6 +114,7 @@ class Formula:
     origin: str
     forward: Optional[tuple] = None   # (closed form, solved symbol, measured symbol)
     lines: list = field(default_factory=list)
+    valid: list = field(default_factory=list)    # [(low, high)] of the measured symbol
 
 
 def _function_name(req, qname: str, extra: dict) -> str:
@@ -172,8 +173,13 @@ def collect(record) -> tuple:
             fwd = None
             if meas:
                 fwd = (_forward(record, req), sympy.Symbol(qname), msym)
+            valid = []
+            if msym is not None and q.validity and all(
+                    e is None or e.free_symbols <= set(params)
+                    for lo, hi in q.validity for e in (lo, hi)):
+                valid = list(q.validity)
             formulas.append(Formula(name, list(zip(params, units)), defs, final, q.unit,
-                                    what, origin, fwd))
+                                    what, origin, fwd, valid=valid))
     return formulas, skipped
 
 
@@ -188,8 +194,9 @@ def _forward(record, req):
 
 
 class Lowering:
-    """A formula as statements: ('let', sym, expr), ('guard', sym, kind, text), then the
-    returned expression; identifiers already sanitised (and, given the C ``prefix``, kept
+    """A formula as statements: ('range', measured sym, [(low, high)], text) first for an
+    inverted formula with a derived validity range, ('let', sym, expr), ('guard', sym, kind,
+    text), then the returned expression; identifiers already sanitised (and, given the C ``prefix``, kept
     apart from the generated file's own names)."""
 
     def __init__(self, f: Formula, prefix: Optional[str] = None):
@@ -205,6 +212,14 @@ class Lowering:
         self.taken.add(f.name)
         self.count = 0
         self.stmts, self.guarded, self.meaning = [], set(), {}
+        if f.valid and f.forward:
+            m = self.rename[f.forward[2]]
+            ivs = [(lo.xreplace(self.rename) if lo is not None else None,
+                    hi.xreplace(self.rename) if hi is not None else None) for lo, hi in f.valid]
+            text = " or ".join(
+                (f"{to_text(lo)} < " if lo is not None else "") + m.name +
+                (f" < {to_text(hi)}" if hi is not None else "") for lo, hi in ivs)
+            self.stmts.append(("range", m, ivs, text))
         for s, e in f.defs:
             self._emit_cse(e.xreplace(self.rename), self.rename[s])
         self.result = self._emit_cse(f.final.xreplace(self.rename), None)

@@ -26,6 +26,10 @@ class QuantityResult:
     in_sequence: Optional[sympy.Expr] = None
     form: str = "expanded"              # 'expanded', 'series-parallel', 'sequence'
     notes: list = field(default_factory=list)
+    # an inverted formula: intervals (low, high) of the measured symbol where the chosen root
+    # is real and positive, each end a sympy expression or None (unbounded); empty: none
+    # derived, or an end known only as a number at nominal values
+    validity: list = field(default_factory=list)
 
     def __repr__(self) -> str:
         value = "no value" if self.value is None else format_eng(self.value, self.unit)
