@@ -174,3 +174,25 @@ def test_w0_q_sensitivities_against_sympy_derivatives():
             assert got[str(x)]["value"] == pytest.approx(float(want.subs(nominal)), abs=1e-12)
     assert sympy.simplify(fr["sensitivity"]["Q"]["R1"]["normalized"]
                           - (R2 - R1) / (2 * (R1 + R2))) == 0
+
+
+def test_minus_3db_point_and_decade_table_of_a_sallen_key():
+    """-3 dB point of a second-order low-pass against the closed form (common practice, no
+    source): f3dB = f0*sqrt(1 - 1/(2Q^2) + sqrt((1 - 1/(2Q^2))^2 + 1)); the decade table
+    against scipy.signal.freqs (an independent evaluation of the same H(s))."""
+    r = _sk()
+    d = r[0].extra["frequency"]["gain"]
+    R1 = R2 = 1e4
+    C1, C2 = 22e-9, 10e-9
+    f0 = 1 / (2 * math.pi * math.sqrt(R1 * R2 * C1 * C2))
+    Q = math.sqrt(R1 * R2 * C1 * C2) / (C2 * (R1 + R2))
+    a = 1 - 1 / (2 * Q * Q)
+    want = f0 * math.sqrt(a + math.sqrt(a * a + 1))
+    (got,) = d["minus_3dB_values"]
+    assert got == pytest.approx(want, rel=1e-9)
+    table = [s for s in r[0].steps if s.kind == "frequency" and s.table][0].table
+    b, a_ = [1.0], [R1 * R2 * C1 * C2, C2 * (R1 + R2), 1.0]      # descending powers of s
+    for f, mag, ph in table[1:]:
+        w, h = scipy.signal.freqs(b, a_, worN=[2 * math.pi * float(f)])
+        assert float(mag) == pytest.approx(20 * math.log10(abs(h[0])), abs=0.006)
+        assert float(ph) == pytest.approx(math.degrees(np.angle(h[0])), abs=0.06)

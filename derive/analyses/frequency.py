@@ -298,6 +298,8 @@ def _independent(expr) -> dict:
 def _normal_expr(f):
     n = sum(c * S**i for i, c in enumerate(f["numerator"]))
     dd = sum(c * S**i for i, c in enumerate(f["denominator"]))
+    if n == 1:                                  # not "1·1/(...)"
+        return sympy.Pow(dd, -1, evaluate=False)
     return sympy.Mul(n, sympy.Pow(dd, -1), evaluate=False)
 
 
@@ -330,10 +332,74 @@ def _range(num, den):
     return (lo / 100, hi * 100)
 
 
-def bode_figure(name, caption, num, den, unit=None) -> Figure:
+def bode_figure(name, caption, num, den, unit=None, marks=None) -> Figure:
     """A Bode plot at nominal values of ``num(s)/den(s)`` (ascending numeric coefficients);
-    drawn by :func:`derive.export.plots.draw` over the range of :func:`bode_data`."""
-    return Figure(name, caption, "bode", {"num": list(num), "den": list(den), "unit": unit})
+    drawn by :func:`derive.export.plots.draw` over the range of :func:`bode_data`, with
+    ``marks`` (f0, corner frequency, -3 dB points in Hz) drawn as vertical lines."""
+    return Figure(name, caption, "bode", {"num": list(num), "den": list(den), "unit": unit,
+                                          "marks": dict(marks or {})})
+
+
+def _response(num, den, f):
+    import numpy as np
+    jw = 2j * np.pi * np.asarray(f, dtype=float)
+    return np.polyval(list(reversed(num)), jw) / np.polyval(list(reversed(den)), jw)
+
+
+def minus_3db_points(num, den) -> list:
+    """Frequencies (Hz, at nominal values) where the magnitude is 3.0103 dB (a factor
+    1/sqrt(2)) below the passband: the DC gain where it is finite and nonzero, else the
+    high-frequency gain, else (band-pass) the peak over the plotted range; refined by
+    bisection on the magnitude; displayed numbers, not exact results.
+
+    >>> [round(f, 3) for f in minus_3db_points([1.0], [1.0, 1 / (2 * math.pi * 1000)])]
+    [1000.0]
+    """
+    import numpy as np
+    f, _mag, _ph = bode_data(num, den, points=2000)
+    h = np.abs(_response(num, den, f))
+    nd = max((i for i, c in enumerate(num) if c != 0), default=0)
+    dd = max((i for i, c in enumerate(den) if c != 0), default=0)
+    if den[0] != 0 and num[0] != 0:
+        peak = abs(num[0] / den[0])                           # passband at DC (low-pass)
+    elif nd == dd:
+        peak = abs(num[nd] / den[dd])                         # passband at high frequency
+    else:
+        peak = float(h.max())                                 # band-pass: its peak
+    if not peak > 0 or not np.isfinite(peak):
+        return []
+    level = peak / math.sqrt(2)
+    above = h >= level
+    out = []
+    for i in range(len(f) - 1):
+        if above[i] != above[i + 1]:
+            lo, hi = float(f[i]), float(f[i + 1])
+            for _ in range(60):
+                mid = math.sqrt(lo * hi)
+                if (abs(_response(num, den, [mid])[0]) >= level) == above[i]:
+                    lo = mid
+                else:
+                    hi = mid
+            out.append(math.sqrt(lo * hi))
+    return out
+
+
+def decade_table(name, num, den, unit=None) -> Step:
+    """Magnitude and phase at nominal values at each decade of the plotted range (a table
+    step for the record; displayed numbers)."""
+    import numpy as np
+    f, _m, _p = bode_data(num, den)
+    decades = [10.0 ** k for k in range(math.ceil(math.log10(f[0])),
+                                        math.floor(math.log10(f[-1])) + 1)]
+    h = _response(num, den, decades)
+    ref = f" re 1 {unit}" if unit and unit not in ("V/V", "A/A", "1") else ""
+    rows = [["f / Hz", "|" + name + "| / dB" + ref, "phase / degrees"]]
+    phase = np.degrees(np.unwrap(np.angle(h))) if len(h) else []
+    for fk, hk, pk in zip(decades, h, phase):
+        rows.append([f"{fk:g}", f"{20 * math.log10(max(abs(hk), 1e-300)):.2f}", f"{pk:.1f}"])
+    return Step(f"Magnitude and phase of {name} at nominal values, one row per decade "
+                "(evaluated numerically from the exact coefficients; display only).",
+                kind="frequency", table=rows)
 
 
 def annotate(ctx, req, result):
@@ -354,9 +420,15 @@ def annotate(ctx, req, result):
         freq[name] = d
         result.steps.append(step)
         if figures and coeffs is not None:
+            marks = {"f0": d.get("f0_value"), "f_corner": d.get("f_corner_value"),
+                     "minus_3dB": minus_3db_points(*coeffs)}
+            d["minus_3dB_values"] = marks["minus_3dB"]
             result.extra.setdefault("figures", []).append(bode_figure(
                 f"bode_{_slug(req.text)}_{name}", f"Bode plot of {name} ({req.text}) at "
-                "nominal values", *coeffs, unit=q.unit))
+                "nominal values", *coeffs, unit=q.unit, marks=marks))
+            table = decade_table(name, *coeffs, unit=q.unit)
+            table.verify()                # no equation: nothing is claimed verified
+            result.steps.append(table)
     if freq:
         result.extra["frequency"] = freq
     return result

@@ -15,6 +15,7 @@ True
 from __future__ import annotations
 
 from derive.derivation.steps import Figure
+from derive.sheet.units import format_eng
 
 
 def _new(width=6.0, height=3.2):
@@ -78,6 +79,20 @@ def _draw_bode(fig_: Figure, path: str) -> None:
                                       else ""))
     a1.grid(True, which="both", alpha=0.3)
     a2.semilogx(f, phase)
+    marks = data.get("marks") or {}
+    for label, value, style in (("f0", marks.get("f0"), "--"),
+                                ("fc", marks.get("f_corner"), "--")):
+        if value:
+            for ax in (a1, a2):
+                ax.axvline(value, linestyle=style, linewidth=0.8, color="0.35")
+            a1.annotate(f"{label} = {format_eng(value, 'Hz')}", (value, a1.get_ylim()[1]),
+                        fontsize=7, ha="left", va="top", xytext=(3, -3),
+                        textcoords="offset points")
+    for value in marks.get("minus_3dB") or []:
+        a1.axvline(value, linestyle=":", linewidth=0.8, color="0.2")
+        a1.annotate(f"-3 dB: {format_eng(value, 'Hz')}", (value, a1.get_ylim()[0]),
+                    fontsize=7, ha="left", va="bottom", xytext=(3, 3),
+                    textcoords="offset points")
     a2.set_ylabel("phase / degrees")
     a2.set_xlabel("frequency / Hz")
     a2.grid(True, which="both", alpha=0.3)
