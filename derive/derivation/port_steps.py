@@ -229,8 +229,9 @@ def _move_step(m, env, defs) -> Step:
             eqs.append(Equation(_vname(r, el, defs), ex + ey, check=el, defs=defs))
         if not eqs:
             return Step(f"{_label(x)} and {_label(y)} are in series: nothing else connects at "
-                        f"node {m['node']}, so they form one branch, a source {el} behind "
-                        f"{r.Z}.", [], members, kind="reduction")
+                        f"node {m['node']}, so they form one branch: open-circuit voltage "
+                        f"{el} (node {r.a} relative to node {r.b}) behind {r.Z}.", [],
+                        members, kind="reduction")
         return Step(f"{_label(x)} and {_label(y)} are in series: nothing else connects at node "
                     f"{m['node']}, so they carry the same current; impedances (and source "
                     "voltages) add.", eqs, members, kind="reduction")
@@ -267,8 +268,9 @@ def _move_step(m, env, defs) -> Step:
     ex, ey = x.E.xreplace(env), y.E.xreplace(env)
     text = f"{_label(x)} and {_label(y)} are in parallel {between}"
     if ex != 0 or ey != 0:
-        srcs = [f"{_label(b)} (voltage {e} behind {b.Z}) becomes a current source {e}/{b.Z} "
-                f"in parallel with {b.Z}" for b, e in ((x, ex), (y, ey)) if e != 0]
+        srcs = [f"{_label(b)} (open-circuit voltage {e}, node {b.a} relative to node {b.b}, "
+                f"behind {b.Z}) becomes a current source {e}/{b.Z} in parallel with {b.Z}"
+                for b, e in ((x, ex), (y, ey)) if e != 0]
         text = ("Source transformation: " + "; ".join(srcs) + ". " + text +
                 ": the currents add, the impedances combine in parallel, and the result "
                 "transforms back into a voltage source behind the parallel impedance")
