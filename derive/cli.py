@@ -323,7 +323,7 @@ def _deliver(res: _Result, protect=()) -> int:
     """Write the files and standard output of a finished piece of work; its exit status.
     A failed run (status 2 or 3) writes only its ``on_error`` files; no file may replace
     one of ``protect`` (the sheet)."""
-    from derive.export.files import commit
+    from derive.export.files import commit, write_stdout
     try:
         commit(res, failed=res.code >= 2, protect=protect)
     except OSError as e:
@@ -332,12 +332,7 @@ def _deliver(res: _Result, protect=()) -> int:
         return 2
     try:
         for chunk in res.stdout:
-            if isinstance(chunk, (bytes, bytearray)):
-                sys.stdout.flush()
-                sys.stdout.buffer.write(chunk)
-                sys.stdout.buffer.flush()
-            else:
-                sys.stdout.write(chunk)
+            write_stdout(chunk)          # outside a capture: straight to standard output
         sys.stdout.flush()
     except BrokenPipeError:
         try:   # nothing more can reach the reader; keep the interpreter's exit quiet
