@@ -88,8 +88,10 @@ def circuit_of(text: str, filename: str = "<sheet>"):
 
 
 def derive_text(text: str, filename: str = "<sheet>", symbolic: Optional[list] = None,
-                max_terms: float = 2e6, **options) -> Record:
-    """Derive every request of a sheet given as text.
+                max_terms: float = 2e6, select=None, **options) -> Record:
+    """Derive every request of a sheet given as text (with ``select``, a predicate on
+    :class:`derive.sheet.model.Request`, only the requests it accepts: ``derive check``
+    answers its claims and nothing else).
 
     ``options`` are further :class:`derive.analyses.run.Options` fields (``mc_samples``,
     ``mc_seed``, ``mc_distribution`` for tolerance analysis).
@@ -107,6 +109,9 @@ def derive_text(text: str, filename: str = "<sheet>", symbolic: Optional[list] =
     """
     from derive.analyses.run import Options, run
     c = circuit_of(text, filename)
+    if select is not None:
+        import dataclasses
+        c = dataclasses.replace(c, requests=[r for r in c.requests if select(r)])
     try:
         results = run(c, Options(symbolic=symbolic, max_terms=max_terms, **options))
     except SheetError as e:

@@ -92,3 +92,27 @@ def test_absolute_tolerance_of_a_nominal_becomes_relative(tmp_path, capsys):
                  "resistor R1 between a and gnd = 1k\nport p between a and gnd\nfind vth at p\n")
     assert main(["record", str(p), "--format", "json"]) == 0
     assert json.loads(capsys.readouterr().out)["symbols"]["Voff"]["tolerance"] == 0.005
+
+
+def test_check_derives_only_the_claims(tmp_path, capsys):
+    """derive check answers its check statements and nothing else: a request elsewhere in
+    the sheet that cannot be answered (a sensitivity of an s-dependent gain) stops
+    `derive record` but not `derive check`."""
+    p = tmp_path / "c.eqv"
+    p.write_text("""voltage source V between a and gnd = 10 V
+resistor R1 between a and b = 1 kohm
+resistor R2 between b and gnd = 4 kohm
+capacitor C between b and gnd = 1 nF
+port out between b and gnd
+find sensitivity of gain from V to out
+check rth at out equals R1*R2/(R1 + R2 + s*C*R1*R2)
+""")
+    assert main(["record", str(p), "--format", "json"]) == 2
+    capsys.readouterr()
+    assert main(["check", str(p)]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith("PASS line 7: check rth at out equals")
+    import derive
+    from derive.export.formats import gives_verdict
+    rec = derive.derive_file(str(p), select=gives_verdict)
+    assert [r.request.statement for r in rec.results] == ["check"]

@@ -46,6 +46,12 @@ def render_code(record, lang: str, args=None) -> dict:
     return export_code.render(record, lang, args)
 
 
+def gives_verdict(request) -> bool:
+    """Whether ``derive check`` needs ``request``: its verdicts come from ``check``
+    statements, so no other request is derived."""
+    return request.statement == "check"
+
+
 def check_lines(record):
     from derive.analyses import claims
     return claims.check_lines(record)
