@@ -126,3 +126,40 @@ def test_sequence_only_quantity_uses_exact_random_points(monkeypatch):
     good, bad = (analysis.HANDLERS["check"](ctx, r).extra for r in c.requests)
     assert good["holds"] is True and "random rational points" in good["method"]
     assert bad["holds"] is False and "Rc → ∞" in bad["diagnosis"]
+
+
+INA = """voltage source Vp between inp and gnd = 1.01 V
+voltage source Vn between inn and gnd = 1.00 V
+opamp U1 inputs inp, f1 output o1
+opamp U2 inputs inn, f2 output o2
+resistor R1 between o1 and f1 = 24.9 kohm
+resistor Rg between f1 and f2 = 2.49 kohm
+resistor R2 between f2 and o2 = 24.9 kohm
+resistor R3 between o1 and m = 10 kohm
+resistor R4 between m and out = 10 kohm
+resistor R5 between o2 and p = 10 kohm
+resistor R6 between p and gnd = 10 kohm
+opamp U3 inputs p, m output out
+port o between out and gnd
+check gain from Vp to o equals {claim}
+"""
+
+
+def test_a_claim_of_the_wrong_sign_is_named_at_nominal():
+    """Three-op-amp instrumentation amplifier with the first stage's U1 side into the
+    difference stage's inverting input: gain from Vp = -(1 + 2 R1/Rg) when R3 = R4 and
+    R5 = R6 (textbook three-op-amp gain, from memory). The textbook magnitude as a claim is
+    refused, and the diagnosis says it is exactly the opposite sign at nominal values; the
+    right sign is also not an identity (it holds only for matched resistors), and the
+    diagnosis says it agrees at nominal."""
+    import derive
+    rec = derive.derive_text(INA.format(claim="1 + 2*R1/Rg"))
+    r = rec.results[0]
+    assert r.extra["holds"] is False
+    assert "at nominal values the claim is exactly -gain (opposite sign" in r.extra["diagnosis"]
+    assert r.extra["relative_error"] == pytest.approx(-2.0)
+    rec = derive.derive_text(INA.format(claim="-(1 + 2*R1/Rg)"))
+    r = rec.results[0]
+    assert r.extra["holds"] is False
+    assert "at nominal values the claim is exactly gain" in r.extra["diagnosis"]
+    assert r.extra["relative_error"] == pytest.approx(0.0, abs=1e-15)

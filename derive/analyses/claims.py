@@ -39,7 +39,7 @@ def _degenerate(v) -> bool:
     return v is None or v is rational.INFINITE or v.is_zero()
 
 
-def diagnose(q_expr, claim, name: str) -> str:
+def diagnose(q_expr, claim, name: str, nominal: dict | None = None) -> str:
     """What an engineer can use: a constant factor, a sign, or single-symbol limits (each
     limit of a rational function at 0 or infinity read off its extreme-degree terms, in
     python-flint).
@@ -76,15 +76,24 @@ def diagnose(q_expr, claim, name: str) -> str:
                 lr = r.limit(x, at_inf)
                 if lr is not rational.INFINITE and lr == 1:
                     relative.append(f"{x.name} → {label}")
+    at_nominal = ""
+    if nominal:
+        k = r.to_sympy().xreplace(nominal)
+        if k.is_Rational and k in (-1, 1):
+            at_nominal = (f"; at nominal values the claim is exactly {'-' if k == -1 else ''}"
+                          f"{name}" + (" (opposite sign: check the sign convention, the "
+                                       "direction of the port or the order of the inputs)"
+                                       if k == -1 else ""))
     ratio = to_text(r.to_sympy())
     ratio = f"claim/{name} = {ratio}" if len(ratio) <= SHOWN else \
         f"claim/{name} (a ratio of {len(r.num)}- and {len(r.den)}-term polynomials)"
     if agree:
-        return f"agrees with {name} when " + " or when ".join(agree)
+        return f"agrees with {name} when " + " or when ".join(agree) + at_nominal
     if relative:
         return (f"agrees with {name} only approximately: the relative error vanishes when "
-                + " or when ".join(relative) + f" ({ratio})")
-    return f"no single symbol sent to 0 or ∞ makes it agree, and {ratio} is not constant"
+                + " or when ".join(relative) + f" ({ratio})" + at_nominal)
+    return (f"no single symbol sent to 0 or ∞ makes it agree, and {ratio} is not constant"
+            + at_nominal)
 
 
 def _point(ctx, syms, rnd, use_nominal: bool) -> dict:
@@ -214,7 +223,7 @@ def check_request(ctx, req) -> analysis.RequestResult:
             vc = claim.xreplace(nom)
             if vq.is_number and vq != 0:
                 rel = _value((vc - vq) / vq)
-        diagnosis = dim_error or diagnose(q_expr, claim, name)
+        diagnosis = dim_error or diagnose(q_expr, claim, name, ctx.nominal)
         rows = [["symbol", "value"]] + [[k, f"{v:.6g}"] for k, v in
                                         (counter or {"point": {}})["point"].items()]
         if counter:
