@@ -70,3 +70,25 @@ def test_missing_tex_is_a_clear_error_and_tex_is_written(tmp_path, monkeypatch, 
     assert rc == 2 and "TeX Live" in err and "latexmk" in err
     assert (tmp_path / "r.tex").read_text().startswith(r"\documentclass")
     assert not (tmp_path / "r.pdf").exists()
+
+
+@needs_tex
+def test_summary_of_an_impedance_with_s_typesets_ohm(tmp_path):
+    """The summary's frequency line writes the DC value of an impedance with its unit (kΩ)
+    inside math: it must reach the PDF (it stopped TeX with 'Unicode character Ω')."""
+    src = tmp_path / "z.eqv"
+    src.write_text("""voltage source Vs between in and gnd = 1 V
+resistor Rs between in and a = 50 ohm
+inductor L1 between a and b = 100 uH
+capacitor C1 between b and gnd = 10 nF
+resistor Rl between b and gnd = 10 kohm
+port out between b and gnd
+find impedance at out
+""")
+    out = tmp_path / "z.pdf"
+    assert main(["record", str(src), "-o", str(out)]) == 0
+    text = subprocess.run(["pdftotext", str(out), "-"], capture_output=True, text=True,
+                          check=True).stdout
+    flat = " ".join(text.split())
+    # at DC the inductor shorts, the capacitor opens: Rs || Rl = 50*10000/10050 = 49.75 ohm
+    assert "49.75 \u03a9" in flat or "49.75 \u2126" in flat      # Greek omega or ohm sign

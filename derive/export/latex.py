@@ -37,6 +37,13 @@ _TEXT_CHARS = {"Ω": r"\ensuremath{\Omega}", "µ": r"\ensuremath{\mu}", "μ": r"
                "“": "``", "”": "''", "‘": "`", "’": "'", "\u2009": r"\,", "\u00a0": "~",
                "∠": r"\ensuremath{\angle}", "∑": r"\ensuremath{\sum}",
                "⋅": r"\ensuremath{\cdot}", "Ω": r"\ensuremath{\Omega}"}
+def _math_chars(math: str) -> str:
+    """Unicode symbols inside a math string (unit words in ``\\text{}``, such as kΩ) as
+    commands the fonts have; ASCII is left as it is."""
+    return "".join(_TEXT_CHARS.get(ch, ch) if ord(ch) > 127 and
+                   _TEXT_CHARS.get(ch, "").startswith("\\ensuremath") else ch for ch in math)
+
+
 # Greek letters (both the Greek block's µ and Ω are covered above): the math italic of the
 # Computer/Latin Modern fonts; capitals that look like Latin letters are upright Latin.
 _GREEK = ("alpha beta gamma delta epsilon zeta eta theta iota kappa lambda mu nu xi o pi rho "
@@ -162,7 +169,7 @@ def document(record, figures_dir=None) -> Document:
                 if it["label"]:
                     doc.append(text(it["label"] + ": "))
                 if it["math"]:
-                    doc.append(NoEscape("$" + it["math"] + "$ "))
+                    doc.append(NoEscape("$" + _math_chars(it["math"]) + "$ "))
                 doc.append(_si_text(it["text"]))
             if not r["summary"]:
                 doc.append(NoEscape(r"\item "))
