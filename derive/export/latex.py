@@ -175,8 +175,11 @@ def document(record, figures_dir=None) -> Document:
         rows = [[text(e["name"]), text(e["kind"]), text(e["terminals"]),
                  NoEscape(f"${e['symbol']}$") if e["symbol"] else "",
                  si_value(e["nominal"]) if e["nominal"] else "", text(e["tolerance"])]
+                + ([si_value(e["standard"]) if e["standard"] else ""]
+                   if v.get("standard_column") else [])
                 for e in v["elements"]]
-        _table(doc, ["element", "kind", "terminals", "symbol", "nominal", "tolerance"], rows)
+        _table(doc, ["element", "kind", "terminals", "symbol", "nominal", "tolerance"]
+               + (["with standard values"] if v.get("standard_column") else []), rows)
         with doc.create(Subsection("Modelling assumptions", numbering=False)):
             doc.append(NoEscape(r"\begin{itemize}"))
             for a in v["assumptions"]:
