@@ -163,3 +163,15 @@ def test_bad_input_is_a_located_error(tmp_path, capsys, line, col, needle):
     lineno = text.count("\n") + 1
     assert err.startswith(f"{path}:{lineno}:{col}: error: "), err
     assert needle in err and "Traceback" not in err
+
+
+def test_cached_neighbours_agree_with_the_series_module():
+    import random
+    from derive.analyses import choose
+    rnd = random.Random(3)
+    for series in ("E6", "E24", "E96", "E192"):
+        for _ in range(300):
+            x = Fraction(rnd.randint(1, 10 ** 9), rnd.randint(1, 10 ** 4))
+            assert choose.neighbours(series, x) == eseries.neighbours(series, x)
+        for v in decades(series if series in SERIES else "E96", -1, 2)[:50]:
+            assert choose.neighbours(series, v) == eseries.neighbours(series, v)

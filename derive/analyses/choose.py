@@ -36,6 +36,8 @@ JSON: ``"choice": {"values", "series", "result", "target", "error", "runners_up"
 """
 from __future__ import annotations
 
+import bisect
+import functools
 import itertools
 from fractions import Fraction
 
@@ -85,6 +87,22 @@ def decade(x: Fraction) -> int:
     while Fraction(10) ** (k + 1) <= x:
         k += 1
     return k
+
+
+@functools.lru_cache(maxsize=4096)
+def _row(series: str, k: int) -> tuple:
+    """The series values of the decade [10**k, 10**(k+1)] (both ends), ascending."""
+    m = eseries.mantissas(series)
+    scale = 10 if len(m) <= 24 else 100
+    unit = Fraction(10) ** k / scale
+    return tuple(v * unit for v in m) + (m[0] * unit * 10,)
+
+
+def neighbours(series: str, x: Fraction) -> tuple:
+    """(largest series value <= x, smallest >= x): :func:`eseries.neighbours` with the
+    decades cached (the search asks for thousands)."""
+    row = _row(series, decade(x))
+    return row[bisect.bisect_right(row, x) - 1], row[bisect.bisect_left(row, x)]
 
 
 def window(series: str, nominal: Fraction) -> list:
@@ -226,11 +244,11 @@ class Problem:
         for lo, hi, _r in points:
             for x in (lo, hi):
                 if x > 0:
-                    below, above = eseries.neighbours(series, x)
+                    below, above = neighbours(series, x)
                     out.update((below, above))
                     if win is None:     # the next values out, for the runners-up
-                        out.add(eseries.neighbours(series, below * (1 - SHADE))[0])
-                        out.add(eseries.neighbours(series, above * (1 + SHADE))[1])
+                        out.add(neighbours(series, below * (1 - SHADE))[0])
+                        out.add(neighbours(series, above * (1 + SHADE))[1])
         if win is not None:
             out = {c for c in out if win[0] <= c <= win[-1]}
             out.update((win[0], win[-1]))
