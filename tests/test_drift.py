@@ -145,3 +145,23 @@ def test_bad_input_is_a_located_error(tmp_path, capsys, text, needle, where):
     err = capsys.readouterr().err
     assert err.startswith(f"{path}:{where[0]}:{where[1]}: error: "), err
     assert needle in err and "Traceback" not in err
+
+
+def test_a_wrong_intermediate_fails_its_check():
+    """Mutation: a wrong Q(T), a wrong drift coefficient: the steps holding them are not
+    verified (their checks are independent computations)."""
+    from derive.analyses import drift
+    from derive.forms.results import Context, Options
+    import flint
+    c = derive.circuit_of(INVERTING, "t.eqv")
+    ctx = Context(c, Options())
+    req = c.requests[0]
+    a = drift.analysed(ctx, req)[0]
+    d = drift.Drift(ctx, a, drift.tc_of_symbols(ctx, req), req)
+    assert all(s.verified for s in d.steps())
+    d.N = d.N * flint.fmpq_poly([1, flint.fmpq(1, 1000)])      # Q(T) off by (1 + t/1000)
+    assert not all(s.verified for s in d.steps())
+    d = drift.Drift(ctx, a, drift.tc_of_symbols(ctx, req), req)
+    d.coefficient += Fraction(1, 10**7)                          # 0.1 ppm/K off
+    steps = d.steps()
+    assert not steps[-1].verified and all(s.verified for s in steps[:-1])

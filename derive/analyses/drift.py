@@ -252,12 +252,12 @@ class Drift:
                 break
         e1.mark("points", ok and used > 0, used)
         c = self.N.derivative() * self.D - self.N * self.D.derivative()
-        e2 = Equation(sympy.Symbol(f"numerator of d{name}/dT"), sympy.expand(_poly_expr(c, tt)),
+        e2 = Equation(sympy.Symbol("N_dT"), sympy.expand(_poly_expr(c, tt)),
                       check=sympy.cancel(sympy.diff(qt, T) * _poly_expr(self.D, tt) ** 2))
         s2 = Step(f"With the parts' values at T, {name} is a rational function of T alone "
                   "(built exactly from the derived closed form and checked against it at "
                   "random temperatures); its extremes over the range are at the ends or where "
-                  f"the numerator of d{name}/dT vanishes.", [e1, e2], [], kind="drift")
+                  f"the numerator N_dT of d{name}/dT vanishes.", [e1, e2], [], kind="drift")
         cands = [["where", "T", f"{name}"]]
         eqs = []
         for label, tt_ in (("low end", self.a), ("high end", self.b)):
@@ -280,13 +280,11 @@ class Drift:
                   "form at that temperature).", eqs, [], kind="drift", table=cands)
         steps = [s1, s2, s3]
         if self.coefficient is not None:
-            e = Equation(sympy.Symbol(f"TC_{name}"),
-                         sympy.Rational(self.coefficient * PPM) * sympy.Symbol("ppm/K"),
-                         check=(sympy.Rational(self.coefficient_check * PPM) *
-                                sympy.Symbol("ppm/K")
+            e = Equation(sympy.Symbol(f"TC_{name}"), sympy.Rational(self.coefficient * PPM),
+                         check=(sympy.Rational(self.coefficient_check * PPM)
                                 if self.coefficient_check is not None else None))
             steps.append(Step(f"Drift coefficient at T0: (1/{name})·d{name}/dT = "
-                              f"{float(self.coefficient * PPM):.6g} ppm/K (exact: "
+                              f"{float(self.coefficient * PPM):.6g} ppm/K (TC_{name} below, in ppm/K, exact: "
                               f"N'(0)/N(0) − D'(0)/D(0)), checked against Σ S_x·tc_x from the "
                               "normalized sensitivities at nominal values.", [e], [],
                               kind="drift"))
