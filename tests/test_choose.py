@@ -175,3 +175,15 @@ def test_cached_neighbours_agree_with_the_series_module():
             assert choose.neighbours(series, x) == eseries.neighbours(series, x)
         for v in decades(series if series in SERIES else "E96", -1, 2)[:50]:
             assert choose.neighbours(series, v) == eseries.neighbours(series, v)
+
+
+def test_an_unreachable_target_is_a_located_error(tmp_path, capsys):
+    # vth = 5 R2/(10k + R2) < 5 V for every positive R2: 6 V is out of reach
+    line = "choose R2 from E24 for vth at out = 6 V"
+    path = tmp_path / "s.eqv"
+    path.write_text(DIVIDER + line + "\n", encoding="utf-8")
+    capsys.readouterr()
+    assert main(["record", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith(f"{path}:5:{line.index('6 V') + 1}: error: "), err
+    assert "out of reach" in err

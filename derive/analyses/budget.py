@@ -64,7 +64,9 @@ def budget_of(ctx: Context, a, tcs: dict, req) -> tuple:
     tcs = {x: tc for x, tc in tcs.items() if x in base}
     t0, ta, tb = _drift.temperature_offsets(ctx)
     tau = temperature_symbol(ctx)
-    form = with_temperature(a.form, tcs, tau)
+    if ta == tb:            # no range: every part at T0, the box of tolerances alone
+        tcs = {}
+    form = with_temperature(a.form, tcs, tau) if tcs else a.form
     box = _tol.box_of(ctx, base)
     if tcs and ta != tb:
         box[tau] = (sympy.Rational(ta + tb) / 2, sympy.Rational(tb - ta) / 2)

@@ -259,7 +259,16 @@ class Problem:
         seen = {}
         if len(self.chosen) == 1:
             N, D = self.univariate(())
-            for c in self.candidates(N, D):
+            cands = self.candidates(N, D)
+            if not cands:
+                lims = ", ".join("unbounded" if v is None else f"{float(v):.6g}"
+                                 for v in _limits(self, N, D))
+                raise SheetError(f"no positive value of {self.req.symbols[0]} gives "
+                                 f"{self.q.name} = {float(self.target):g}, and {self.q.name} "
+                                 f"has no turning point or pole in it (its limits towards 0 "
+                                 f"and infinity: {lims}): the target is out of reach",
+                                 *_at(self.req.name_locs.get("target", self.req.loc)))
+            for c in cands:
                 v = self.value((c,))
                 if v is not None:
                     seen[(c,)] = (self.error(v), (c,), v)
