@@ -187,3 +187,17 @@ def test_an_unreachable_target_is_a_located_error(tmp_path, capsys):
     err = capsys.readouterr().err
     assert err.startswith(f"{path}:5:{line.index('6 V') + 1}: error: "), err
     assert "out of reach" in err
+
+
+def test_a_wrong_evaluation_fails_its_check(monkeypatch):
+    """Mutation: the search's evaluator off by one part in 10^9; the step that states the
+    result is checked against the derived closed form and is then not verified."""
+    from derive.analyses import choose
+    good = choose.Problem.value
+
+    def off(self, vals):
+        v = good(self, vals)
+        return None if v is None else v * (1 + Fraction(1, 10 ** 9))
+    monkeypatch.setattr(choose.Problem, "value", off)
+    r = derive.derive_text(DIVIDER + "choose R2 from E24 for vth at out = 1.2 V\n").results[0]
+    assert not r.steps[-1].verified
