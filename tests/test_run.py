@@ -63,7 +63,6 @@ def test_the_handler_table_is_plain():
 
 
 @pytest.mark.parametrize("line,shown", [("find stress", "find stress"),
-                                        ("find drift of vth at out", "find drift of"),
                                         ("find operating point", "find operating point")])
 def test_a_kind_without_handler_is_refused_by_the_lookup(line, shown):
     c = derive.circuit_of(BRIDGE + line + "\n", "b.eqv")

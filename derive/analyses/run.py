@@ -13,6 +13,7 @@ from __future__ import annotations
 from typing import Callable
 
 from derive.analyses import claims, frequency, inversion, ports, power, sections
+from derive.analyses import budget, choose, drift
 from derive.analyses import sensitivity, substitution, tolerance
 from derive.circuit.build import Circuit
 from derive.errors import NotAvailableYet
@@ -31,6 +32,7 @@ HANDLERS: dict = {
     "model": sections.model_handler, "twoport": sections.twoport_handler,
     "sensitivity": sensitivity.sensitivity, "tolerance": tolerance.tolerance,
     "solve": inversion.solve_request, "check": claims.check_request,
+    "drift": drift.answer, "budget": budget.answer, "choose": choose.answer,
 }
 
 # how a request kind without a handler is named in the refusal

@@ -27,7 +27,7 @@ INSTALL_HINT = ("PDF records need TeX Live: install latexmk and pdflatex with si
 
 _TEXT_CHARS = {"Ω": r"\ensuremath{\Omega}", "µ": r"\ensuremath{\mu}", "μ": r"\ensuremath{\mu}",
                "±": r"\ensuremath{\pm}", "∥": r"\ensuremath{\parallel}", "·": r"\ensuremath{\cdot}",
-               "—": "---", "–": "--", "°": r"\ensuremath{^\circ}", "≈": r"\ensuremath{\approx}",
+               "—": "---", "–": "--", "°": r"\textdegree{}", "≈": r"\ensuremath{\approx}",
                "×": r"\ensuremath{\times}", "≤": r"\ensuremath{\le}", "≥": r"\ensuremath{\ge}",
                "Σ": r"\ensuremath{\Sigma}", "→": r"\ensuremath{\to}", "∞": r"\ensuremath{\infty}",
                "−": r"\ensuremath{-}", "∓": r"\ensuremath{\mp}", "≠": r"\ensuremath{\ne}",
@@ -182,8 +182,11 @@ def document(record, figures_dir=None) -> Document:
         rows = [[text(e["name"]), text(e["kind"]), text(e["terminals"]),
                  NoEscape(f"${e['symbol']}$") if e["symbol"] else "",
                  si_value(e["nominal"]) if e["nominal"] else "", text(e["tolerance"])]
+                + ([si_value(e["standard"]) if e["standard"] else ""]
+                   if v.get("standard_column") else [])
                 for e in v["elements"]]
-        _table(doc, ["element", "kind", "terminals", "symbol", "nominal", "tolerance"], rows)
+        _table(doc, ["element", "kind", "terminals", "symbol", "nominal", "tolerance"]
+               + (["with standard values"] if v.get("standard_column") else []), rows)
         with doc.create(Subsection("Modelling assumptions", numbering=False)):
             doc.append(NoEscape(r"\begin{itemize}"))
             for a in v["assumptions"]:

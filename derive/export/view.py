@@ -411,6 +411,7 @@ def request_summary(record, r) -> list:
                  if v.get("value") is not None]
         items.append({"label": "largest normalized sensitivities (x/Q)(dQ/dx)",
                       "math": "", "text": ", ".join(parts)})
+    items += review_items(x)
     if "holds" in x:
         if x["holds"]:
             verdict = "holds (exact)"
@@ -420,6 +421,45 @@ def request_summary(record, r) -> list:
             verdict = "undecided"
         items.append({"label": "claim", "math": "", "text": verdict})
     return items
+
+
+def review_items(x) -> list:
+    """Summary lines of ``find drift of``, ``find budget of`` and ``choose`` results."""
+    items = []
+    if "drift" in x:
+        d, unit = x["drift"], x["drift"].get("unit")
+        ppm = d.get("ppm_per_K")
+        items.append({"label": "drift over temperature", "math": "", "text":
+                      f"{_eng(d['low'], unit)} at {d['at_low']:g} °C to {_eng(d['high'], unit)} "
+                      f"at {d['at_high']:g} °C (nominal {_eng(d['nominal'], unit)}"
+                      + (f", {ppm:.4g} ppm/K at T0)" if ppm is not None else ")")})
+    if "budget" in x:
+        b, unit = x["budget"], x["budget"].get("unit")
+        items.append({"label": "tolerance and drift budget", "math": "", "text":
+                      f"{_eng(b['low'], unit)} to {_eng(b['high'], unit)} (extreme values, "
+                      f"nominal {_eng(b['nominal'], unit)}); RSS ± {_eng(b['rss'], unit)} "
+                      "(first order)"})
+    if "choice" in x:
+        c, unit = x["choice"], x["choice"].get("unit")
+        vals = ", ".join(f"{k} = {format_eng(v, c.get('units', {}).get(k), digits=4)}"
+                         for k, v in c["values"].items())
+        items.append({"label": f"standard values ({c['series']})", "math": "", "text":
+                      f"{vals}: {_eng(c['result'], unit)} for the target "
+                      f"{_eng(c['target'], unit)} (relative error {c['error']:.2e})"})
+    return items
+
+
+def standard_values(record) -> dict:
+    """Element name -> the standard value(s) ``choose`` requests give its symbol (text)."""
+    out: dict = {}
+    for r in record.results:
+        chosen = r.extra.get("standard_values") or {}
+        for e in record.circuit.elements:
+            if isinstance(e.value, sympy.Symbol) and str(e.value) in chosen:
+                unit = element_kinds.kind(e.kind).unit
+                out.setdefault(e.name, []).append(
+                    format_eng(chosen[str(e.value)], unit, digits=4))
+    return {k: " / ".join(dict.fromkeys(v)) for k, v in out.items()}
 
 
 def view(record) -> dict:
@@ -433,8 +473,11 @@ def view(record) -> dict:
                         "steps": [step_view(s) for s in r.steps],
                         "figures": list(figs)})
     all_steps = [s for r in results for s in r["steps"]]
+    rows, std = elements(c), standard_values(record)
+    for e in rows:              # the "with standard values" column, where any is chosen
+        e["standard"] = std.get(e["name"], "")
     return {"title": c.sheet.title or "Design calculation", "notes": list(c.sheet.notes),
-            "elements": elements(c), "assumptions": assumptions(c), "cautions": cautions(c),
+            "elements": rows, "standard_column": bool(std), "assumptions": assumptions(c), "cautions": cautions(c),
             "results": results,
             "closed_forms": any(q["long"] and q["lines"] for r in results
                                 for q in r["quantities"]),
