@@ -26,6 +26,8 @@ class QuantityResult:
     in_sequence: Optional[sympy.Expr] = None
     form: str = "expanded"              # 'expanded', 'series-parallel', 'sequence'
     notes: list = field(default_factory=list)
+    # ``approximately within E%``: {"expr", "max_error", "method", ...} (analyses.approximation)
+    approximation: Optional[dict] = None
 
     def __repr__(self) -> str:
         value = "no value" if self.value is None else format_eng(self.value, self.unit)
