@@ -40,6 +40,7 @@ from __future__ import annotations
 
 import itertools
 import math
+import re
 from fractions import Fraction
 
 import flint
@@ -379,9 +380,13 @@ def _proof(pb: Problem, cand: Candidate):
     qn, qd = cand.na * pb.ring.from_dict(dict(pb.den)), pb.ring.from_dict(dict(pb.num)) * cand.da
     if len(qn) * len(qd) > tolerance.EXACT_PRODUCT_TERMS:
         return None
+    g = qn.gcd(qd)
+    if not g.is_zero() and not g.is_one():
+        qn, qd = qn / g, qd / g
     form = sens.Form([], poly_expr(qn, pb.syms) / poly_expr(qd, pb.syms))
     signs = tolerance.exact_signs(form, pb.nominal, pb.box)
-    if any(x not in signs for x in pb.tol if x in form.final.free_symbols):
+    used = form.final.free_symbols            # a part that cancels does not move Q
+    if any(x not in signs for x in pb.tol if x in used):
         return None
     ex = Exact(pb, cand)
     worst, where = flint.fmpq(0), None
@@ -606,8 +611,9 @@ def _band_words(pb) -> str:
         return "over the whole tolerance box"
     lo, hi = (float(f) for f in pb.band)
     from derive.sheet.units import format_eng
-    return (f"over the whole tolerance box and the band {format_eng(lo, 'Hz')} to "
-            f"{format_eng(hi, 'Hz')} at s = j·2π·f")
+    def hz(v):
+        return re.sub(r"\.0+ ", " ", format_eng(v, "Hz", digits=4))
+    return f"over the whole tolerance box and the band {hz(lo)} to {hz(hi)} at s = j·2π·f"
 
 
 def _success(q, req, pb, sc, c, b) -> dict:
@@ -622,15 +628,21 @@ def _success(q, req, pb, sc, c, b) -> dict:
     eq2.mark("exact" if b.proven else "points", ok, None if b.proven else b.points)
     text = (f"Approximation of {name} within {_percent(within)}: keep the terms of the "
             f"exact numerator and denominator that dominate at nominal values ({c.label}), "
-            f"adding terms back largest first until the relative error |{name}_approx − "
-            f"{name}|/|{name}| stays within {_percent(within)} {_band_words(pb)}. "
+            f"adding terms back largest first until the magnitude of the relative error "
+            f"({name}_approx − {name})/{name} stays within {_percent(within)} "
+            f"{_band_words(pb)}. "
             f"The largest relative error is {_percent(b.value)} (bound {method_word(b)}). "
             + ("Assumptions: " + "; ".join(words) + "." if words else ""))
     step = Step(text, [eq1, eq2], kind="approximation")
     step.verify()
     return {"expr": c.expr, "latex": c.expr, "max_error": b.value, "within": within,
             "met": True, "method": b.method, "points": b.points,
-            "proven": b.proven, "assumptions": words, "form": c.label, "step": step}
+            "proven": b.proven, "assumptions": words, "form": c.label, "step": step,
+            **_band_entry(pb)}
+
+
+def _band_entry(pb) -> dict:
+    return {} if pb.band is None else {"band": [float(f) for f in pb.band]}
 
 
 def method_word(b) -> str:
@@ -675,7 +687,7 @@ def _failure(q, req, pb, tried) -> dict:
     return {"expr": None, "max_error": best, "within": within, "met": False,
             "method": (shown[0]["method"] if shown else "nothing to approximate"),
             "tried": [{k: v for k, v in s.items()} | {"latex": s["expr"]} for s in shown],
-            "step": step}
+            "step": step, **_band_entry(pb)}
 
 
 def answer(ctx, req, inner) -> RequestResult:
