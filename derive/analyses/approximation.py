@@ -67,6 +67,8 @@ EXACT_BUDGET = 40000        # exact evaluations (box points x frequencies) of th
 TOP_EXACT = 64              # worst screening points re-evaluated exactly
 LOCAL_STARTS = 6            # bounded local searches per form
 MARGINS = (0.8, 0.5, 0.25, 0.1)   # screening bound as a share of E, tightened on a miss
+WORDS_TERMS = 4             # a sum of more terms than this, and longer than WORDS_CHARS, is
+WORDS_CHARS = 80            #   named by its count and largest term in the assumptions
 MAX_TERMS = 400             # larger numerators or denominators are not approximated
 
 
@@ -89,14 +91,26 @@ class Problem:
         names = tuple(f"x{i}" for i in range(max(1, len(self.xs))))
         self.xring = flint.fmpq_mpoly_ctx.get(names, "lex")
         self.xnom = [_q(nominal[self.syms[j]]) for j in self.xs]
+        xpos = {self.syms[j]: k for k, j in enumerate(self.xs)}
+        self.tpos = [(xpos[x], _q(box[x][0]), _q(box[x][1])) for x in self.tol]
+        self.fnom = np.array([float(v) for v in self.xnom])
+        self.fpos = np.array([k for k, _c, _h in self.tpos], dtype=int)
+        self.fc = np.array([float(c) for _k, c, _h in self.tpos])
+        self.fh = np.array([float(h) for _k, _c, h in self.tpos])
 
     # -- points: u in [-1, 1] per toleranced part -> exact or float x values
     def xpoint(self, u) -> list:
         out = list(self.xnom)
-        for x, ui in zip(self.tol, u):
-            c, h = self.box[x]
-            out[self.xs.index(self.syms.index(x))] = _q(c) + _q(ui) * _q(h)
+        for (k, c, h), ui in zip(self.tpos, u):
+            out[k] = c + _q(ui) * h
         return out
+
+    def xfloat(self, U):
+        """Float x values at the rows of ``U`` (P, m)."""
+        X = np.tile(self.fnom, (U.shape[0], 1))
+        if len(self.tpos):
+            X[:, self.fpos] = self.fc[None, :] + U * self.fh[None, :]
+        return X
 
     def s_power(self, exps) -> int:
         return exps[self.si] if self.si is not None else 0
@@ -124,6 +138,29 @@ class Problem:
             d = by.setdefault(self.s_power(exps), {})
             d[key] = d.get(key, 0) + c
         return {k: self.xring.from_dict(d) for k, d in by.items()}
+
+
+_PRIMES = (2, 3, 5, 7, 11, 13, 17, 19, 23, 29, 31, 37, 41, 43, 47, 53, 59, 61, 67, 71, 73, 79,
+           83, 89, 97, 101, 103, 107, 109, 113, 127, 131, 137, 139, 149, 151, 157, 163, 167)
+
+
+def halton(m: int, n: int, skip: int = 1) -> list:
+    """``n`` points of the Halton sequence in [0, 1)^m (exact Fractions; the radical
+    inverses in the first ``m`` primes, from index ``skip``; beyond 39 parts the primes
+    repeat with a shifted index)."""
+    out = []
+    for i in range(skip, skip + n):
+        row = []
+        for d in range(m):
+            b = _PRIMES[d % len(_PRIMES)]
+            k, f, r = i + d // len(_PRIMES), Fraction(1), Fraction(0)
+            while k:
+                f /= b
+                r += f * (k % b)
+                k //= b
+            row.append(r)
+        out.append(row)
+    return out
 
 
 def _q(v) -> flint.fmpq:
@@ -197,13 +234,10 @@ class Screen:
                 us += [np.array(c, float) for c in itertools.product((-1.0, 1.0), repeat=m)]
             else:
                 us += [rng.choice((-1.0, 1.0), m) for _ in range(SCREEN_CORNERS)]
-            from scipy.stats import qmc
-            sob = qmc.Sobol(m, scramble=True, seed=seed).random(SCREEN_SOBOL if pb.band is None
-                                                                else 64)
-            us += [2 * r - 1 for r in sob]
+            us += [2 * np.array([float(v) for v in r]) - 1
+                   for r in halton(m, SCREEN_SOBOL if pb.band is None else 64)]
         self.U = np.array(us).reshape(len(us), m)
-        self.X = np.array([[float(v) for v in pb.xpoint(u)] for u in self.U]).reshape(
-            len(us), len(pb.xs))
+        self.X = pb.xfloat(self.U)
         if pb.band is not None:
             lo, hi = (math.log10(float(f)) for f in pb.band)
             n = max(2, int(math.ceil((hi - lo) * SCREEN_PER_DECADE)) + 1)
@@ -437,11 +471,9 @@ def establish(pb: Problem, sc: Screen, cand: Candidate) -> Bound:
         pts = [list(p) for p in itertools.product(vals, repeat=m) if any(abs(v) != 1 for v in p)]
         grid = f"a {levels}-level grid of the box ({levels}^{m} points)"
     else:
-        from scipy.stats import qmc
         n = max(1, min(512, EXACT_BUDGET // max(1, len(grid_ws)))) if m else 0
-        sob = qmc.Sobol(m, scramble=True, seed=3).random(n) if n else []
-        pts = [[Fraction(round((2 * r - 1) * 2 ** 20), 2 ** 20) for r in row] for row in sob]
-        grid = f"{len(pts)} quasi-random (Sobol, seeded) points of the box" if n else ""
+        pts = [[2 * r - 1 for r in row] for row in halton(m, n, skip=SCREEN_SOBOL + 1)]
+        grid = f"{len(pts)} quasi-random (Halton) points of the box" if n else ""
     for p in pts:
         take(p, grid_ws)
     # the worst screening points, exactly, then local searches from them
@@ -464,8 +496,7 @@ def establish(pb: Problem, sc: Screen, cand: Candidate) -> Bound:
 
         def obj(z):
             u, lf = z[:m], (z[m] if pb.band is not None else 0.0)
-            X = np.array([[float(v) for v in pb.xpoint([float(t) for t in u])]]).reshape(
-                1, len(pb.xs))
+            X = pb.xfloat(np.asarray(u, float).reshape(1, m))
             W = np.array([2 * math.pi * 10 ** lf]) if pb.band is not None else np.ones(1)
             tn, td = pb.term_values(pb.num, X, W), pb.term_values(pb.den, X, W)
             na, da = tn[sorted(cand.keep_n)].sum(0), td[sorted(cand.keep_d)].sum(0)
@@ -525,12 +556,23 @@ def assumptions(pb: Problem, sc: Screen, cand: Candidate) -> list:
                 continue
             kept = [i for i in idx if i in keep]
 
-            def part(ix):
+            def part(ix, brief=False):
                 ring = pb.ring
                 p = ring.from_dict(dict(terms[i] for i in ix))
                 if pb.si is not None and k:
                     p = p / ring.gens()[pb.si] ** k
-                return factored_expr(p, pb.syms) if len(p) <= 6 else poly_expr(p, pb.syms)
+                e = factored_expr(p, pb.syms) if len(p) <= 12 else poly_expr(p, pb.syms)
+                if e.could_extract_minus_sign():
+                    e = -e
+                if brief and len(ix) > WORDS_TERMS and len(to_text(e)) > WORDS_CHARS:
+                    top = max(ix, key=lambda i: abs(T[i, 0, 0]))
+                    one = ring.from_dict(dict([terms[top]]))
+                    if pb.si is not None and k:
+                        one = one / ring.gens()[pb.si] ** k
+                    e1 = poly_expr(one, pb.syms)
+                    e1 = -e1 if e1.could_extract_minus_sign() else e1
+                    return sympy.Symbol(f"the {len(ix)} terms led by {_words(e1)}")
+                return e
             where = which if pb.si is None else \
                 (f"the s^{k} coefficient of the {which}" if k > 1 else
                  f"the s coefficient of the {which}" if k == 1 else
@@ -539,13 +581,14 @@ def assumptions(pb: Problem, sc: Screen, cand: Candidate) -> list:
             if kept:
                 kval = abs(complex(T[kept, 0, 0].sum()))
                 r = kval / dval if dval else math.inf
-                out.append(f"{_words(part(kept))} ≫ {_words(part(dropped))} by a factor of "
+                out.append(f"{_words(part(kept, True))} ≫ {_words(part(dropped, True))} by a "
+                           f"factor of "
                            f"{_fmt_factor(r)} ({where}, at nominal values)")
             else:
                 with np.errstate(all="ignore"):
                     share = float(np.nanmax(np.abs(T[dropped, 0, :].sum(0)) / np.abs(P[0, :])))
                 out.append(f"the {'s^%d ' % k if k else ''}term{'s' if len(dropped) > 1 else ''} "
-                           f"{_words(part(dropped) * (S ** k if k else 1))} of the {which} "
+                           f"{_words(part(dropped, True) * (S ** k if k else 1))} of the {which} "
                            f"{'are' if len(dropped) > 1 else 'is'} negligible"
                            + (" over the band" if pb.band else "") +
                            f": at most {share * 100:.3g} % of the {which} at nominal values")
