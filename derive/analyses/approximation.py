@@ -100,6 +100,8 @@ class Problem:
 
     # -- points: u in [-1, 1] per toleranced part -> exact or float x values
     def xpoint(self, u) -> list:
+        if not self.xs:
+            return [flint.fmpq(0)]          # the placeholder generator of a ring without x
         out = list(self.xnom)
         for (k, c, h), ui in zip(self.tpos, u):
             out[k] = c + _q(ui) * h
@@ -436,7 +438,6 @@ def _proof(pb: Problem, cand: Candidate):
 
 def establish(pb: Problem, sc: Screen, cand: Candidate) -> Bound:
     """The largest relative error of ``cand``, evaluated exactly (see the module doc)."""
-    from scipy.optimize import minimize
     ex = Exact(pb, cand)
     m = len(pb.tol)
     omegas = _exact_omegas(pb)
@@ -490,6 +491,7 @@ def establish(pb: Problem, sc: Screen, cand: Candidate) -> Bound:
     dim = m + (1 if pb.band is not None else 0)
     n_local = 0
     if dim:
+        from scipy.optimize import minimize
         lo_f, hi_f = ((math.log10(float(pb.band[0])), math.log10(float(pb.band[1])))
                       if pb.band is not None else (0, 0))
         bounds = [(-1.0, 1.0)] * m + ([(lo_f, hi_f)] if pb.band is not None else [])
@@ -541,7 +543,14 @@ def _fmt_factor(r: float) -> str:
 
 
 def _words(e) -> str:
-    return to_text(e).replace("*", "·")
+    """An expression in prose: ``·`` for products, superscript powers (``C·R·s²``)."""
+    t = re.sub(r"\*\*(\d+)", lambda m: _power(int(m.group(1))), to_text(e))
+    return t.replace("*", "·")
+
+
+def _power(k: int) -> str:
+    """A superscript power for prose (s², s³; higher powers as s^k)."""
+    return {1: "", 2: "²", 3: "³"}.get(k, f"^{k}")
 
 
 def assumptions(pb: Problem, sc: Screen, cand: Candidate) -> list:
@@ -574,7 +583,7 @@ def assumptions(pb: Problem, sc: Screen, cand: Candidate) -> list:
                     return sympy.Symbol(f"the {len(ix)} terms led by {_words(e1)}")
                 return e
             where = which if pb.si is None else \
-                (f"the s^{k} coefficient of the {which}" if k > 1 else
+                (f"the s{_power(k)} coefficient of the {which}" if k > 1 else
                  f"the s coefficient of the {which}" if k == 1 else
                  f"the constant coefficient of the {which}")
             dval = float(abs(sum(abs(T[i, 0, 0]) for i in dropped)))
@@ -587,7 +596,7 @@ def assumptions(pb: Problem, sc: Screen, cand: Candidate) -> list:
             else:
                 with np.errstate(all="ignore"):
                     share = float(np.nanmax(np.abs(T[dropped, 0, :].sum(0)) / np.abs(P[0, :])))
-                out.append(f"the {'s^%d ' % k if k else ''}term{'s' if len(dropped) > 1 else ''} "
+                out.append(f"the {'s%s ' % _power(k) if k else ''}term{'s' if len(dropped) > 1 else ''} "
                            f"{_words(part(dropped, True) * (S ** k if k else 1))} of the {which} "
                            f"{'are' if len(dropped) > 1 else 'is'} negligible"
                            + (" over the band" if pb.band else "") +
@@ -597,6 +606,8 @@ def assumptions(pb: Problem, sc: Screen, cand: Candidate) -> list:
 
 # ---------------------------------------------------------------- the analysis
 def _percent(v: float) -> str:
+    if v >= 10:
+        return f"{v * 100:,.0f} %".replace(",", " ")
     return f"{v * 100:.3g} %"
 
 
@@ -613,6 +624,8 @@ def approximate(ctx, req, q) -> dict | None:
     within = float(req.within)
     if q.expr is None and not q.sequence:
         return None
+    if q.expr is not None and not (q.expr.free_symbols - {S}) and not q.expr.has(S):
+        return {"note": f"{q.name} is a constant: there is nothing to approximate"}
     r = sens.rational(q.expr, []) if q.expr is not None else \
         sens.rational(q.in_sequence, list(q.sequence))
     if r is None:
@@ -715,12 +728,17 @@ def _failure(q, req, pb, tried) -> dict:
     for c, b in tried:
         if any(c.expr == s["expr"] for s in shown):
             continue
-        shown.append({"expr": c.expr, "form": c.label, "max_error": b.value,
-                      "method": b.method, "points": b.points, "proven": b.proven})
+        finite = math.isfinite(b.value)
+        shown.append({"expr": c.expr, "form": c.label,
+                      "max_error": b.value if finite else None,
+                      "method": b.method, "points": b.points, "proven": b.proven}
+                     | ({} if finite else {"unbounded": True}))
     shown.sort(key=lambda s: len(to_text(s["expr"])))
-    best = min((s["max_error"] for s in shown), default=None)
-    tried_words = "; ".join(f"{to_text(s['expr'])} ({s['form']}): largest error "
-                            f"{_percent(s['max_error'])}" for s in shown)
+    best = min((s["max_error"] for s in shown if s["max_error"] is not None), default=None)
+    tried_words = "; ".join(f"{_words(s['expr'])} ({s['form']}): largest error "
+                            + (_percent(s["max_error"]) if s["max_error"] is not None else
+                               "unbounded (the exact value is 0 at a point of the box)")
+                            for s in shown)
     text = (f"Approximation of {q.name} within {_percent(within)}: no form shorter than the "
             f"exact one meets the bound {_band_words(pb)}"
             + (f". Shortest forms tried: {tried_words}." if shown else

@@ -36,7 +36,9 @@ _TEXT_CHARS = {"Ω": r"\ensuremath{\Omega}", "µ": r"\ensuremath{\mu}", "μ": r"
                "…": r"\ldots{}", "‰": r"\textperthousand{}", "€": r"\texteuro{}",
                "“": "``", "”": "''", "‘": "`", "’": "'", "\u2009": r"\,", "\u00a0": "~",
                "∠": r"\ensuremath{\angle}", "∑": r"\ensuremath{\sum}",
-               "⋅": r"\ensuremath{\cdot}", "Ω": r"\ensuremath{\Omega}"}
+               "⋅": r"\ensuremath{\cdot}", "Ω": r"\ensuremath{\Omega}",
+               "≫": r"\ensuremath{\gg}", "≪": r"\ensuremath{\ll}", "²": r"\ensuremath{^2}",
+               "³": r"\ensuremath{^3}"}
 # Greek letters (both the Greek block's µ and Ω are covered above): the math italic of the
 # Computer/Latin Modern fonts; capitals that look like Latin letters are upright Latin.
 _GREEK = ("alpha beta gamma delta epsilon zeta eta theta iota kappa lambda mu nu xi o pi rho "

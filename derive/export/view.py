@@ -374,7 +374,8 @@ def _frequency_items(record, r, q):
 def _approximation_item(q) -> dict:
     """The summary line of ``approximately within``: the short form and its bound."""
     a = q.approximation
-    pct = lambda v: f"{v * 100:.3g} %"          # noqa: E731
+    pct = lambda v: (f"{v * 100:.3g} %" if v < 10 else      # noqa: E731
+                     f"{v * 100:,.0f} %".replace(",", " "))
     how = "proven" if a.get("proven") else f"searched, {a.get('points')} points"
     if a.get("met"):
         form = to_latex(a["expr"])
