@@ -279,3 +279,26 @@ def test_summary_line_in_markdown():
     md = record(DIVIDER).to_markdown()
     assert r"\mathrm{gain} \approx \frac{R_{2}}{R_{1} + R_{2}}" in md
     assert "no form shorter than the exact one meets 0.001 %" in md
+
+
+BRIDGE = """voltage source Vx between top and gnd = 5 V
+resistor Ra between top and left = 350 ohm ±1%
+resistor Rb between left and gnd = 350 ohm ±1%
+resistor Rc between top and right = 350 ohm ±1%
+resistor Rg between right and gnd = 350 ohm ±1%
+port out between left and right
+find vth at out approximately within 1%
+"""
+
+
+def test_a_result_that_crosses_zero_has_no_relative_bound():
+    """A balanced bridge: vth = Vx (Rb Rc - Ra Rg)/((Ra + Rb)(Rc + Rg)) (handbook bridge
+    formula) is 0 at nominal, so no form has a bounded relative error; the record says so
+    and the JSON stays strict (no Infinity or NaN)."""
+    rec, a = approx_of(BRIDGE, "vth")
+    assert a["met"] is False and a["max_error"] is None
+    assert all(t.get("unbounded") for t in a["tried"])
+
+    def refuse(name):
+        raise AssertionError(f"{name} in the JSON record")
+    json.loads(rec.to_json(), parse_constant=refuse)
