@@ -69,6 +69,7 @@ LOCAL_STARTS = 6            # bounded local searches per form
 MARGINS = (0.8, 0.5, 0.25, 0.1)   # screening bound as a share of E, tightened on a miss
 WORDS_TERMS = 4             # a sum of more terms than this, and longer than WORDS_CHARS, is
 WORDS_CHARS = 80            #   named by its count and largest term in the assumptions
+INTERVAL_TERMS = 60         # approx/exact up to this many terms gets interval proofs too
 MAX_TERMS = 400             # larger numerators or denominators are not approximated
 
 
@@ -147,7 +148,7 @@ _PRIMES = (2, 3, 5, 7, 11, 13, 17, 19, 23, 29, 31, 37, 41, 43, 47, 53, 59, 61, 6
 
 
 def halton(m: int, n: int, skip: int = 1) -> list:
-    """``n`` points of the Halton sequence in [0, 1)^m (exact Fractions; the radical
+    """``n`` points of the Halton sequence in [0, 1)^m (exact ``fmpq``: the radical
     inverses in the first ``m`` primes, from index ``skip``; beyond 39 parts the primes
     repeat with a shifted index)."""
     out = []
@@ -155,12 +156,10 @@ def halton(m: int, n: int, skip: int = 1) -> list:
         row = []
         for d in range(m):
             b = _PRIMES[d % len(_PRIMES)]
-            k, f, r = i + d // len(_PRIMES), Fraction(1), Fraction(0)
+            k, num, den = i + d // len(_PRIMES), 0, 1
             while k:
-                f /= b
-                r += f * (k % b)
-                k //= b
-            row.append(r)
+                num, den, k = num * b + k % b, den * b, k // b
+            row.append(flint.fmpq(num, den))
         out.append(row)
     return out
 
@@ -236,7 +235,7 @@ class Screen:
                 us += [np.array(c, float) for c in itertools.product((-1.0, 1.0), repeat=m)]
             else:
                 us += [rng.choice((-1.0, 1.0), m) for _ in range(SCREEN_CORNERS)]
-            us += [2 * np.array([float(v) for v in r]) - 1
+            us += [2 * np.array([float(int(v.p)) / float(int(v.q)) for v in r]) - 1
                    for r in halton(m, SCREEN_SOBOL if pb.band is None else 64)]
         self.U = np.array(us).reshape(len(us), m)
         self.X = pb.xfloat(self.U)
@@ -422,6 +421,9 @@ def _proof(pb: Problem, cand: Candidate):
     form = sens.Form([], poly_expr(qn, pb.syms) / poly_expr(qd, pb.syms))
     signs = tolerance.exact_signs(form, pb.nominal, pb.box)
     used = form.final.free_symbols            # a part that cancels does not move Q
+    rest = [x for x in pb.tol if x in used and x not in signs]
+    if rest and len(qn) + len(qd) <= INTERVAL_TERMS:
+        signs.update(_interval_signs(pb, form, rest))
     if any(x not in signs for x in pb.tol if x in used):
         return None
     ex = Exact(pb, cand)
@@ -434,6 +436,24 @@ def _proof(pb: Problem, cand: Candidate):
         if e >= worst:
             worst, where = e, u
     return worst, where
+
+
+def _interval_signs(pb: Problem, form, parts) -> dict:
+    """Signs of d(approx/exact)/dx proven constant on the box by interval arithmetic
+    (outward-rounded, with bisection: :func:`derive.analyses.tolerance.derivative_sign`)."""
+    def widen(lo, hi):
+        return math.nextafter(math.nextafter(lo, -math.inf), -math.inf), \
+            math.nextafter(math.nextafter(hi, math.inf), math.inf)
+    env = {x: widen(float(v), float(v)) for x, v in pb.nominal.items()}
+    env.update({x: widen(float(c - h), float(c + h)) for x, (c, h) in pb.box.items()})
+    out = {}
+    for x in parts:
+        dform = sens.derivative(form, x)[0]
+        sgn = tolerance.derivative_sign(dform, env, list(pb.box))
+        if sgn is None:
+            break                       # one unproven part is enough to give up
+        out[x] = sgn
+    return out
 
 
 def establish(pb: Problem, sc: Screen, cand: Candidate) -> Bound:
@@ -528,8 +548,9 @@ def establish(pb: Problem, sc: Screen, cand: Candidate) -> Bound:
     proof = _proof(pb, cand)
     if proof is not None and proof[0] >= best:
         method = ("proven: approx/exact is monotone in every toleranced part (signs of the "
-                  "coefficients of its exact derivative numerators), so the largest error is "
-                  "at one of two corners, evaluated exactly; cross-checked by " + method)
+                  "coefficients of its exact derivative numerators, or interval arithmetic on "
+                  "the derivative), so the largest error is at one of two corners, evaluated "
+                  "exactly; cross-checked by " + method)
         return Bound(proof[0], ex.count, True, method, (proof[1], None))
     return Bound(best, ex.count, False, method, where)
 
