@@ -302,3 +302,23 @@ def test_a_result_that_crosses_zero_has_no_relative_bound():
     def refuse(name):
         raise AssertionError(f"{name} in the JSON record")
     json.loads(rec.to_json(), parse_constant=refuse)
+
+
+POWER = """voltage source Vin between in and gnd = 5 V
+resistor R1 between in and out = 10 ohm ±1%
+resistor R2 between out and gnd = 1 kohm ±1%
+port out between out and gnd
+find power in R2 approximately within 2%
+"""
+
+
+def test_power_in_a_load_behind_a_small_series_resistance():
+    """P = Vin² R2/(R1 + R2)² (handbook power in the load of a divider, from memory);
+    with R1 ≪ R2 the first-order form Vin²/(R2 + 2 R1) is within 2 % (Vin²/R2 alone misses
+    by 2 R1/R2 ≈ 2 %)."""
+    rec, a = approx_of(POWER, "power")
+    Vin, R1, R2 = sympy.symbols("Vin R1 R2")
+    assert a["met"] and sympy.simplify(a["expr"] - Vin**2 / (R2 + 2 * R1)) == 0
+    g = box_grid({"Vin": 5.0, "R1": 10.0, "R2": 1e3}, {"R1": .01, "R2": .01}, levels=11)
+    exact = g["Vin"] ** 2 * g["R2"] / (g["R1"] + g["R2"]) ** 2
+    check_bound(a, g["Vin"] ** 2 / (g["R2"] + 2 * g["R1"]), exact, 0.02)

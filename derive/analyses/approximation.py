@@ -15,7 +15,7 @@ How the form is found (:func:`approximate`):
    together, until the error screened in floating point over a set of points of the box
    (and band) is below the bound with a margin; then drop again every kept term that is not
    needed (lightest first). For a function of ``s`` the same is done once more within the
-   structural form "gain x one-pole factor" (the lowest power of ``s`` in the numerator,
+   structural form "gain × one-pole factor" (the lowest power of ``s`` in the numerator,
    the lowest two in the denominator). The shortest printed form whose *established* bound
    meets E is chosen; the kept polynomials are cancelled and factored exactly (so a
    denominator ``1 + s(R1 C1 + R2 C2) + s^2 R1 R2 C1 C2`` is written as the product of two
@@ -214,8 +214,9 @@ class Candidate:
         n, d = self.na, self.da
         if not g.is_one() and not g.is_zero():
             n, d = n / g, d / g
-        lc = d.leading_coefficient()
-        self.n, self.d = n / lc, d / lc
+        if d.leading_coefficient() < 0:          # the sign in front, integers kept
+            n, d = -n, -d
+        self.n, self.d = n, d
         self.expr = factored_expr(self.n, pb.syms) / factored_expr(self.d, pb.syms)
         self.plain = poly_expr(self.na, pb.syms) / poly_expr(self.da, pb.syms)
         self.size = len(to_text(self.expr))
@@ -303,7 +304,7 @@ def candidates(pb: Problem, sc: Screen, within: float, margin: float) -> list:
         un = [i for i in all_n if pb.s_power(pb.num[i][0]) == ln]
         ud = [i for i in all_d if pb.s_power(pb.den[i][0]) in (ld, ld + 1)]
         if len(un) < len(pb.num) or len(ud) < len(pb.den):
-            universes.append((un, ud, "gain x one-pole factor"))
+            universes.append((un, ud, "gain × one-pole factor"))
     out, seen = [], set()
     for un, ud, label in universes:
         k = _greedy(pb, sc, wn, wd, un, ud, within * margin, label)
