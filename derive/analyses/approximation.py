@@ -558,6 +558,8 @@ def establish(pb: Problem, sc: Screen, cand: Candidate) -> Bound:
 
 # ---------------------------------------------------------------- assumptions in words
 def _fmt_factor(r: float) -> str:
+    if not math.isfinite(r):
+        return "more than any number (the dropped terms are 0 at nominal values)"
     if r >= 1000:
         k = 10 ** (int(math.floor(math.log10(r))) - 1)
         return f"{round(r / k) * k:,.0f}".replace(",", " ")
@@ -637,8 +639,11 @@ def _bound_up(v: float) -> sympy.Float:
     """``v`` rounded up to three significant digits (a bound stays a bound)."""
     if not math.isfinite(v) or v <= 0:
         return sympy.Float(v, 3)
-    k = 10 ** (math.floor(math.log10(v)) - 2)
-    return sympy.Float(math.ceil(v / k - 1e-9) * k, 3)
+    m, e = f"{v:.2e}".split("e")
+    r = float(f"{m}e{e}")
+    if r < v:
+        r = float(f"{float(m) + 0.01:.2f}e{e}")
+    return sympy.Float(r, 3)
 
 
 def approximate(ctx, req, q) -> dict | None:
@@ -733,10 +738,13 @@ def _recheck(pb, c, b, bound) -> bool:
     ex = Exact(pb, c)
     lim = _q(float(bound)) ** 2
     u, w = b.worst if b.worst else ([0] * len(pb.tol), None)
+    if pb.band is None:
+        w = None
+    elif w is None:
+        w = _exact_omegas(pb)[0]
     pts = [(u, w)]
     if len(pb.tol) <= 10:
-        ws = [None] if pb.band is None else [w or _exact_omegas(pb)[0]]
-        pts += [(list(cn), ws[0]) for cn in itertools.product((-1, 1), repeat=len(pb.tol))]
+        pts += [(list(cn), w) for cn in itertools.product((-1, 1), repeat=len(pb.tol))]
     for u, w in pts:
         e = ex.err2(u, [w])[0]
         if e is None or e > lim:
