@@ -204,12 +204,17 @@ def _cmul(a, b):
 class Candidate:
     """A kept subset of the terms: ``keep_n``, ``keep_d`` index sets."""
 
-    def __init__(self, pb: Problem, keep_n, keep_d, label: str):
+    def __init__(self, pb: Problem, keep_n, keep_d, label: str, polys=None, factors=None):
         self.pb, self.label = pb, label
-        self.keep_n, self.keep_d = frozenset(keep_n), frozenset(keep_d)
         ring = pb.ring
-        self.na = ring.from_dict(dict(pb.num[i] for i in sorted(self.keep_n)))
-        self.da = ring.from_dict(dict(pb.den[i] for i in sorted(self.keep_d)))
+        self.factors = factors          # [(words, terms, kept indices)] of a per-factor form
+        if polys is not None:           # a per-factor form: the products, expanded
+            self.keep_n = self.keep_d = None
+            self.na, self.da = polys
+        else:
+            self.keep_n, self.keep_d = frozenset(keep_n), frozenset(keep_d)
+            self.na = ring.from_dict(dict(pb.num[i] for i in sorted(self.keep_n)))
+            self.da = ring.from_dict(dict(pb.den[i] for i in sorted(self.keep_d)))
         g = self.na.gcd(self.da)
         n, d = self.na, self.da
         if not g.is_one() and not g.is_zero():
@@ -220,7 +225,15 @@ class Candidate:
         self.expr = factored_expr(self.n, pb.syms) / factored_expr(self.d, pb.syms)
         self.plain = poly_expr(self.na, pb.syms) / poly_expr(self.da, pb.syms)
         self.size = len(to_text(self.expr))
-        self.terms = len(self.keep_n) + len(self.keep_d)
+        self.terms = len(self.na) + len(self.da)
+
+    def key(self):
+        return (self.na, self.da) if self.keep_n is None else (self.keep_n, self.keep_d)
+
+    def term_lists(self):
+        """The kept numerator and denominator as term lists (int exponents)."""
+        return ([(tuple(int(e) for e in k), c) for k, c in self.na.to_dict().items()],
+                [(tuple(int(e) for e in k), c) for k, c in self.da.to_dict().items()])
 
 
 # ---------------------------------------------------------------- screening (floats)
@@ -271,6 +284,17 @@ class Screen:
     def max_error(self, cand_n, cand_d) -> float:
         return float(self.error(cand_n, cand_d).max())
 
+    def error_of(self, cand):
+        """The float error of a candidate at every screening point."""
+        if cand.keep_n is not None:
+            return self.error(cand.keep_n, cand.keep_d)
+        tn, td = cand.term_lists()
+        na = self.pb.term_values(tn, self.X, self.W).sum(0)
+        da = self.pb.term_values(td, self.X, self.W).sum(0)
+        with np.errstate(all="ignore"):
+            e = np.abs(na * self.D - self.N * da) / np.abs(self.N * da)
+        return np.nan_to_num(e, nan=np.inf)
+
 
 # ---------------------------------------------------------------- the search
 def _greedy(pb, sc, wn, wd, uni_n, uni_d, bound, label):
@@ -315,7 +339,96 @@ def candidates(pb: Problem, sc: Screen, within: float, margin: float) -> list:
             continue
         seen.add(key)
         out.append(Candidate(pb, k[0], k[1], label))
+    f = per_factor(pb, sc, within * margin)
+    if f is not None and all(f.key() != c.key() for c in out):
+        out.append(f)
     return out
+
+
+def _factors_of(pb, p) -> tuple:
+    content, fs = p.factor()
+    return content, [([(tuple(int(e) for e in k), c) for k, c in f.to_dict().items()], int(m))
+                     for f, m in fs]
+
+
+def per_factor(pb: Problem, sc: Screen, budget: float):
+    """Dominant terms within each irreducible factor of the numerator and denominator
+    (a multi-stage result is a product of stage factors): every factor of several terms
+    starts from its heaviest term and takes terms back, heaviest first, until its own
+    relative error over the screening points is below an equal share of ``budget``; then
+    terms are dropped again across all factors, lightest first, while the error of the whole
+    product stays below ``budget``. None where there are not two factors to work on."""
+    if len(pb.num) * len(pb.den) > 200000:
+        return None
+    ring = pb.ring
+    cn, fn = _factors_of(pb, ring.from_dict(dict(pb.num)))
+    cd, fd = _factors_of(pb, ring.from_dict(dict(pb.den)))
+    multi = [(f, m) for f, m in fn + fd if len(f) > 1]
+    if len(fn) + len(fd) < 2 or not multi:
+        return None
+    share = budget / sum(m for _f, m in multi)
+    items = []          # [which, content-or-None, terms, multiplicity, T, weights, keep]
+    for which, content, fs in (("numerator", cn, fn), ("denominator", cd, fd)):
+        for f, m in fs:
+            T = pb.term_values(f, sc.X, sc.W)
+            F = T.sum(0)
+            with np.errstate(all="ignore"):
+                w = np.nan_to_num((np.abs(T[:, 0, :]) / np.abs(F[0, :])[None, :]),
+                                  nan=0.0, posinf=1e300).max(axis=1)
+            keep = set(range(len(f)))
+            if len(f) > 1:
+                order = sorted(range(len(f)), key=lambda i: (-w[i], i))
+
+                def err(ks, T=T, F=F):
+                    with np.errstate(all="ignore"):
+                        e = np.abs(T[sorted(ks)].sum(0) - F) / np.abs(F)
+                    return float(np.nan_to_num(e, nan=np.inf).max())
+                keep = {order[0]}
+                for i in order[1:]:
+                    if err(keep) <= share:
+                        break
+                    keep.add(i)
+            items.append([which, f, m, T, w, keep])
+
+    def total(items):
+        num = np.full(sc.N.shape, complex(float(cn)))
+        den = np.full(sc.D.shape, complex(float(cd)))
+        for which, f, m, T, w, keep in items:
+            v = T[sorted(keep)].sum(0) ** m
+            if which == "numerator":
+                num = num * v
+            else:
+                den = den * v
+        with np.errstate(all="ignore"):
+            e = np.abs(num * sc.D - sc.N * den) / np.abs(sc.N * den)
+        return float(np.nan_to_num(e, nan=np.inf).max())
+    if total(items) > budget:
+        return None
+    drops = sorted(((it[4][i], k, i) for k, it in enumerate(items) for i in it[5]),
+                   key=lambda t: (t[0], t[1], t[2]))
+    for _w, k, i in drops:
+        keep = items[k][5]
+        if len(keep) > 1:
+            keep.discard(i)
+            if total(items) > budget:
+                keep.add(i)
+    words, polys = [], {"numerator": ring.constant(cn), "denominator": ring.constant(cd)}
+    for which, f, m, T, w, keep in items:
+        polys[which] = polys[which] * ring.from_dict(dict(f[i] for i in sorted(keep))) ** m
+        if len(keep) < len(f):
+            fe = poly_expr(ring.from_dict(dict(f)), pb.syms)
+            text = _words(fe)
+            if len(f) > WORDS_TERMS and len(text) > WORDS_CHARS:
+                top = max(range(len(f)), key=lambda i: w[i])
+                text = (f"the factor of {len(f)} terms led by "
+                        f"{_words(poly_expr(ring.from_dict(dict([f[top]])), pb.syms))}")
+            else:
+                text = f"the factor ({text})"
+            words.append((f"{text} of the {which}", f, keep))
+    if not words:
+        return None
+    return Candidate(pb, None, None, "dominant terms per factor",
+                     polys=(polys["numerator"], polys["denominator"]), factors=words)
 
 
 def shortest_tried(pb: Problem, sc: Screen) -> list:
@@ -499,7 +612,7 @@ def establish(pb: Problem, sc: Screen, cand: Candidate) -> Bound:
     for p in pts:
         take(p, grid_ws)
     # the worst screening points, exactly, then local searches from them
-    e = sc.error(cand.keep_n, cand.keep_d)
+    e = sc.error_of(cand)
     flat = np.argsort(-e, axis=None)[:TOP_EXACT]
     starts = []
     for k in flat:
@@ -517,13 +630,15 @@ def establish(pb: Problem, sc: Screen, cand: Candidate) -> Bound:
                       if pb.band is not None else (0, 0))
         bounds = [(-1.0, 1.0)] * m + ([(lo_f, hi_f)] if pb.band is not None else [])
 
+        cn_terms, cd_terms = cand.term_lists()
+
         def obj(z):
             u, lf = z[:m], (z[m] if pb.band is not None else 0.0)
             X = pb.xfloat(np.asarray(u, float).reshape(1, m))
             W = np.array([2 * math.pi * 10 ** lf]) if pb.band is not None else np.ones(1)
-            tn, td = pb.term_values(pb.num, X, W), pb.term_values(pb.den, X, W)
-            na, da = tn[sorted(cand.keep_n)].sum(0), td[sorted(cand.keep_d)].sum(0)
-            n, d = tn.sum(0), td.sum(0)
+            n, d = pb.term_values(pb.num, X, W).sum(0), pb.term_values(pb.den, X, W).sum(0)
+            na = pb.term_values(cn_terms, X, W).sum(0)
+            da = pb.term_values(cd_terms, X, W).sum(0)
             with np.errstate(all="ignore"):
                 v = float((np.abs(na * d - n * da) / np.abs(n * da))[0, 0])
             return -v if math.isfinite(v) else -1e300
@@ -578,53 +693,63 @@ def _power(k: int) -> str:
 
 
 def assumptions(pb: Problem, sc: Screen, cand: Candidate) -> list:
-    out = []
-    for which, terms, keep, T, P in (("numerator", pb.num, cand.keep_n, sc.Tn, sc.N),
-                                     ("denominator", pb.den, cand.keep_d, sc.Td, sc.D)):
-        powers = sorted({pb.s_power(e) for e, _ in terms})
-        for k in powers:
-            idx = [i for i, (e, _c) in enumerate(terms) if pb.s_power(e) == k]
-            dropped = [i for i in idx if i not in keep]
-            if not dropped:
-                continue
-            kept = [i for i in idx if i in keep]
+    if cand.factors is not None:            # dominant terms per factor
+        out = []
+        for which, f, keep in cand.factors:
+            T = pb.term_values(f, sc.X, sc.W)
+            out += _group_words(pb, which, f, keep, T, T.sum(0))
+        return out
+    return (_group_words(pb, "numerator", pb.num, cand.keep_n, sc.Tn, sc.N) +
+            _group_words(pb, "denominator", pb.den, cand.keep_d, sc.Td, sc.D))
 
-            def part(ix, brief=False):
-                ring = pb.ring
-                p = ring.from_dict(dict(terms[i] for i in ix))
+
+def _group_words(pb, which, terms, keep, T, P) -> list:
+    """The dropped terms of one polynomial in words, per power of s."""
+    out = []
+    powers = sorted({pb.s_power(e) for e, _ in terms})
+    for k in powers:
+        idx = [i for i, (e, _c) in enumerate(terms) if pb.s_power(e) == k]
+        dropped = [i for i in idx if i not in keep]
+        if not dropped:
+            continue
+        kept = [i for i in idx if i in keep]
+
+        def part(ix, brief=False):
+            ring = pb.ring
+            p = ring.from_dict(dict(terms[i] for i in ix))
+            if pb.si is not None and k:
+                p = p / ring.gens()[pb.si] ** k
+            e = factored_expr(p, pb.syms) if len(p) <= 12 else poly_expr(p, pb.syms)
+            if e.could_extract_minus_sign():
+                e = -e
+            if brief and len(ix) > WORDS_TERMS and len(to_text(e)) > WORDS_CHARS:
+                top = max(ix, key=lambda i: abs(T[i, 0, 0]))
+                one = ring.from_dict(dict([terms[top]]))
                 if pb.si is not None and k:
-                    p = p / ring.gens()[pb.si] ** k
-                e = factored_expr(p, pb.syms) if len(p) <= 12 else poly_expr(p, pb.syms)
-                if e.could_extract_minus_sign():
-                    e = -e
-                if brief and len(ix) > WORDS_TERMS and len(to_text(e)) > WORDS_CHARS:
-                    top = max(ix, key=lambda i: abs(T[i, 0, 0]))
-                    one = ring.from_dict(dict([terms[top]]))
-                    if pb.si is not None and k:
-                        one = one / ring.gens()[pb.si] ** k
-                    e1 = poly_expr(one, pb.syms)
-                    e1 = -e1 if e1.could_extract_minus_sign() else e1
-                    return sympy.Symbol(f"the {len(ix)} terms led by {_words(e1)}")
-                return e
-            where = which if pb.si is None else \
-                (f"the s{_power(k)} coefficient of the {which}" if k > 1 else
-                 f"the s coefficient of the {which}" if k == 1 else
-                 f"the constant coefficient of the {which}")
-            dval = float(abs(sum(abs(T[i, 0, 0]) for i in dropped)))
-            if kept:
-                kval = abs(complex(T[kept, 0, 0].sum()))
-                r = kval / dval if dval else math.inf
-                out.append(f"{_words(part(kept, True))} ≫ {_words(part(dropped, True))} by a "
-                           f"factor of "
-                           f"{_fmt_factor(r)} ({where}, at nominal values)")
-            else:
-                with np.errstate(all="ignore"):
-                    share = float(np.nanmax(np.abs(T[dropped, 0, :].sum(0)) / np.abs(P[0, :])))
-                out.append(f"the {'s%s ' % _power(k) if k else ''}term{'s' if len(dropped) > 1 else ''} "
-                           f"{_words(part(dropped, True) * (S ** k if k else 1))} of the {which} "
-                           f"{'are' if len(dropped) > 1 else 'is'} negligible"
-                           + (" over the band" if pb.band else "") +
-                           f": at most {share * 100:.3g} % of the {which} at nominal values")
+                    one = one / ring.gens()[pb.si] ** k
+                e1 = poly_expr(one, pb.syms)
+                e1 = -e1 if e1.could_extract_minus_sign() else e1
+                return sympy.Symbol(f"the {len(ix)} terms led by {_words(e1)}")
+            return e
+        where = which if pb.si is None else \
+            (f"the s{_power(k)} coefficient of the {which}" if k > 1 else
+             f"the s coefficient of the {which}" if k == 1 else
+             f"the constant coefficient of the {which}")
+        dval = float(abs(sum(abs(T[i, 0, 0]) for i in dropped)))
+        if kept:
+            kval = abs(complex(T[kept, 0, 0].sum()))
+            r = kval / dval if dval else math.inf
+            out.append(f"{_words(part(kept, True))} ≫ {_words(part(dropped, True))} by a "
+                       f"factor of "
+                       f"{_fmt_factor(r)} ({where}, at nominal values)")
+        else:
+            with np.errstate(all="ignore"):
+                share = float(np.nanmax(np.abs(T[dropped, 0, :].sum(0)) / np.abs(P[0, :])))
+            out.append(f"the {'s%s ' % _power(k) if k else ''}term{'s' if len(dropped) > 1 else ''} "
+                       f"{_words(part(dropped, True) * (S ** k if k else 1))} of the {which} "
+                       f"{'are' if len(dropped) > 1 else 'is'} negligible"
+                       + (" over the band" if pb.band else "") +
+                       f": at most {share * 100:.3g} % of the {which} at nominal values")
     return out
 
 
