@@ -322,3 +322,43 @@ def test_power_in_a_load_behind_a_small_series_resistance():
     g = box_grid({"Vin": 5.0, "R1": 10.0, "R2": 1e3}, {"R1": .01, "R2": .01}, levels=11)
     exact = g["Vin"] ** 2 * g["R2"] / (g["R1"] + g["R2"]) ** 2
     check_bound(a, g["Vin"] ** 2 / (g["R2"] + 2 * g["R1"]), exact, 0.02)
+
+
+CASCADE = """title "Two inverting stages"
+voltage source Vin between a and gnd = 1 V
+resistor R1 between a and n1 = 10 kohm ±1%
+resistor R2 between n1 and o1 = 47 kohm ±1%
+opamp U1 inputs gnd, n1 output o1 gain A
+resistor R3 between o1 and n2 = 10 kohm ±1%
+resistor R4 between n2 and out = 22 kohm ±1%
+opamp U2 inputs gnd, n2 output out gain B
+nominal A = 100000 ±50%
+nominal B = 100000 ±50%
+port out between out and gnd
+find gain from Vin to out approximately within 1%
+"""
+
+
+def test_cascade_of_two_finite_gain_stages_is_the_product_of_ideal_gains():
+    """Two inverting stages in cascade: (R2/R1)·(R4/R3) (textbook, from memory), against a
+    numpy nodal solve of the whole circuit (unknowns v_n1, v_o1, v_n2, v_out)."""
+    rec, a = approx_of(CASCADE)
+    R1, R2, R3, R4 = sympy.symbols("R1 R2 R3 R4")
+    assert sympy.simplify(a["expr"] - R2 * R4 / (R1 * R3)) == 0
+    g = box_grid({"R1": 1e4, "R2": 4.7e4, "R3": 1e4, "R4": 2.2e4, "A": 1e5, "B": 1e5},
+                 {"R1": .01, "R2": .01, "R3": .01, "R4": .01, "A": .5, "B": .5}, levels=4)
+    n = g["R1"].size
+    M = np.zeros((n, 4, 4))
+    b = np.zeros((n, 4))
+    # KCL at n1: (v_n1 - 1)/R1 + (v_n1 - v_o1)/R2 = 0;  U1: v_o1 + A v_n1 = 0
+    M[:, 0, 0] = 1 / g["R1"] + 1 / g["R2"]
+    M[:, 0, 1] = -1 / g["R2"]
+    b[:, 0] = 1 / g["R1"]
+    M[:, 1, 0], M[:, 1, 1] = g["A"], 1.0
+    # KCL at n2: (v_n2 - v_o1)/R3 + (v_n2 - v_out)/R4 = 0;  U2: v_out + B v_n2 = 0
+    M[:, 2, 1] = -1 / g["R3"]
+    M[:, 2, 2] = 1 / g["R3"] + 1 / g["R4"]
+    M[:, 2, 3] = -1 / g["R4"]
+    M[:, 3, 2], M[:, 3, 3] = g["B"], 1.0
+    exact = np.linalg.solve(M, b[..., None])[:, 3, 0]
+    check_bound(a, g["R2"] * g["R4"] / (g["R1"] * g["R3"]), exact, 0.01)
