@@ -10,9 +10,10 @@ table is refused, with its location, by :func:`handler_of`.
 """
 from __future__ import annotations
 
+import functools
 from typing import Callable
 
-from derive.analyses import claims, frequency, inversion, ports, power, sections
+from derive.analyses import approximation, claims, frequency, inversion, ports, power, sections
 from derive.analyses import budget, choose, drift
 from derive.analyses import sensitivity, substitution, tolerance
 from derive.circuit.build import Circuit
@@ -33,6 +34,8 @@ HANDLERS: dict = {
     "sensitivity": sensitivity.sensitivity, "tolerance": tolerance.tolerance,
     "solve": inversion.solve_request, "check": claims.check_request,
     "drift": drift.answer, "budget": budget.answer, "choose": choose.answer,
+    # ``find Q ... approximately within E%``: wraps the handler of Q (see handler_of)
+    "approximately": approximation.answer,
 }
 
 # how a request kind without a handler is named in the refusal
@@ -73,12 +76,14 @@ def handler_of(req) -> Handler:
 
     ``find Q`` goes to the handler of its quantity word; ``find ANALYSIS of Q``, ``solve``,
     ``check`` and ``choose`` to the handler of the analysis or statement, and need Q itself
-    in the table too. ``approximately within`` has no handler in this version.
+    in the table too. ``approximately within`` wraps the handler of Q: the handler keyed
+    ``"approximately"`` gets it as ``inner``.
     """
     kind = req.analysis or (None if req.statement == "find" else req.statement)
     fn = _lookup(req.quantity, req)
     if kind is not None:
         fn = _lookup(kind, req)
     if getattr(req, "within", None) is not None:
-        _lookup("approximately", req, req.name_locs.get("within", req.loc))
+        wrap = _lookup("approximately", req, req.name_locs.get("within", req.loc))
+        fn = functools.partial(wrap, inner=fn)
     return fn

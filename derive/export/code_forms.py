@@ -180,7 +180,29 @@ def collect(record) -> tuple:
                 valid = list(q.validity)
             formulas.append(Formula(name, list(zip(params, units)), defs, final, q.unit,
                                     what, origin, fwd, valid=valid))
+            approx = _approximate(c, q, name, names, origin, order)
+            if approx is not None:
+                names.add(approx.name)
+                formulas.append(approx)
     return formulas, skipped
+
+
+def _approximate(c, q, name, names, origin, order):
+    """The approximate form of ``approximately within E%`` as a formula of its own
+    (``NAME_approx``), its error bound and how it was bounded in the comment."""
+    a = getattr(q, "approximation", None)
+    if not a or not a.get("met") or a.get("expr") is None:
+        return None
+    e = a["expr"]
+    if S in e.free_symbols:
+        return None                     # as for the exact form: not a function of s
+    params = sorted(e.free_symbols, key=lambda x: (order.get(x.name, 10**6), x.name))
+    units = [getattr(c.symbols.get(x.name), "unit", None) for x in params]
+    how = "proven" if a.get("proven") else f"searched at {a.get('points')} points"
+    what = (f"{q.name}, approximately: relative error at most {a['max_error'] * 100:.3g} % "
+            f"over the tolerance box (asked: within {a['within'] * 100:.3g} %; bound {how})")
+    return Formula(ident(name + "_approx", names), list(zip(params, units)), [], e, q.unit,
+                   what, origin)
 
 
 def _forward(record, req):

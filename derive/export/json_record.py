@@ -40,6 +40,8 @@ def quantity_json(q) -> dict:
     d["form"] = q.form
     if q.notes:
         d["notes"] = list(q.notes)
+    if getattr(q, "approximation", None):
+        d["approximation"] = printed(q.approximation)
     return d
 
 

@@ -36,7 +36,11 @@ _TEXT_CHARS = {"Ω": r"\ensuremath{\Omega}", "µ": r"\ensuremath{\mu}", "μ": r"
                "…": r"\ldots{}", "‰": r"\textperthousand{}", "€": r"\texteuro{}",
                "“": "``", "”": "''", "‘": "`", "’": "'", "\u2009": r"\,", "\u00a0": "~",
                "∠": r"\ensuremath{\angle}", "∑": r"\ensuremath{\sum}",
-               "⋅": r"\ensuremath{\cdot}", "Ω": r"\ensuremath{\Omega}"}
+               "⋅": r"\ensuremath{\cdot}", "Ω": r"\ensuremath{\Omega}",
+               "≫": r"\ensuremath{\gg}", "≪": r"\ensuremath{\ll}", "²": r"\ensuremath{^2}",
+               "³": r"\ensuremath{^3}"}
+
+
 def _math_chars(math: str) -> str:
     """Unicode symbols inside a math string (unit words in ``\\text{}``, such as kΩ) as
     commands the fonts have; ASCII is left as it is."""

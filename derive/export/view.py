@@ -371,6 +371,27 @@ def _frequency_items(record, r, q):
         if parts else []
 
 
+def _approximation_item(q) -> dict:
+    """The summary line of ``approximately within``: the short form and its bound."""
+    a = q.approximation
+    pct = lambda v: (f"{v * 100:.3g} %" if v < 10 else      # noqa: E731
+                     f"{v * 100:,.0f} %".replace(",", " "))
+    how = "proven" if a.get("proven") else f"searched, {a.get('points')} points"
+    if a.get("met"):
+        form = to_latex(a["expr"])
+        math = to_latex(sympy.Symbol(q.name)) + r" \approx " + form \
+            if visual_len(form) <= 2 * SHORT_FORM else ""
+        return {"label": "approximation", "math": math,
+                "text": f"relative error at most {pct(a['max_error'])} over the tolerance box"
+                        + (" and band" if a.get("band") else "") + " "
+                        f"(asked: within {pct(a['within'])}; bound {how})"}
+    best = a.get("max_error")
+    return {"label": "approximation", "math": "",
+            "text": f"no form shorter than the exact one meets {pct(a['within'])}" +
+                    (f"; the best of the shortest forms tried is within {pct(best)}"
+                     if best is not None else "")}
+
+
 def request_summary(record, r) -> list:
     """The answer of one request in a few lines: closed form where short, value with unit,
     tolerance band, the three largest sensitivities, verdicts, frequency figures."""
@@ -386,6 +407,8 @@ def request_summary(record, r) -> list:
                       (", closed form below" if form and visual_len(form) > SHORT_FORM
                        else "")})
         items += _frequency_items(record, r, q)
+        if getattr(q, "approximation", None):
+            items.append(_approximation_item(q))
     if "valid_range" in x and x["valid_range"]:
         rng = x["valid_range"][0]
         unit = (x.get("measured") or {}).get("unit")

@@ -30,6 +30,8 @@ class QuantityResult:
     # is real and positive, each end a sympy expression or None (unbounded); empty: none
     # derived, or an end known only as a number at nominal values
     validity: list = field(default_factory=list)
+    # ``approximately within E%``: {"expr", "max_error", "method", ...} (analyses.approximation)
+    approximation: Optional[dict] = None
 
     def __repr__(self) -> str:
         value = "no value" if self.value is None else format_eng(self.value, self.unit)
