@@ -13,6 +13,7 @@ from __future__ import annotations
 from typing import Callable
 
 from derive.analyses import claims, frequency, inversion, ports, power, sections
+from derive.analyses import operating_point, stress
 from derive.analyses import sensitivity, substitution, tolerance
 from derive.circuit.build import Circuit
 from derive.errors import NotAvailableYet
@@ -28,6 +29,7 @@ HANDLERS: dict = {
     "resistance": ports.answer, "impedance": ports.answer, "voltage": ports.answer,
     "gain": ports.answer, "current": ports.answer,
     "power": power.answer,
+    "operating_point": operating_point.answer, "stress": stress.answer,
     "model": sections.model_handler, "twoport": sections.twoport_handler,
     "sensitivity": sensitivity.sensitivity, "tolerance": tolerance.tolerance,
     "solve": inversion.solve_request, "check": claims.check_request,
