@@ -1,1 +1,332 @@
-def answer(ctx, req): raise NotImplementedError
+"""``find stress``: every rated element's worst case against its derated rating.
+
+For every element with ``rated P W`` (its absorbed DC power) or ``rated V V`` (the DC voltage
+across it; a resistor may give both) the quantity is taken exactly (the power as ``find
+power in X`` gives it, the voltage from the same solver factors), and its worst case is
+found over the box of tolerances AND the temperature range of the sheet's ``temperature``
+line: every part is at the same temperature T, a part with ``tc`` drifts as
+``x(T) = x0·(1 + tc·(T − T0))`` (``x0`` anywhere in its tolerance band), parts without tc do
+not drift. T is one more coordinate of the box, so the extremes are those of
+:func:`derive.analyses.tolerance.extremes` (corners where monotonicity is proven, an exact
+univariate extreme where one coordinate is not, a bounded interior search otherwise); the
+record says which method found each worst case, and where (which parts at which end, and T).
+
+The worst case is the maximum power, or the largest |voltage|; the limit is rating × derating
+(the ``derating`` line, default 100 %); the verdict is ``worst <= limit``. ``derive check``
+counts a failed verdict like a failed claim (:func:`check_lines`, exit status 1).
+
+JSON (``RequestResult.extra["stress"]``): one entry per rated quantity, keyed by the element
+name (a resistor's voltage rating, when it also has a power rating, under ``"X (voltage)"``):
+``{"element", "quantity": "power" | "voltage", "unit", "nominal", "worst", "rating",
+"limit", "ok", "margin" (limit − worst), "use" (worst/limit), "corner" {part: value, "T":
+°C}, "at" (the corner in words), "method"}``.
+"""
+from __future__ import annotations
+
+import sympy
+
+from derive.analyses import sensitivity as sens
+from derive.analyses import tolerance
+from derive.derivation.steps import Equation, Step
+from derive.errors import SheetError
+from derive.forms import power as power_forms
+from derive.forms import select as forms
+from derive.forms.results import RequestResult
+from derive.sheet.model import Request
+from derive.sheet.units import format_eng
+from derive.solver import convert as edge
+
+CAUTION = ("Caution: these figures are a DC calculation against the ratings entered in the "
+           "sheet. Ratings depend on ambient temperature, mounting, airflow, altitude and "
+           "pulse or surge conditions; check every part against its datasheet (derating "
+           "curves, pulse load and working-voltage limits), and where mains or high energy is "
+           "involved follow the applicable standards and licensed practice.")
+
+UNITS = {"power": "W", "voltage": "V"}
+
+
+def rated(circuit) -> list:
+    """(element, quantity, rating) for every rating given in the sheet, in sheet order."""
+    out = []
+    for e in circuit.elements:
+        o = e.origin
+        if o is None or e.internal:
+            continue
+        if getattr(o, "power_rating", None) is not None:
+            out.append((e, "power", o.power_rating))
+        if getattr(o, "voltage_rating", None) is not None:
+            out.append((e, "voltage", o.voltage_rating))
+    return out
+
+
+def _rat(x) -> sympy.Rational:
+    return sympy.Rational(x.numerator, x.denominator)
+
+
+def _fresh_t(circuit) -> sympy.Symbol:
+    name = "T"
+    while name in circuit.symbols or name == "s":
+        name += "_"
+    return sympy.Symbol(name)
+
+
+def drift_map(circuit, T, T0) -> tuple:
+    """({Symbol: x·(1 + tc·(T − T0))} for every element with a tc whose value is its own
+    symbol, notes for tc's that cannot be applied)."""
+    subs, notes = {}, []
+    for e in circuit.elements:
+        tc = getattr(e.origin, "tc", None) if e.origin is not None else None
+        if tc is None or e.internal:
+            continue
+        x = sympy.Symbol(e.key)
+        if e.value != x:
+            notes.append(f"the tc of {e.name} is not applied: its value is an expression of "
+                         "other symbols, which other parts may share")
+            continue
+        subs[x] = x * (1 + _rat(tc) * (T - _rat(T0)))
+    return subs, notes
+
+
+def quantity_form(ctx, fctx, req, e, quantity) -> sens.Form:
+    """The exact DC power (or voltage) of element ``e`` as a Form in the circuit's symbols."""
+    if quantity == "power":
+        sub = Request("find", "power", f"find power in {e.name}", req.loc, element=e.name)
+        q = forms.port_quantities(fctx, sub)[0]
+        return sens.form_of(q)
+    v, _i = power_forms.element_factors(fctx, e.name, req, "find stress")
+    return sens.Form([], edge.to_sympy(v))
+
+
+def _drifted(form: sens.Form, subs: dict) -> sens.Form:
+    if not subs:
+        return form
+    return sens.Form([(q, x.xreplace(subs)) for q, x in form.defs], form.final.xreplace(subs))
+
+
+def _num(v) -> float:
+    return float(v)
+
+
+def _corner_words(point: dict, box: dict, T, circuit) -> str:
+    """Where a worst case lies, in words: each part at its low/high end or inside, and T."""
+    parts = []
+    for x in sorted(box, key=str):
+        if x == T:
+            continue
+        c, h = box[x]
+        v = point.get(x)
+        if v is None:
+            continue
+        info = circuit.symbols.get(str(x))
+        unit = info.unit if info else None
+        name = info.display if info else str(x)
+        if isinstance(v, sympy.Basic) and v == c + h:
+            parts.append(f"{name} high (+{float(h / abs(c)) * 100:g} %)")
+        elif isinstance(v, sympy.Basic) and v == c - h:
+            parts.append(f"{name} low (−{float(h / abs(c)) * 100:g} %)")
+        elif isinstance(v, sympy.Basic) and v == c:
+            parts.append(f"{name} nominal")
+        else:
+            parts.append(f"{name} = {format_eng(float(v), unit, digits=5)} (inside its band)")
+    if T in point:
+        parts.append(f"T = {float(point[T]):g} °C")
+    return ", ".join(parts) if parts else "nominal (no toleranced or drifting part)"
+
+
+def analyse(ctx, req, e, quantity, rating, subs, T, temp) -> dict:
+    """The stress entry of one rated quantity (plus internal keys for the steps)."""
+    c = ctx.circuit
+    fctx = sens.full_context(ctx)
+    T0, (Tlo, Thi) = temp
+    form = _drifted(quantity_form(ctx, fctx, req, e, quantity), subs)
+    nominal = dict(ctx.nominal)
+    nominal[T] = _rat(T0)
+    missing = sorted(str(x) for x in form.base_symbols() if x not in nominal)
+    if missing:
+        raise SheetError(f"the stress of {e.name} needs nominal values of: {', '.join(missing)}",
+                         req.loc.line, req.loc.col)
+    box = tolerance.box_of(ctx, form.base_symbols())
+    if Thi > Tlo and T in form.base_symbols():
+        box[T] = ((_rat(Tlo) + _rat(Thi)) / 2, (_rat(Thi) - _rat(Tlo)) / 2)
+    dforms = {x: sens.derivative(form, x)[0] for x in box}
+    at: dict = {}
+    try:
+        lo, hi, method, mono = tolerance.extremes(form, dforms, nominal, box, at=at)
+        q0 = form.value(nominal)
+    except (tolerance.Unbounded, ZeroDivisionError):
+        raise SheetError(f"the stress of {e.name} cannot be given: its {quantity} is not finite "
+                         "everywhere on the box of tolerances and temperatures",
+                         req.loc.line, req.loc.col) from None
+    if quantity == "power":
+        worst, side = hi, "high"
+    else:
+        worst, side = (hi, "high") if abs(hi) >= abs(lo) else (abs(lo), "low")
+    point = {**{x: v for x, v in nominal.items() if x in form.base_symbols()},
+             **at.get(side, {})}
+    exact = None
+    if all(isinstance(v, sympy.Basic) and v.is_Rational for v in point.values()):
+        exact = form.value(point)
+        if exact is not None and quantity == "voltage":
+            exact = abs(exact)
+    limit = _rat(rating) * _rat(c.sheet.derating_factor)
+    if exact is not None:
+        ok = bool(exact <= limit)
+    else:
+        ok = bool(worst <= float(limit))
+    if box and T in box:
+        method = ("over the box of tolerances and the temperature range, T being one more "
+                  "coordinate of the box; " + method)
+    unit = UNITS[quantity]
+    q0f = float(q0) if quantity == "power" else abs(float(q0))
+    wf = float(exact) if exact is not None else float(worst)
+    entry = {"element": e.name, "quantity": quantity, "unit": unit, "nominal": q0f,
+             "worst": wf, "rating": float(rating), "limit": float(limit), "ok": ok,
+             "margin": float(limit) - wf, "use": wf / float(limit),
+             "corner": {str(x): (float(v) if x != T else float(v)) for x, v in point.items()
+                        if x in box},
+             "at": _corner_words(point, box, T, c), "method": method}
+    internal = {"form": form, "point": point, "exact": exact, "box": box, "mono": mono,
+                "subs": subs, "limit": limit, "q0": q0}
+    return entry, internal
+
+
+def _eng(v, unit) -> str:
+    return format_eng(float(v), unit, digits=4)
+
+
+def _verify_worst(ctx, req, e, quantity, internal, T) -> Equation | None:
+    """The worst value at its corner, recomputed independently: the undrifted closed form at
+    the drifted part values x0·(1 + tc·(T − T0)), exactly."""
+    exact, point, subs = internal["exact"], internal["point"], internal["subs"]
+    if exact is None:
+        return None
+    drifted = {x: (subs[x].xreplace(point) if x in subs else v) for x, v in point.items()
+               if x != T}
+    fctx = sens.full_context(ctx)
+    base = quantity_form(ctx, fctx, req, e, quantity)
+    again = base.value({**ctx.nominal, **drifted})
+    if again is None:
+        return None
+    if quantity == "voltage":
+        again = abs(again)
+    name = "P" if quantity == "power" else "|v|"
+    eq = Equation(sympy.Symbol(f"{name}_{e.name.replace('.', '_')},worst"), exact)
+    eq.mark("exact", again == exact)
+    return eq
+
+
+def answer(ctx, req) -> RequestResult:
+    res = RequestResult(req)
+    c = ctx.circuit
+    items = rated(c)
+    sheet = c.sheet
+    T0, (Tlo, Thi), k = sheet.nominal_temperature, sheet.temperature_range, \
+        sheet.derating_factor
+    if not items:
+        res.notes.append("no element has a rating ('rated 0.25 W' on a resistor, 'rated 50 V' "
+                         "on a resistor, capacitor or inductor): there is nothing to check")
+        res.extra["stress"] = {}
+        st = Step("No rated element: give ratings with 'rated P W' or 'rated V V' after an "
+                  "element's value.", kind="stress")
+        st.verify()
+        res.steps = [st]
+        return res
+    T = _fresh_t(c)
+    subs, notes = drift_map(c, T, T0)
+    res.notes += notes
+    res.notes.append(CAUTION)
+    out, internals = {}, {}
+    for e, quantity, rating in items:
+        key = e.name if quantity == "power" or not any(
+            x is e and q == "power" for x, q, _ in items) else f"{e.name} (voltage)"
+        entry, internal = analyse(ctx, req, e, quantity, rating, subs, T, (T0, (Tlo, Thi)))
+        out[key] = entry
+        internals[key] = internal
+    res.extra["stress"] = out
+    res.steps = _steps(ctx, req, out, internals, T, (T0, Tlo, Thi, k), subs)
+    return res
+
+
+def _steps(ctx, req, out, internals, T, temp, subs) -> list:
+    c = ctx.circuit
+    T0, Tlo, Thi, k = temp
+    drift = ", ".join(f"{x} {float(c.element(str(x)).origin.tc) * 1e6:g} ppm/K"
+                      for x in sorted(subs, key=str) if str(x) in _names(c)) or "none"
+    rng = (f"from {float(Tlo):g} °C to {float(Thi):g} °C (nominal {float(T0):g} °C)"
+           if Thi > Tlo else f"at {float(T0):g} °C only (no temperature range given)")
+    intro = Step(f"Stress of every rated element at DC: the absorbed power (passive sign "
+                 f"convention) or the voltage across it, at its worst over the tolerances and "
+                 f"the temperature range {rng}; every part at the same temperature T, a part "
+                 f"with a temperature coefficient drifting as x(T) = x0·(1 + tc·(T − T0)) "
+                 f"(here: {drift}); parts without one do not drift. Limit = rating × derating "
+                 f"({float(k) * 100:g} %).", kind="stress")
+    rows = [["element", "quantity", "nominal", "worst", "rating", "limit", "margin",
+             "use of limit", "verdict"]]
+    for key, s in out.items():
+        u = s["unit"]
+        rows.append([key, s["quantity"], _eng(s["nominal"], u), _eng(s["worst"], u),
+                     _eng(s["rating"], u), _eng(s["limit"], u), _eng(s["margin"], u),
+                     f"{s['use'] * 100:.1f} %", "ok" if s["ok"] else "EXCEEDED"])
+    n_bad = sum(1 for s in out.values() if not s["ok"])
+    table = Step(("Every rated quantity within its limit." if not n_bad else
+                  f"{n_bad} rated quantit{'y exceeds' if n_bad == 1 else 'ies exceed'} "
+                  "the limit.") + " Worst cases:", kind="stress", table=rows)
+    steps = [intro, table]
+    for key, s in out.items():
+        it = internals[key]
+        what = "power" if s["quantity"] == "power" else "|voltage|"
+        eqs = []
+        eq = _verify_worst(ctx, req, c.element(s["element"]), s["quantity"], it, T)
+        if eq is not None:
+            eqs.append(eq)
+        mono_rows = [["part", "nominal", "tolerance", "tc", "on the box"]]
+        for x in sorted(it["box"], key=str):
+            if x == T:
+                mono_rows.append(["T", f"{float(T0):g} °C", f"{float(Tlo):g} to "
+                                  f"{float(Thi):g} °C", "", it["mono"].get(x, "")])
+                continue
+            info = c.symbols.get(str(x))
+            el = _element_of(c, str(x))
+            tc = getattr(el.origin, "tc", None) if el is not None and el.origin else None
+            mono_rows.append([info.display if info else str(x),
+                              _eng(info.nominal, info.unit) if info and info.nominal is not None
+                              else "", f"±{float(info.tolerance) * 100:g} %"
+                              if info and info.tolerance else "",
+                              f"{float(tc) * 1e6:g} ppm/K" if tc is not None else "",
+                              it["mono"].get(x, "")])
+        txt = (f"{key}: worst {what} {_eng(s['worst'], s['unit'])} (nominal "
+               f"{_eng(s['nominal'], s['unit'])}; limit {_eng(s['limit'], s['unit'])}: "
+               f"{'ok' if s['ok'] else 'EXCEEDED'}), at {s['at']}. Method: {s['method']}."
+               + (" The worst value is recomputed exactly from the closed form without drift "
+                  "at the drifted part values of that corner." if eqs else ""))
+        steps.append(Step(txt, eqs, [s["element"]], kind="stress",
+                          table=mono_rows if len(mono_rows) > 1 else None))
+    for st in steps:
+        st.verify()
+    return steps
+
+
+def _names(circuit) -> set:
+    return {e.key for e in circuit.elements}
+
+
+def _element_of(circuit, key):
+    for e in circuit.elements:
+        if e.key == key:
+            return e
+    return None
+
+
+def check_lines(record) -> tuple:
+    """(lines, ok): one ``PASS``/``FAIL`` line per rated quantity of every ``find stress``."""
+    lines, ok = [], True
+    for r in record.results:
+        if r.request.quantity != "stress" or r.request.statement != "find":
+            continue
+        for key, s in (r.extra.get("stress") or {}).items():
+            ok = ok and bool(s["ok"])
+            u = s["unit"]
+            lines.append(f"{'PASS' if s['ok'] else 'FAIL'} line {r.request.loc.line}: stress "
+                         f"of {key} ({s['quantity']}): worst {_eng(s['worst'], u)} "
+                         f"{'<=' if s['ok'] else '>'} limit {_eng(s['limit'], u)}")
+    return lines, ok

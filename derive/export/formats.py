@@ -36,8 +36,15 @@ def render_code(record, lang: str, args=None) -> dict:
 
 
 def check_lines(record):
+    """(lines, ok) of ``derive check``: every ``check`` claim, then every verdict of ``find
+    stress``; ``ok`` is false (exit status 1) when a claim fails or a stress limit is
+    exceeded."""
     try:
-        from derive.analyses import claims
+        from derive.analyses import claims, stress
     except ImportError:
         raise DeriveError("claim checks are not available yet")
-    return claims.check_lines(record)
+    lines, ok = claims.check_lines(record)
+    more, stress_ok = stress.check_lines(record)
+    if more:
+        lines = [x for x in lines if x != claims.NO_CLAIMS] + more
+    return lines, ok and stress_ok
