@@ -416,7 +416,7 @@ def test_circuit_elements_keep_their_attributes_through_blocks():
 
 
 # ------------------------------------------------------------------ refused cleanly (no handler)
-NOT_YET = ["find operating point", "find stress", "find drift of vth at out",
+NOT_YET = ["find drift of vth at out",
            "find budget of vth at out", "choose R2 from E96 for gain from Vin to out = 0.5",
            "choose R1, R2 from E24 for vth at out = 1.2 V",
            "find noise at out from 10 Hz to 100 kHz",

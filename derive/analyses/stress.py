@@ -133,12 +133,62 @@ def _corner_words(point: dict, box: dict, T, circuit) -> str:
     return ", ".join(parts) if parts else "nominal (no toleranced or drifting part)"
 
 
+def proven_signs(ctx, base, nominal, box, subs, T, trange, T0) -> tuple:
+    """({coordinate: +1 or -1}, how) for coordinates of the box in which the drifted quantity
+    is proven strictly monotone.
+
+    A part's drifted value is y = x·(1 + tc·(T − T0)) with a positive factor, so the drifted
+    quantity moves with x as the undrifted one moves with y: the sign of dQ/dy is proven
+    exactly (:func:`derive.analyses.tolerance.exact_signs`, coefficient signs of the exact
+    numerator and denominator) over the hull of every y's band (its tolerance band widened
+    by the drift at both ends of the temperature range). Then dQ/dT = Σ dQ/dy·x·tc: where
+    every drifting part's term has the same proven sign, so has dQ/dT."""
+    Tlo, Thi = (_rat(t) for t in trange)
+    hull = {}
+    for x in base.base_symbols():
+        if x not in box and x not in subs:
+            continue
+        c, h = box.get(x, (nominal[x], sympy.Integer(0)))
+        ends = [sympy.Integer(1)]
+        if x in subs:
+            f = subs[x] / x
+            ends = [f.xreplace({T: Tlo}), f.xreplace({T: Thi})]
+        if min(ends) <= 0:
+            return {}, ""
+        lo, hi = (c - h) * min(ends), (c + h) * max(ends)
+        hull[x] = ((lo + hi) / 2, (hi - lo) / 2)
+    if not hull:
+        return {}, ""
+    try:
+        dy = tolerance.exact_signs(base, nominal, hull)
+    except (ArithmeticError, ValueError, TypeError):
+        return {}, ""
+    signs = {x: sg for x, sg in dy.items() if x in box}
+    if T in box:
+        terms = set()
+        for x in subs:
+            if x not in base.base_symbols():
+                continue
+            tc = subs[x].diff(T) / x
+            terms.add(None if x not in dy else dy[x] * (1 if tc > 0 else -1))
+        if len(terms) == 1 and None not in terms:
+            signs[T] = terms.pop()
+    if not signs:
+        return {}, ""
+    return signs, ("monotonicity in " + ", ".join(sorted(map(str, signs), key=str)) +
+                   " proven on the closed form without drift over the hull of each drifted "
+                   "band (signs of the coefficients of its exact numerator and denominator"
+                   + ("; for T: every drifting part's term of dQ/dT = Σ dQ/dy·x·tc has one "
+                      "sign" if T in signs else "") + ")")
+
+
 def analyse(ctx, req, e, quantity, rating, subs, T, temp) -> dict:
     """The stress entry of one rated quantity (plus internal keys for the steps)."""
     c = ctx.circuit
     fctx = sens.full_context(ctx)
     T0, (Tlo, Thi) = temp
-    form = _drifted(quantity_form(ctx, fctx, req, e, quantity), subs)
+    base = quantity_form(ctx, fctx, req, e, quantity)
+    form = _drifted(base, subs)
     nominal = dict(ctx.nominal)
     nominal[T] = _rat(T0)
     missing = sorted(str(x) for x in form.base_symbols() if x not in nominal)
@@ -149,9 +199,11 @@ def analyse(ctx, req, e, quantity, rating, subs, T, temp) -> dict:
     if Thi > Tlo and T in form.base_symbols():
         box[T] = ((_rat(Tlo) + _rat(Thi)) / 2, (_rat(Thi) - _rat(Tlo)) / 2)
     dforms = {x: sens.derivative(form, x)[0] for x in box}
+    signs, proof = proven_signs(ctx, base, nominal, box, subs, T, (Tlo, Thi), T0)
     at: dict = {}
     try:
-        lo, hi, method, mono = tolerance.extremes(form, dforms, nominal, box, at=at)
+        lo, hi, method, mono = tolerance.extremes(form, dforms, nominal, box, at=at,
+                                                  signs=signs)
         q0 = form.value(nominal)
     except (tolerance.Unbounded, ZeroDivisionError):
         raise SheetError(f"the stress of {e.name} cannot be given: its {quantity} is not finite "
@@ -176,6 +228,8 @@ def analyse(ctx, req, e, quantity, rating, subs, T, temp) -> dict:
     if box and T in box:
         method = ("over the box of tolerances and the temperature range, T being one more "
                   "coordinate of the box; " + method)
+    if proof:
+        method += "; " + proof
     unit = UNITS[quantity]
     q0f = float(q0) if quantity == "power" else abs(float(q0))
     wf = float(exact) if exact is not None else float(worst)

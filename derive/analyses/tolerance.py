@@ -267,18 +267,20 @@ def _coefficient_sign(p):
 
 
 def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1,
-             at: dict | None = None):
+             at: dict | None = None, signs: dict | None = None):
     """(low, high, method, monotone) of ``form`` over ``box`` (see module doc).
     ``dforms``: Symbol -> derivative Form; ``nominal``: Symbol -> Rational for all parts.
     ``at``: a dict that, when given, receives where the extremes were found: ``"low"`` and
     ``"high"`` map each part of the box to its value there (exact Rationals, floats where an
-    interior search found it)."""
+    interior search found it). ``signs``: {part: +1 or -1} for parts in which the caller has
+    proven Q strictly monotone over the whole box (counted with the exact proofs)."""
     where = at if at is not None else {}
     fbox = {x: _widen(float(c - h), float(c + h)) for x, (c, h) in box.items()}
     env = {x: _widen(float(v), float(v)) for x, v in nominal.items()}
     env.update(fbox)
     mono, hi_pt, lo_pt, free = {}, {}, {}, []
-    exact = exact_signs(form, nominal, box) if box else {}
+    exact = exact_signs(form, nominal, box) if box and not signs else {}
+    exact.update(signs or {})
     for x, (c, h) in box.items():
         d = dforms.get(x)
         if d is None or (not d.defs and d.final == 0):
@@ -444,7 +446,14 @@ def _affine(dform: Form, x) -> bool:
     """Whether Q is affine in x (dQ/dx free of x), for single expressions."""
     if dform.defs:
         return False
-    return x not in dform.final.free_symbols or sympy.cancel(sympy.diff(dform.final, x)) == 0
+    if x not in dform.final.free_symbols:
+        return True
+    r = _sens.rational(dform.final)
+    if r is not None:        # a cancelled ratio n/d is free of x iff n and d both are
+        n, d, syms = r
+        i = syms.index(x)
+        return n.degrees()[i] == 0 and d.degrees()[i] == 0
+    return sympy.cancel(sympy.diff(dform.final, x)) == 0
 
 
 CHUNK = 1_000_000       # Monte Carlo samples drawn and evaluated at a time
