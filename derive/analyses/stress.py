@@ -133,6 +133,42 @@ def _corner_words(point: dict, box: dict, T, circuit) -> str:
     return ", ".join(parts) if parts else "nominal (no toleranced or drifting part)"
 
 
+def _drift_derivative(base, form, x, subs, T) -> sens.Form:
+    """A Form with the sign of d(drifted Q)/dx everywhere on the box: for a part, dQ/dy of the
+    undrifted Q at the drifted values (the chain rule's other factor, 1 + tc·(T − T0), is
+    positive, so the sign is the same, and it is free of x exactly when Q is affine in y);
+    for T itself the drifted form's own derivative."""
+    if x == T or base.defs:
+        return _derivative(form, x)
+    d = _derivative(base, x)
+    return sens.Form([], d.final.xreplace(subs)) if subs else d
+
+
+def _poly_expr(p, syms) -> sympy.Expr:
+    """A flint polynomial as an expanded sympy expression in ``syms``."""
+    terms = []
+    for exps, c in p.to_dict().items():
+        t = sympy.Rational(int(c.p), int(c.q))
+        for x, k in zip(syms, exps):
+            if k:
+                t *= x ** k
+        terms.append(t)
+    return sympy.Add(*terms)
+
+
+def _derivative(form, x) -> sens.Form:
+    """dQ/dx as a Form: exactly, as (n'd - nd')/d² of the cancelled flint ratio n/d of a
+    single rational expression; through :func:`derive.analyses.sensitivity.derivative`
+    otherwise."""
+    r = None if form.defs else sens.rational(form.final)
+    if r is None or x not in r[2]:
+        return sens.derivative(form, x)[0]
+    n, d, syms = r
+    i = syms.index(x)
+    num = n.derivative(i) * d - n * d.derivative(i)
+    return sens.Form([], _poly_expr(num, syms) / _poly_expr(d, syms) ** 2)
+
+
 def proven_signs(ctx, base, nominal, box, subs, T, trange, T0) -> tuple:
     """({coordinate: +1 or -1}, how) for coordinates of the box in which the drifted quantity
     is proven strictly monotone.
@@ -198,8 +234,12 @@ def analyse(ctx, req, e, quantity, rating, subs, T, temp) -> dict:
     box = tolerance.box_of(ctx, form.base_symbols())
     if Thi > Tlo and T in form.base_symbols():
         box[T] = ((_rat(Tlo) + _rat(Thi)) / 2, (_rat(Thi) - _rat(Tlo)) / 2)
-    dforms = {x: sens.derivative(form, x)[0] for x in box}
     signs, proof = proven_signs(ctx, base, nominal, box, subs, T, (Tlo, Thi), T0)
+    # derivatives only where monotonicity is still to be decided; a proven coordinate's
+    # derivative is not used by the search beyond "not identically zero", so its proven
+    # sign stands in for it
+    dforms = {x: (sens.Form([], sympy.Integer(signs[x])) if x in signs
+                  else _drift_derivative(base, form, x, subs, T)) for x in box}
     at: dict = {}
     try:
         lo, hi, method, mono = tolerance.extremes(form, dforms, nominal, box, at=at,
@@ -240,7 +280,7 @@ def analyse(ctx, req, e, quantity, rating, subs, T, temp) -> dict:
                         if x in box},
              "at": _corner_words(point, box, T, c), "method": method}
     internal = {"form": form, "point": point, "exact": exact, "box": box, "mono": mono,
-                "subs": subs, "limit": limit, "q0": q0}
+                "subs": subs, "limit": limit, "q0": q0, "base": base}
     return entry, internal
 
 
@@ -256,9 +296,7 @@ def _verify_worst(ctx, req, e, quantity, internal, T) -> Equation | None:
         return None
     drifted = {x: (subs[x].xreplace(point) if x in subs else v) for x, v in point.items()
                if x != T}
-    fctx = sens.full_context(ctx)
-    base = quantity_form(ctx, fctx, req, e, quantity)
-    again = base.value({**ctx.nominal, **drifted})
+    again = internal["base"].value({**ctx.nominal, **drifted})
     if again is None:
         return None
     if quantity == "voltage":
