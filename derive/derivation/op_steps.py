@@ -107,7 +107,7 @@ def steps(ctx, req, op) -> list:
         e = c.element(name)
         nodes = e.nodes if len(e.nodes) == 2 else (e.nodes[-1], c.ground)
         vn = [op.nodes[x].expr if x in op.nodes else sympy.Integer(0) for x in nodes]
-        eq = Equation(_sym("p", name), ent.expr,
+        eq = Equation(_sym("P", name), ent.expr,
                       check=(vn[0] - vn[1]) * op.currents[name].expr)
         eqs.append(eq)
         rows.append([name, kinds.kind(e.kind).word, _eng(op.voltages[name].exact, "V"),
@@ -118,8 +118,8 @@ def steps(ctx, req, op) -> list:
                     eqs, list(op.power), kind="operating point", table=rows))
 
     # the balance
-    total = sympy.Add(*[_sym("p", n) for n in op.power], evaluate=False) \
-        if len(op.power) > 1 else _sym("p", next(iter(op.power)))
+    total = sympy.Add(*[_sym("P", n) for n in op.power], evaluate=False) \
+        if len(op.power) > 1 else _sym("P", next(iter(op.power)))
     bal = Equation(total, sympy.Integer(0))
     nominal_ok = op.balance_at_nominal is None or op.balance_at_nominal == 0
     bal.mark("exact", bool(op.balance_zero) and nominal_ok)
