@@ -129,7 +129,7 @@ def _corner_words(point: dict, box: dict, T, circuit) -> str:
         else:
             parts.append(f"{name} = {format_eng(float(v), unit, digits=5)} (inside its band)")
     if T in point:
-        parts.append(f"T = {float(point[T]):g} °C")
+        parts.append(f"T = {_deg(point[T])}")
     return ", ".join(parts) if parts else "nominal (no toleranced or drifting part)"
 
 
@@ -284,6 +284,11 @@ def analyse(ctx, req, e, quantity, rating, subs, T, temp) -> dict:
     return entry, internal
 
 
+def _deg(t) -> str:
+    """A temperature in °C with a true minus sign (no line break after it)."""
+    return f"{float(t):g} °C".replace("-", "−")
+
+
 def _eng(v, unit) -> str:
     return format_eng(float(v), unit, digits=4)
 
@@ -357,20 +362,21 @@ def _steps(ctx, req, out, internals, T, temp, subs) -> list:
     T0, Tlo, Thi, k = temp
     drift = ", ".join(f"{x} {float(c.element(str(x)).origin.tc) * 1e6:g} ppm/K"
                       for x in sorted(subs, key=str) if str(x) in _names(c)) or "none"
-    rng = (f"from {float(Tlo):g} °C to {float(Thi):g} °C (nominal {float(T0):g} °C)"
-           if Thi > Tlo else f"at {float(T0):g} °C only (no temperature range given)")
+    rng = (f"from {_deg(Tlo)} to {_deg(Thi)} (nominal {_deg(T0)})"
+           if Thi > Tlo else f"at {_deg(T0)} only (no temperature range given)")
     intro = Step(f"Stress of every rated element at DC: the absorbed power (passive sign "
                  f"convention) or the voltage across it, at its worst over the tolerances and "
                  f"the temperature range {rng}; every part at the same temperature T, a part "
                  f"with a temperature coefficient drifting as x(T) = x0·(1 + tc·(T − T0)) "
                  f"(here: {drift}); parts without one do not drift. Limit = rating × derating "
                  f"({float(k) * 100:g} %).", kind="stress")
-    rows = [["element", "quantity", "nominal", "worst", "rating", "limit", "margin",
-             "use of limit", "verdict"]]
+    rows = [["element", "quantity", "nominal", "worst", "rating", "limit", "margin", "use",
+             "verdict"]]
     for key, s in out.items():
         u = s["unit"]
-        rows.append([key, s["quantity"], _eng(s["nominal"], u), _eng(s["worst"], u),
-                     _eng(s["rating"], u), _eng(s["limit"], u), _eng(s["margin"], u),
+        rows.append([s["element"], s["quantity"], _eng(s["nominal"], u),
+                     _eng(s["worst"], u), format_eng(s["rating"], u),
+                     format_eng(s["limit"], u), _eng(s["margin"], u),
                      f"{s['use'] * 100:.1f} %", "ok" if s["ok"] else "EXCEEDED"])
     n_bad = sum(1 for s in out.values() if not s["ok"])
     table = Step(("Every rated quantity within its limit." if not n_bad else
@@ -387,8 +393,8 @@ def _steps(ctx, req, out, internals, T, temp, subs) -> list:
         mono_rows = [["part", "nominal", "tolerance", "tc", "on the box"]]
         for x in sorted(it["box"], key=str):
             if x == T:
-                mono_rows.append(["T", f"{float(T0):g} °C", f"{float(Tlo):g} to "
-                                  f"{float(Thi):g} °C", "", it["mono"].get(x, "")])
+                mono_rows.append(["T", _deg(T0), f"{_deg(Tlo)[:-3]} to {_deg(Thi)}", "",
+                                  it["mono"].get(x, "")])
                 continue
             info = c.symbols.get(str(x))
             el = _element_of(c, str(x))
@@ -433,7 +439,8 @@ def check_lines(record) -> tuple:
         for key, s in (r.extra.get("stress") or {}).items():
             ok = ok and bool(s["ok"])
             u = s["unit"]
+            label = f"{key} ({s['quantity']})" if key == s["element"] else key
             lines.append(f"{'PASS' if s['ok'] else 'FAIL'} line {r.request.loc.line}: stress "
-                         f"of {key} ({s['quantity']}): worst {_eng(s['worst'], u)} "
+                         f"of {label}: worst {_eng(s['worst'], u)} "
                          f"{'<=' if s['ok'] else '>'} limit {_eng(s['limit'], u)}")
     return lines, ok

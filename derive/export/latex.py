@@ -27,7 +27,7 @@ INSTALL_HINT = ("PDF records need TeX Live: install latexmk and pdflatex with si
 
 _TEXT_CHARS = {"Ω": r"\ensuremath{\Omega}", "µ": r"\ensuremath{\mu}", "μ": r"\ensuremath{\mu}",
                "±": r"\ensuremath{\pm}", "∥": r"\ensuremath{\parallel}", "·": r"\ensuremath{\cdot}",
-               "—": "---", "–": "--", "°": r"\ensuremath{^\circ}", "≈": r"\ensuremath{\approx}",
+               "—": "---", "–": "--", "°": r"\textdegree{}", "≈": r"\ensuremath{\approx}",
                "×": r"\ensuremath{\times}", "≤": r"\ensuremath{\le}", "≥": r"\ensuremath{\ge}",
                "Σ": r"\ensuremath{\Sigma}", "→": r"\ensuremath{\to}", "∞": r"\ensuremath{\infty}",
                "−": r"\ensuremath{-}", "∓": r"\ensuremath{\mp}", "≠": r"\ensuremath{\ne}",
