@@ -256,3 +256,46 @@ def test_no_dc_solution_is_a_located_error(tmp_path, capsys):
     assert main(["record", str(path)]) == 2
     err = capsys.readouterr().err
     assert err.startswith(f"{path}:4:1: error: ") and "DC" in err and "Traceback" not in err
+
+
+# ------------------------------------------------------------------ mutations
+# Mutation tests (as in tests/test_mutations.py; common practice, no source): a wrong
+# intermediate fed into the operating point must not pass its checks.
+def _mutated(monkeypatch, which):
+    from derive.forms import operating_point as opf
+    real = opf._entry if hasattr(opf, "_entry") else None
+    calls = {"n": 0}
+
+    def wrong(name, ratio, unit, nominal):
+        e = real(name, ratio, unit, nominal)
+        if unit == which and name == ("b" if which == "V" else "R2"):
+            e.expr = e.expr * sympy.Rational(101, 100)       # 1 % off
+            calls["n"] += 1
+        return e
+    monkeypatch.setattr(opf, "_entry", wrong)
+    return calls
+
+
+@pytest.mark.parametrize("which", ["V", "A", "W"])
+def test_a_wrong_closed_form_is_caught(monkeypatch, which):
+    from derive.derivation.op_steps import OperatingPointFailed
+    calls = _mutated(monkeypatch, which)
+    with pytest.raises(OperatingPointFailed):
+        run(sheet_of(DIVIDER))
+    assert calls["n"] == 1
+
+
+def test_a_wrong_power_ratio_breaks_the_balance(monkeypatch):
+    """One element's power ratio doubled: the exact sum no longer cancels."""
+    from derive.forms import operating_point as opf
+    from derive.derivation.op_steps import OperatingPointFailed
+    real = opf.ratio_sum
+
+    def doubled(ratios):
+        ratios = list(ratios)
+        r = ratios[0]
+        ratios[0] = type(r)(r.num * 2, r.den, r.system)
+        return real(ratios)
+    monkeypatch.setattr(opf, "ratio_sum", doubled)
+    with pytest.raises(OperatingPointFailed, match="Power balance"):
+        run(sheet_of(DIVIDER))

@@ -11,6 +11,7 @@ import itertools
 import json
 
 import numpy as np
+import sympy
 import pytest
 
 import derive
@@ -258,3 +259,18 @@ def test_steps_are_verified_and_name_the_corner():
     assert "recomputed exactly" in worst.text and "agrees" in worst.text
     assert rec.results[0].extra["stress"]["R1"]["worst_check"] == "exact"
     assert all(e.verified_by == "exact" for e in worst.equations)
+
+
+def test_a_wrong_drifted_form_is_caught(monkeypatch):
+    """Mutation (as in tests/test_mutations.py; common practice, no source): a drifted form 1 %
+    off is found out by the exact recomputation of the worst value without drift."""
+    from derive.analyses import stress
+    real = stress._drifted
+
+    def wrong(form, subs):
+        f = real(form, subs)
+        return stress.sens.Form(f.defs, f.final * sympy.Rational(101, 100))
+    monkeypatch.setattr(stress, "_drifted", wrong)
+    parts = [("R1", "a", "b", 1000, 0.01, 100e-6), ("R2", "b", "gnd", 2000, 0.01, 0)]
+    with pytest.raises(stress.StressFailed):
+        run(sheet_of(parts, {"a": 10}, {"R2": 0.25}, temps=(-40, 85)))
