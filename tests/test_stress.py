@@ -171,7 +171,12 @@ def test_load_power_with_two_unproven_coordinates_against_brute_force():
     # by hand: with RL able to meet Rs anywhere, P_max = V²/(4·Rs_min) = 100/380 W
     assert s["worst"] == pytest.approx(100 / 380, rel=1e-7)
     assert s["worst"] >= want * (1 - 1e-9)
-    assert s["method"]
+    assert "interior search" in s["method"]
+    # the corner it names gives that worst power (the same nodal solve at that point)
+    c = s["corner"]
+    ohms = np.array([[c["Rs"], c["RL"] * (1 + 300e-6 * (c["T"] - 25))]])
+    at = batch_powers({"a": 10.0}, ["Rs", "RL"], [("a", "b"), ("b", "gnd")], ohms)[0, 1]
+    assert at == pytest.approx(s["worst"], rel=1e-9)
 
 
 # ------------------------------------------------------------------ verdicts and the CLI

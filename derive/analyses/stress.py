@@ -276,7 +276,7 @@ def analyse(ctx, req, e, quantity, rating, subs, T, temp) -> dict:
     entry = {"element": e.name, "quantity": quantity, "unit": unit, "nominal": q0f,
              "worst": wf, "rating": float(rating), "limit": float(limit), "ok": ok,
              "margin": float(limit) - wf, "use": wf / float(limit),
-             "corner": {str(x): (float(v) if x != T else float(v)) for x, v in point.items()
+             "corner": {str(x): float(v) for x, v in point.items()
                         if x in box},
              "at": _corner_words(point, box, T, c), "method": method}
     internal = {"form": form, "point": point, "exact": exact, "box": box, "mono": mono,

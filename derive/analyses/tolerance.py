@@ -365,7 +365,7 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1,
             found.append(np.asarray(r.x, dtype=float))
         best[sense] = sense * min(vals)
         u = found[int(np.argmin(vals))]
-        where["high" if sense == 1 else "low"] = {
+        where["low" if sense == 1 else "high"] = {     # sense 1 minimises: the low
             **fixed, **{x: float(box[x][0]) + float(ui) * float(box[x][1])
                         for x, ui in zip(free, u)}}
     bounded = proven_bounded(form, env, list(box))
