@@ -4,7 +4,8 @@
     derive code   SHEET [--lang c|python] [-o FILE] [--with-tests]
     derive check  SHEET
 
-Exit status: 0 success, 1 a ``check`` claim does not hold (``derive check``), 2 an invalid
+Exit status: 0 success, 1 a ``check`` claim does not hold or a ``find stress`` limit is
+exceeded (``derive check``), 2 an invalid
 sheet (``FILE:LINE:COL: error: ...`` and the line on standard error), a usage error, a missing
 package or ``--timeout`` reached, 3 an internal error.
 
@@ -134,7 +135,7 @@ def _parser() -> argparse.ArgumentParser:
     c.add_argument("-o", "--output", default=None)
     c.add_argument("--with-tests", action="store_true",
                    help="also write exact test vectors and a test program")
-    k = sub.add_parser("check", help="verify the sheet's check claims (exit 1 if one fails)")
+    k = sub.add_parser("check", help="verify the sheet's check claims and stress limits (exit 1 if one fails)")
     common(k)
     return p
 

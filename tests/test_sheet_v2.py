@@ -416,8 +416,7 @@ def test_circuit_elements_keep_their_attributes_through_blocks():
 
 
 # ------------------------------------------------------------------ refused cleanly (no handler)
-NOT_YET = ["find operating point", "find stress",
-           "find noise at out from 10 Hz to 100 kHz"]
+NOT_YET = ["find noise at out from 10 Hz to 100 kHz"]
 
 
 @pytest.mark.parametrize("line", NOT_YET, ids=range(len(NOT_YET)))

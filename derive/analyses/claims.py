@@ -241,6 +241,9 @@ def check_request(ctx, req) -> analysis.RequestResult:
     return out
 
 
+NO_CLAIMS = "no check claims in the sheet"
+
+
 def check_lines(record):
     """(lines, ok): one ``PASS``/``FAIL`` line per ``check`` claim of a derived record."""
     lines, ok = [], True
@@ -257,5 +260,5 @@ def check_lines(record):
         lines.append(line)
         lines += [f"  note: {n}" for n in r.notes]
     if not lines:
-        lines.append("no check claims in the sheet")
+        lines.append(NO_CLAIMS)
     return lines, ok

@@ -267,14 +267,21 @@ def _coefficient_sign(p):
     return None
 
 
-def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
+def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1,
+             at: dict | None = None, signs: dict | None = None):
     """(low, high, method, monotone) of ``form`` over ``box`` (see module doc).
-    ``dforms``: Symbol -> derivative Form; ``nominal``: Symbol -> Rational for all parts."""
+    ``dforms``: Symbol -> derivative Form; ``nominal``: Symbol -> Rational for all parts.
+    ``at``: a dict that, when given, receives where the extremes were found: ``"low"`` and
+    ``"high"`` map each part of the box to its value there (exact Rationals, floats where an
+    interior search found it). ``signs``: {part: +1 or -1} for parts in which the caller has
+    proven Q strictly monotone over the whole box (counted with the exact proofs)."""
+    where = at if at is not None else {}
     fbox = {x: _widen(float(c - h), float(c + h)) for x, (c, h) in box.items()}
     env = {x: _widen(float(v), float(v)) for x, v in nominal.items()}
     env.update(fbox)
     mono, hi_pt, lo_pt, free = {}, {}, {}, []
-    exact = exact_signs(form, nominal, box) if box else {}
+    exact = exact_signs(form, nominal, box) if box and not signs else {}
+    exact.update(signs or {})
     for x, (c, h) in box.items():
         d = dforms.get(x)
         if d is None or (not d.defs and d.final == 0):
@@ -292,6 +299,7 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
     if not free:
         lo = _real(form.value({**base, **lo_pt}))
         hi = _real(form.value({**base, **hi_pt}))
+        where["low"], where["high"] = dict(lo_pt), dict(hi_pt)
         how = ("by the signs of the coefficients of its exact numerator and denominator"
                if exact and all(x in exact for x in box if mono[x] != "constant") else
                "by interval arithmetic" if not exact else
@@ -302,11 +310,15 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
         return float(lo), float(hi), method, mono
     affine = [x for x in free if _affine(dforms[x], x)]
     if len(affine) == len(free) and len(free) <= 12:
-        vals = []
+        vals, pts = [], []
         for signs in itertools.product((-1, 1), repeat=len(free)):
             pt = {x: box[x][0] + sg * box[x][1] for x, sg in zip(free, signs)}
             vals.append((_real(form.value({**base, **lo_pt, **pt})),
                          _real(form.value({**base, **hi_pt, **pt}))))
+            pts.append(pt)
+        k_lo = min(range(len(vals)), key=lambda k: vals[k][0])
+        k_hi = max(range(len(vals)), key=lambda k: vals[k][1])
+        where["low"], where["high"] = {**lo_pt, **pts[k_lo]}, {**hi_pt, **pts[k_hi]}
         for x in free:
             mono[x] = "affine"
         method = ("corners: monotone (proven by interval arithmetic on dQ/dx) or affine "
@@ -319,6 +331,7 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
         if exact is not None:
             x = free[0]
             mono[x] = "not monotone" if exact[2] else mono[x]
+            where["low"], where["high"] = {**lo_pt, x: exact[3][0]}, {**hi_pt, x: exact[3][1]}
             method = (f"exact in {x}: monotonicity not proven for {x} alone, so Q (the other "
                       "parts at the corners proven above) is a rational function of "
                       f"{x}, whose extremes over its tolerance are taken exactly at the ends "
@@ -343,13 +356,19 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1):
         corners = list(itertools.product((-1.0, 1.0), repeat=k)) if k <= 10 else \
             [tuple(rng.choice((-1.0, 1.0), k)) for _ in range(1024)]
         vals = [obj(np.array(cn)) for cn in corners]
+        found = [np.array(cn) for cn in corners]
         starts = [np.zeros(k)] + [rng.uniform(-1, 1, k) for _ in range(8)]
         starts.append(np.array(corners[int(np.argmin(vals))]))
         from scipy.optimize import minimize
         for st in starts:
             r = minimize(obj, st, method="L-BFGS-B", bounds=[(-1.0, 1.0)] * k)
             vals.append(float(r.fun))
+            found.append(np.asarray(r.x, dtype=float))
         best[sense] = sense * min(vals)
+        u = found[int(np.argmin(vals))]
+        where["low" if sense == 1 else "high"] = {     # sense 1 minimises: the low
+            **fixed, **{x: float(box[x][0]) + float(ui) * float(box[x][1])
+                        for x, ui in zip(free, u)}}
     bounded = proven_bounded(form, env, list(box))
     method = (f"corners and interior search: monotonicity not proven for "
               f"{', '.join(map(str, free))} ({len(corners)} corners and {len(starts)} bounded "
@@ -368,7 +387,7 @@ def _fraction(v):
 
 
 def _one_part_extremes(form: Form, x, box: dict, base: dict, lo_pt: dict, hi_pt: dict):
-    """(low, high, number of critical points) of a closed form that is rational in the one
+    """(low, high, number of critical points, (where low, where high)) of a closed form that is rational in the one
     unproven part ``x``, the other parts fixed (``lo_pt`` for the low, ``hi_pt`` for the
     high); exact (:func:`derive.solver.univariate.extremes`). None where this does not apply
     (a sequence form, an irrational coefficient, a pole on the interval)."""
@@ -377,7 +396,7 @@ def _one_part_extremes(form: Form, x, box: dict, base: dict, lo_pt: dict, hi_pt:
         return None
     c, h = box[x]
     a, b = _fraction(c - h), _fraction(c + h)
-    out, crit = [], 0
+    out, crit, spots = [], 0, []
     for fixed, lower in ((lo_pt, True), (hi_pt, False)):
         point = {k: v for k, v in {**base, **fixed}.items() if k != x}
         e = sympy.cancel(sympy.together(form.final.xreplace(point)))
@@ -395,7 +414,10 @@ def _one_part_extremes(form: Form, x, box: dict, base: dict, lo_pt: dict, hi_pt:
         crit = max(crit, sum(1 for r in ext.critical
                              if not (isinstance(r, Fraction) and r in (a, b))))
         out.append(float(v))
-    return out[0], out[1], crit
+        spot = pick.at[0]
+        spots.append(sympy.Rational(spot.numerator, spot.denominator)
+                     if isinstance(spot, Fraction) else float((spot.lo + spot.hi) / 2))
+    return out[0], out[1], crit, tuple(spots)
 
 
 class Unbounded(ArithmeticError):
@@ -425,7 +447,14 @@ def _affine(dform: Form, x) -> bool:
     """Whether Q is affine in x (dQ/dx free of x), for single expressions."""
     if dform.defs:
         return False
-    return x not in dform.final.free_symbols or sympy.cancel(sympy.diff(dform.final, x)) == 0
+    if x not in dform.final.free_symbols:
+        return True
+    r = _sens.rational(dform.final)
+    if r is not None:        # a cancelled ratio n/d is free of x iff n and d both are
+        n, d, syms = r
+        i = syms.index(x)
+        return n.degrees()[i] == 0 and d.degrees()[i] == 0
+    return sympy.cancel(sympy.diff(dform.final, x)) == 0
 
 
 CHUNK = 1_000_000       # Monte Carlo samples drawn and evaluated at a time

@@ -48,10 +48,17 @@ def render_code(record, lang: str, args=None) -> dict:
 
 def gives_verdict(request) -> bool:
     """Whether ``derive check`` needs ``request``: its verdicts come from ``check``
-    statements, so no other request is derived."""
-    return request.statement == "check"
+    statements and ``find stress``, so no other request is derived."""
+    return request.statement == "check" or request.quantity == "stress"
 
 
 def check_lines(record):
-    from derive.analyses import claims
-    return claims.check_lines(record)
+    """(lines, ok) of ``derive check``: every ``check`` claim, then every verdict of ``find
+    stress``; ``ok`` is false (exit status 1) when a claim fails or a stress limit is
+    exceeded."""
+    from derive.analyses import claims, stress
+    lines, ok = claims.check_lines(record)
+    more, stress_ok = stress.check_lines(record)
+    if more:
+        lines = [x for x in lines if x != claims.NO_CLAIMS] + more
+    return lines, ok and stress_ok

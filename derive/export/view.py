@@ -147,6 +147,12 @@ def cautions(circuit) -> list:
                    "and protective earthing must follow the local electrical codes and the "
                    "applicable product standards, and work on it is for qualified persons "
                    "following licensed practice.")
+    if any(r.statement == "find" and r.quantity == "stress" for r in circuit.requests):
+        out.append("The stress figures are a DC calculation against the ratings entered in "
+                   "the sheet. Ratings depend on ambient temperature, mounting and pulse "
+                   "conditions: check every part against its datasheet, and where mains or "
+                   "high energy is involved defer to the applicable standards and licensed "
+                   "practice.")
     if any(w in words for w in ("battery", "batteries", "mains", "cell pack")):
         out.append("Batteries and mains supplies can deliver large fault currents and stored "
                    "energy even at modest voltages: provide overcurrent protection close to "
@@ -392,6 +398,39 @@ def _approximation_item(q) -> dict:
                      if best is not None else "")}
 
 
+def _operating_point_items(op) -> list:
+    """Summary of ``find operating point``: the counts, the largest dissipation, the balance."""
+    power = [(k, v["value"]) for k, v in op["power"].items() if v["value"] is not None]
+    items = [{"label": "operating point", "math": "",
+              "text": f"{len(op['nodes'])} node voltages, {len(op['currents'])} currents and "
+                      f"powers (DC)"}]
+    if power:
+        k, p = max(power, key=lambda kv: kv[1])
+        supplied = -sum(v for _, v in power if v < 0)
+        items.append({"label": "power", "math": "", "text":
+                      f"sources deliver {_eng(supplied, 'W')}; largest absorbed: {k} "
+                      f"{_eng(p, 'W')}"})
+    bal = op.get("balance") or {}
+    items.append({"label": "power balance", "math": "", "text":
+                  "absorbed powers add to zero (exact)" if bal.get("exact_zero") else
+                  "NOT verified"})
+    return items
+
+
+def _stress_items(stress) -> list:
+    """Summary of ``find stress``: one verdict per rated quantity."""
+    if not stress:
+        return [{"label": "stress", "math": "", "text": "no rated element"}]
+    items = []
+    for key, s in stress.items():
+        u = s["unit"]
+        items.append({"label": f"stress {key}", "math": "", "text":
+                      f"{'ok' if s['ok'] else 'EXCEEDED'}: worst {s['quantity']} "
+                      f"{_eng(s['worst'], u)} of limit {_eng(s['limit'], u)} "
+                      f"({s['use'] * 100:.0f} %)"})
+    return items
+
+
 def request_summary(record, r) -> list:
     """The answer of one request in a few lines: closed form where short, value with unit,
     tolerance band, the three largest sensitivities, verdicts, frequency figures."""
@@ -435,6 +474,10 @@ def request_summary(record, r) -> list:
         items.append({"label": "largest normalized sensitivities (x/Q)(dQ/dx)",
                       "math": "", "text": ", ".join(parts)})
     items += review_items(x)
+    if "operating_point" in x:
+        items += _operating_point_items(x["operating_point"])
+    if "stress" in x:
+        items += _stress_items(x["stress"])
     if "holds" in x:
         if x["holds"]:
             verdict = "holds (exact)"

@@ -26,14 +26,17 @@ def reactive(circuit) -> bool:
     return any(e.kind in REACTIVE for e in circuit.elements)
 
 
-def _at_dc(ratio: Ratio, what: str, req) -> Ratio:
-    """``ratio`` with ``s = 0`` (the ring variable that is ``s`` itself set to zero)."""
+def at_dc(ratio: Ratio, what: str, req, subject: str | None = None) -> Ratio:
+    """``ratio`` with ``s = 0`` (the ring variable that is ``s`` itself set to zero).
+    ``what`` names the ratio in errors (``voltage``), ``subject`` the request (default
+    ``power in X``); errors point at ``req.loc``."""
+    subject = subject or f"power in {req.element}"
     system = ratio.system
     names = [v.name for v in system.vars if v.kind == "expr" and v.expr == S]
     others = [v for v in system.vars if not (v.kind == "expr" and v.expr == S)
               and S in getattr(v.expr, "free_symbols", ())]
     if others:
-        raise SheetError(f"power in {req.element} at DC is not offered: an element value "
+        raise SheetError(f"{subject} at DC is not offered: an element value "
                          f"divides by or nests s ({others[0].expr}); give the element as a "
                          "capacitor or an inductor", req.loc.line, req.loc.col)
     if not names:
@@ -41,23 +44,33 @@ def _at_dc(ratio: Ratio, what: str, req) -> Ratio:
     at = {names[0]: 0}
     num, den = ratio.num.subs(at), ratio.den.subs(at)
     if den.is_zero():
-        raise SheetError(f"power in {req.element} has no DC value: the {what} of "
-                         f"{req.element} has a pole at s = 0 (at DC a capacitor is open and an "
-                         "inductor is a short, and the circuit then has no solution)",
-                         req.loc.line, req.loc.col)
+        raise SheetError(f"{subject} has no DC value: the {what} has a pole at s = 0 (at DC "
+                         "a capacitor is open and an inductor is a short, and the circuit "
+                         "then has no solution)", req.loc.line, req.loc.col)
     return Ratio(num, den, system).cancel()
 
 
 def factors(ctx, req) -> tuple:
     """(voltage, current) Ratios of element ``req.element``, at DC for a reactive circuit
     (cached per element)."""
-    key = ("power factors", req.element)
+    return element_factors(ctx, req.element, req)
+
+
+def element_factors(ctx, name: str, req, subject: str | None = None) -> tuple:
+    """(voltage, current) Ratios of element ``name`` (voltage of its first node against its
+    second, current in its reference direction; an ideal op-amp: its output against ground
+    and the current into its output), at DC for a reactive circuit, cached per element.
+    Errors point at ``req.loc`` and name ``subject``."""
+    key = ("power factors", name)
     if key not in ctx.cache:
-        e = ctx.circuit.element(req.element)
+        e = ctx.circuit.element(name)
         solver = ctx.solver(req.loc)
-        v, i = solver.voltage(*e.nodes), solver.current(e.name)
+        nodes = e.nodes if len(e.nodes) == 2 else (e.nodes[-1], ctx.circuit.ground)
+        v, i = solver.voltage(*nodes), solver.current(e.name)
         if reactive(ctx.circuit):
-            v, i = _at_dc(v, "voltage", req), _at_dc(i, "current", req)
+            subject = subject or f"power in {name}"
+            v = at_dc(v, f"voltage of {name}", req, subject)
+            i = at_dc(i, f"current of {name}", req, subject)
         ctx.cache[key] = (v, i)
     return ctx.cache[key]
 
