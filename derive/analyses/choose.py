@@ -44,6 +44,8 @@ from fractions import Fraction
 import flint
 import sympy
 
+from derive.analyses.eseries import decade
+from derive.solver.numbers import fmpq_of, fraction_of
 from derive.analyses import eseries
 from derive.analyses import inversion
 from derive.analyses import sensitivity as _sens
@@ -65,28 +67,7 @@ def _at(loc):
     return loc.line, loc.col
 
 
-def _fr(v) -> Fraction:
-    if isinstance(v, Fraction):
-        return v
-    if isinstance(v, flint.fmpq):
-        return Fraction(int(v.p), int(v.q))
-    v = sympy.Rational(v)
-    return Fraction(int(v.p), int(v.q))
 
-
-def _fq(v) -> flint.fmpq:
-    v = _fr(v)
-    return flint.fmpq(v.numerator, v.denominator)
-
-
-def decade(x: Fraction) -> int:
-    """The integer k with 10**k <= x < 10**(k+1), exactly."""
-    k = len(str(x.numerator)) - len(str(x.denominator))
-    while Fraction(10) ** k > x:
-        k -= 1
-    while Fraction(10) ** (k + 1) <= x:
-        k += 1
-    return k
 
 
 @functools.lru_cache(maxsize=4096)
@@ -115,8 +96,8 @@ def window(series: str, nominal: Fraction) -> list:
 
 def _cauchy(p: flint.fmpq_poly) -> Fraction:
     """An upper bound of the absolute values of the roots of ``p`` (Cauchy)."""
-    lead = abs(_fr(p[p.degree()]))
-    return 1 + max((abs(_fr(p[k])) / lead for k in range(p.degree())), default=Fraction(0))
+    lead = abs(fraction_of(p[p.degree()]))
+    return 1 + max((abs(fraction_of(p[k])) / lead for k in range(p.degree())), default=Fraction(0))
 
 
 def positive_roots(p: flint.fmpq_poly) -> list:
@@ -191,24 +172,24 @@ class Problem:
         n, d, syms = r
         self.form = form
         self.nominal = nominal
-        fixed = {f"v{i}": _fq(nominal[x]) for i, x in enumerate(syms) if x not in self.chosen}
+        fixed = {f"v{i}": fmpq_of(nominal[x]) for i, x in enumerate(syms) if x not in self.chosen}
         self.n = n.subs(fixed) if fixed else n
         self.d = d.subs(fixed) if fixed else d
         self.index = [syms.index(x) for x in self.chosen]
         self.nvars = len(syms)
-        self.target = _fr(req.target.value)
+        self.target = fraction_of(req.target.value)
         self.evaluations = 0
 
     def value(self, vals) -> Fraction | None:
         """Q at the chosen symbols' values ``vals`` (exact), None at a pole."""
         point = [flint.fmpq(0)] * self.nvars
         for i, v in zip(self.index, vals):
-            point[i] = _fq(v)
+            point[i] = fmpq_of(v)
         self.evaluations += 1
         dv = self.d(*point)
         if dv == 0:
             return None
-        return _fr(self.n(*point) / dv)
+        return fraction_of(self.n(*point) / dv)
 
     def error(self, v: Fraction) -> Fraction:
         t = self.target
@@ -217,7 +198,7 @@ class Problem:
     def univariate(self, outer):
         """(N, D) as fmpq_poly in the last chosen symbol, the others at ``outer``."""
         last = self.index[-1]
-        sub = {f"v{i}": _fq(v) for i, v in zip(self.index[:-1], outer)}
+        sub = {f"v{i}": fmpq_of(v) for i, v in zip(self.index[:-1], outer)}
         n = self.n.subs(sub) if sub else self.n
         d = self.d.subs(sub) if sub else self.d
 
@@ -231,7 +212,7 @@ class Problem:
 
     def special(self, N, D) -> tuple:
         """(continuous solutions, all special points) in (0, oo) as (lo, hi) enclosures."""
-        P = N - flint.fmpq_poly([_fq(self.target)]) * D
+        P = N - flint.fmpq_poly([fmpq_of(self.target)]) * D
         roots = positive_roots(P)
         crit = positive_roots(N.derivative() * D - N * D.derivative())
         poles = positive_roots(D)
@@ -289,12 +270,12 @@ class Problem:
 def _limits(pb: Problem, N, D):
     """Q's limits towards 0 and infinity in the one chosen symbol (None where infinite)."""
     out = []
-    d0 = _fr(D(0)) if D.degree() >= 0 else Fraction(0)
-    out.append(_fr(N(0)) / d0 if d0 != 0 else None)
+    d0 = fraction_of(D(0)) if D.degree() >= 0 else Fraction(0)
+    out.append(fraction_of(N(0)) / d0 if d0 != 0 else None)
     if N.degree() < D.degree():
         out.append(Fraction(0))
     elif N.degree() == D.degree():
-        out.append(_fr(N[N.degree()]) / _fr(D[D.degree()]))
+        out.append(fraction_of(N[N.degree()]) / fraction_of(D[D.degree()]))
     else:
         out.append(None)
     return out

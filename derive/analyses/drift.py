@@ -33,6 +33,7 @@ from fractions import Fraction
 import flint
 import sympy
 
+from derive.solver.numbers import fmpq_of, fraction_of
 from derive.analyses import sensitivity as _sens
 from derive.circuit.build import S as LAPLACE_S
 from derive.derivation.steps import Equation, Step
@@ -86,18 +87,6 @@ def temperature_offsets(ctx: Context) -> tuple:
     return t0, lo - t0, hi - t0
 
 
-def _fq(v) -> flint.fmpq:
-    v = sympy.Rational(v)
-    return flint.fmpq(int(v.p), int(v.q))
-
-
-def _fr(v) -> Fraction:
-    if isinstance(v, Fraction):
-        return v
-    if isinstance(v, flint.fmpq):
-        return Fraction(int(v.p), int(v.q))
-    v = sympy.Rational(v)
-    return Fraction(int(v.p), int(v.q))
 
 
 def univariate_in_t(n, d, syms, values: dict, tcs: dict):
@@ -107,9 +96,9 @@ def univariate_in_t(n, d, syms, values: dict, tcs: dict):
     (t,) = one.gens()
     args = []
     for x in syms:
-        x0 = _fq(values[x])
+        x0 = fmpq_of(values[x])
         tc = tcs.get(x)
-        args.append(one.constant(x0) + (x0 * _fq(tc)) * t if tc else one.constant(x0))
+        args.append(one.constant(x0) + (x0 * fmpq_of(tc)) * t if tc else one.constant(x0))
 
     def poly(p):
         q = p.compose(*args, ctx=one)
@@ -131,7 +120,7 @@ def _where(pt) -> Fraction:
     midpoint for an irrational critical point)."""
     if isinstance(pt, univariate.RealRoot):
         return pt.exact if pt.exact is not None else (pt.lo + pt.hi) / 2
-    return _fr(pt)
+    return fraction_of(pt)
 
 
 def _value(ext) -> Fraction:
@@ -171,18 +160,18 @@ class Drift:
         except univariate.Unbounded:
             raise SheetError(f"the drift of {self.name} cannot be given: a denominator "
                              "vanishes inside the temperature range", *_loc(req)) from None
-        self.q0 = _fr(self.N(0) / self.D(0))
-        n0, d0 = _fr(self.N(0)), _fr(self.D(0))
-        n1, d1 = _fr(self.N.derivative()(0)), _fr(self.D.derivative()(0))
+        self.q0 = fraction_of(self.N(0) / self.D(0))
+        n0, d0 = fraction_of(self.N(0)), fraction_of(self.D(0))
+        n1, d1 = fraction_of(self.N.derivative()(0)), fraction_of(self.D.derivative()(0))
         self.coefficient = (n1 / n0 - d1 / d0) if n0 != 0 else None     # 1/K, exact
         # independent: sum_x S_x tc_x from the multivariate derivatives at nominal
-        point = [_fq(self.nominal[x]) for x in syms]
+        point = [fmpq_of(self.nominal[x]) for x in syms]
         nv, dv = n(*point), d(*point)
         total = Fraction(0)
         for i, x in enumerate(syms):
             if x in self.tcs and nv != 0:
                 dq = (n.derivative(i)(*point) * dv - nv * d.derivative(i)(*point)) / (dv * dv)
-                s = _fr(self.nominal[x]) * _fr(dq) / _fr(nv / dv)
+                s = fraction_of(self.nominal[x]) * fraction_of(dq) / fraction_of(nv / dv)
                 total += s * self.tcs[x]
         self.coefficient_check = total if nv != 0 else None
         self.low = self.ext.minimum
@@ -198,7 +187,7 @@ class Drift:
                                          sympy.Rational(t))
                  for x, v in self.nominal.items()}
         v = self.form.value(point)
-        return None if v is None else _fr(v)
+        return None if v is None else fraction_of(v)
 
     def method(self) -> str:
         if not self.tcs:
@@ -227,7 +216,7 @@ class Drift:
                  f"x at {_deg(t0 + self.b)}"]]
         for x in self.syms:
             tc = self.tcs.get(x)
-            x0 = _fr(self.nominal[x])
+            x0 = fraction_of(self.nominal[x])
             rows.append([str(x), f"{float(x0):.6g}", f"{float(tc * PPM):g}" if tc else "0",
                          f"{float(x0 * (1 + (tc or 0) * self.a)):.6g}",
                          f"{float(x0 * (1 + (tc or 0) * self.b)):.6g}"])
@@ -244,9 +233,9 @@ class Drift:
         for _ in range(12):
             t = Fraction(rnd.randint(-10 ** 6, 10 ** 6), rnd.randint(1, 10 ** 4))
             want = self.q_at(t)
-            if want is None or self.D(_fq(t)) == 0:
+            if want is None or self.D(fmpq_of(t)) == 0:
                 continue
-            ok = ok and _fr(self.N(_fq(t)) / self.D(_fq(t))) == want
+            ok = ok and fraction_of(self.N(fmpq_of(t)) / self.D(fmpq_of(t))) == want
             used += 1
             if used == 4:
                 break
@@ -264,7 +253,7 @@ class Drift:
             v = self.q_at(tt_)
             cands.append([label, _deg(t0 + tt_), f"{float(v):.8g}{u}"])
         for cT in self.critical:
-            v = _fr(self.N(_fq(cT - t0)) / self.D(_fq(cT - t0)))
+            v = fraction_of(self.N(fmpq_of(cT - t0)) / self.D(fmpq_of(cT - t0)))
             cands.append(["critical point", _deg(cT), f"{float(v):.8g}{u}"])
         for label, ext, at in (("min", self.low, self.at_low), ("max", self.high, self.at_high)):
             if ext.value is not None:

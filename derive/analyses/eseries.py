@@ -113,7 +113,7 @@ def _exact(x, what: str = "value") -> Fraction:
     return q
 
 
-def _decade(x: Fraction) -> int:
+def decade(x: Fraction) -> int:
     """The integer k with 10**k <= x < 10**(k+1)."""
     k = len(str(x.numerator)) - len(str(x.denominator))
     while Fraction(10) ** k > x:
@@ -126,7 +126,7 @@ def _decade(x: Fraction) -> int:
 def _around(series: str, x: Fraction) -> list[Fraction]:
     """The series values of x's decade and the first value of the next, ascending."""
     m, scale = mantissas(series), _scale(series)
-    unit = Fraction(10) ** _decade(x) / scale
+    unit = Fraction(10) ** decade(x) / scale
     return [v * unit for v in m] + [m[0] * unit * 10]
 
 
@@ -143,7 +143,7 @@ def values(series: str, low, high) -> list[Fraction]:
     if lo > hi:
         raise SeriesError(f"empty range: low {lo} > high {hi}")
     out = []
-    for k in range(_decade(lo), _decade(hi) + 1):
+    for k in range(decade(lo), decade(hi) + 1):
         unit = Fraction(10) ** k / scale
         out.extend(v * unit for v in m if lo <= v * unit <= hi)
     return out
