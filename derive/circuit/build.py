@@ -16,7 +16,7 @@ import sympy
 from derive.errors import SheetError
 from derive.sheet import kinds
 from derive.sheet.expressions import names_in, to_sympy
-from derive.sheet.model import Call, Element, Loc, Name, OpAmp, Sheet, Use
+from derive.sheet.model import Call, Element, Loc, Name, Nominal, OpAmp, Sheet, Use
 from derive.circuit.naming import key_of
 from derive.circuit.requests import check_requests
 from derive.circuit.topology import check_topology, dependent_cuts
@@ -180,6 +180,14 @@ class _Builder:
                 self.add_opamp(st, scope)
             elif isinstance(st, Use):
                 self.add_use(st, scope, stack)
+            elif isinstance(st, Nominal) and stack:
+                # a block's values name the sheet's own symbols, shared by every instance:
+                # a nominal here used to be ignored silently (values null); refused instead
+                raise SheetError(f"a 'nominal' line cannot stand inside block '{stack[-1]}': "
+                                 f"the symbol '{st.name}' is shared by every instance, so its "
+                                 "nominal value belongs at the top level of the sheet",
+                                 st.loc.line, st.loc.col,
+                                 hint=f"move 'nominal {st.name} = ...' out of the block")
 
     def value_of(self, display, kind, value, scope, loc, mapped=None):
         """The element value expression: mapped by ``with``, an expression, or its own symbol."""

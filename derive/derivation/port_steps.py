@@ -464,6 +464,9 @@ def _value_step(ctx, req, q) -> Step:
         rows.append([si.display if si else str(s),
                      format_eng(to_float(val), si.unit if si else None) if val is not None
                      else "none (kept symbolic)"])
+    if q.value is None and getattr(q, "undefined", None):
+        return Step(q.undefined[0].upper() + q.undefined[1:] + ".", [], kind="value",
+                    table=rows)
     if q.value is None:
         return Step(f"{q.name} has no single value: some symbols have no nominal value (or the "
                     "result depends on s).", [], kind="value", table=rows)

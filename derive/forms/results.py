@@ -25,6 +25,8 @@ class QuantityResult:
     in_sequence: Optional[sympy.Expr] = None
     form: str = "expanded"              # 'expanded', 'series-parallel', 'sequence'
     notes: list = field(default_factory=list)
+    # why there is no value although every symbol has a nominal value (a pole there)
+    undefined: Optional[str] = None
 
 
 @dataclass

@@ -1,0 +1,141 @@
+"""Robustness II, items 3, 4, 6-9: valid sheets that crashed, silent wrong or misleading
+answers, the error display. Every sheet here goes through the command line
+(``derive record FILE --format json``) and must either answer (exit 0, right values) or
+refuse with a located ``FILE:LINE:COL: error: ...`` whose line is right (exit 2); never
+exit 3 or a traceback. Each test names the defect it guards against."""
+from __future__ import annotations
+
+import json
+import re
+
+import pytest
+
+from derive.cli import main
+
+LOCATED = re.compile(r"^(?P<file>[^\n]*):(?P<line>\d+):(?P<col>\d+): error: (?P<msg>[^\n]+)")
+
+
+def record(tmp_path, capsys, text, fmt="json", name="s.eqv"):
+    """(status, parsed JSON or text, stderr) of ``derive record`` on ``text``."""
+    p = tmp_path / name
+    p.write_text(text, encoding="utf-8", newline="")
+    capsys.readouterr()
+    status = main(["record", str(p), "--format", fmt])
+    out, err = capsys.readouterr()
+    assert status in (0, 2), f"exit {status}:\n{err}"
+    assert "Traceback" not in err and "internal error" not in err
+    if status == 0 and fmt == "json":
+        out = json.loads(out)
+    return status, out, err
+
+
+def located(err, line):
+    """The located message of ``err``; asserts it names ``line`` and shows that line."""
+    m = LOCATED.match(err)
+    assert m, err
+    assert int(m.group("line")) == line, err
+    return m.group("msg"), err.splitlines()
+
+
+def result(doc, request):
+    return next(r for r in doc["results"] if r["request"] == request)
+
+
+# ------------------------------------------------------------------ 4. silent wrong answers
+BLOCK_NOMINAL = """block div (hi, mid, lo)
+  nominal R = 10 kohm ±1%
+  resistor Rt between hi and mid = R
+  resistor Rb between mid and lo = R
+end
+voltage source V1 between top and gnd = 10 V
+use div d1 (top, out, gnd)
+port p between out and gnd
+find rth at p
+"""
+
+
+def test_nominal_inside_a_block_is_refused_at_its_line(tmp_path, capsys):
+    # before: the nominal was ignored (rth value null, R left out of the sensitivities)
+    status, _, err = record(tmp_path, capsys, BLOCK_NOMINAL)
+    assert status == 2
+    msg, lines = located(err, 2)
+    assert "nominal" in msg and "'R'" in msg and "top level" in msg
+    assert lines[1].strip() == "nominal R = 10 kohm ±1%"
+
+
+def test_nominal_moved_to_the_top_level_is_honoured(tmp_path, capsys):
+    text = BLOCK_NOMINAL.replace("  nominal R = 10 kohm ±1%\n", "") + "nominal R = 10 kohm ±1%\n"
+    status, doc, _ = record(tmp_path, capsys, text)
+    assert status == 0
+    # two equal resistors R in parallel seen from the tap: R/2 = 5 kohm (common practice)
+    assert result(doc, "find rth at p")["quantities"]["rth"]["value"] == pytest.approx(5000.0)
+
+
+SINGULAR = """voltage source V1 between in and gnd = 1 V
+resistor R1 between in and out = Ra - Rb
+resistor R2 between out and gnd = 1 kohm
+nominal Ra = 1 kohm
+nominal Rb = 2 kohm
+port p between out and gnd
+find vth at p
+find rth at p
+"""
+
+
+def test_circuit_singular_at_nominal_says_undefined(tmp_path, capsys):
+    # vth = R2 V1/(R2 + Ra - Rb): at Ra - Rb = -1 kohm = -R2 the denominator is zero
+    # (divider algebra, common practice). before: "inf V" with no warning
+    status, doc, _ = record(tmp_path, capsys, SINGULAR)
+    assert status == 0
+    for req, name in (("find vth at p", "vth"), ("find rth at p", "rth")):
+        q = result(doc, req)["quantities"][name]
+        assert q["value"] is None
+        assert any("unbounded or undefined at nominal" in n for n in q["notes"])
+    status, md, _ = record(tmp_path, capsys, SINGULAR, fmt="md")
+    assert "inf V" not in md and "inf Ω" not in md
+    assert "vth is unbounded or undefined at nominal values" in md
+
+
+def test_zero_ohm_short_across_the_source_is_not_called_symbolic(tmp_path, capsys):
+    # a 0 ohm short across V1: V1 drives an unbounded current (V1/R0 with R0 = 0), while
+    # vth is the divider value 10·2/3 V, the short being in parallel with the ideal source
+    # (common practice, no source). before: "no value (symbolic)" though all had values
+    text = ("voltage source V1 between top and gnd = 10 V\n"
+            "resistor R0 between top and gnd = 0 ohm\n"
+            "resistor R1 between top and out = 1 kohm\n"
+            "resistor R2 between out and gnd = 2 kohm\n"
+            "port p between out and gnd\nfind vth at p\nfind current through V1\n")
+    status, doc, _ = record(tmp_path, capsys, text)
+    assert status == 0
+    assert result(doc, "find vth at p")["quantities"]["vth"]["value"] == pytest.approx(20 / 3)
+    cur = result(doc, "find current through V1")["quantities"]["current"]
+    assert cur["value"] is None and "unbounded" in " ".join(cur["notes"])
+    status, md, _ = record(tmp_path, capsys, text, fmt="md")
+    assert "no value (symbolic)" not in md and "current is unbounded" in md
+
+
+def test_pole_inside_the_tolerance_box_is_refused(tmp_path, capsys):
+    # vth = R2 V1/(R2 + Ra - Rb) = 1k/(1k + Ra - Rb): at nominal 1k + 1k - 1.9k = 100 ohm > 0,
+    # at Ra = 900, Rb = 2090 it is -190 ohm < 0, so the denominator vanishes inside the box
+    # (intermediate value theorem). before: finite "extremes" of about ±1e9 V
+    text = SINGULAR.replace("nominal Ra = 1 kohm", "nominal Ra = 1 kohm ±10%").replace(
+        "nominal Rb = 2 kohm", "nominal Rb = 1900 ohm ±10%").replace(
+        "find rth at p\n", "find tolerance of vth at p\n")
+    status, _, err = record(tmp_path, capsys, text)
+    assert status == 2
+    msg, lines = located(err, 8)
+    assert "unbounded on the box" in msg and "changes sign" in msg
+    assert lines[1].strip() == "find tolerance of vth at p"
+
+
+def test_box_without_pole_still_gives_extremes(tmp_path, capsys):
+    # same circuit with Rb = 500 ohm ±10%: the denominator 1k + Ra - Rb stays >= 1k + 900 - 550
+    # > 0; vth is decreasing in Ra and increasing in Rb, so the extremes are the corners
+    # 1000/(1000+1100-450) and 1000/(1000+900-550) (hand algebra)
+    text = SINGULAR.replace("nominal Ra = 1 kohm", "nominal Ra = 1 kohm ±10%").replace(
+        "nominal Rb = 2 kohm", "nominal Rb = 500 ohm ±10%").replace(
+        "find rth at p\n", "find tolerance of vth at p\n")
+    status, doc, _ = record(tmp_path, capsys, text)
+    assert status == 0
+    sp = result(doc, "find tolerance of vth at p")["spread"]
+    assert sp["low"] == pytest.approx(1000 / 1650) and sp["high"] == pytest.approx(1000 / 1350)
