@@ -139,3 +139,127 @@ def test_box_without_pole_still_gives_extremes(tmp_path, capsys):
     assert status == 0
     sp = result(doc, "find tolerance of vth at p")["spread"]
     assert sp["low"] == pytest.approx(1000 / 1650) and sp["high"] == pytest.approx(1000 / 1350)
+
+
+# ------------------------------------------------------------------ 3. valid sheets that crashed
+def test_model_of_a_lone_series_resistor(tmp_path, capsys):
+    # a series resistor R1 between the ports: with the output open no current flows, so rin
+    # is infinite; gain 1; rout = R1 with the input held at zero (common practice, no
+    # source). before: internal error (AttributeError) on the loaded input resistance
+    text = ("voltage source Vs between in and gnd = 1 V\n"
+            "resistor R1 between in and out = 1 kohm\n"
+            "port pin between in and gnd\nport pout between out and gnd\n"
+            "find model from pin to pout\n")
+    status, doc, _ = record(tmp_path, capsys, text)
+    assert status == 0
+    r = result(doc, "find model from pin to pout")
+    assert r["quantities"]["gain"]["value"] == pytest.approx(1.0)
+    assert r["quantities"]["rout"]["value"] == pytest.approx(1000.0)
+    assert "rin" not in r["quantities"] and r["infinite"] == ["rin"]
+    assert r["loaded_rin"]["open"] is None
+
+
+def test_square_root_value_in_an_op_amp_circuit(tmp_path, capsys):
+    # non-inverting amplifier: gain = 1 + Rf/Rg = 1 + sqrt(4e6)/1e3 = 3 (handbook form of the
+    # ideal non-inverting stage). before: "internal check failed" (the random-point check
+    # could not evaluate sqrt at a rational point)
+    text = ("voltage source Vin between inp and gnd = 1 V\n"
+            "opamp U1 inputs inp, inn output out\n"
+            "resistor Rf between out and inn = sqrt(x)\n"
+            "resistor Rg between inn and gnd = 1 kohm\n"
+            "nominal x = 4 Mohm\nport p between out and gnd\nfind gain from Vin to p\n")
+    status, doc, _ = record(tmp_path, capsys, text)
+    assert status == 0
+    r = result(doc, "find gain from Vin to p")
+    assert r["quantities"]["gain"]["value"] == pytest.approx(3.0)
+    assert all(st["verified"] for st in r["steps"])
+
+
+def test_check_rth_at_a_port_across_a_voltage_source(tmp_path, capsys):
+    # rth across an ideal voltage source is 0 (sources zeroed: a short). before: internal
+    # error (ValueError "infinite result") while wording the diagnosis of the false claim
+    text = ("voltage source V1 between a and gnd = 5 V\n"
+            "resistor R1 between a and b = 1 kohm\nresistor R2 between b and gnd = 1 kohm\n"
+            "port p between a and gnd\n"
+            "check rth at p equals 0\ncheck rth at p equals R1\n")
+    status, doc, _ = record(tmp_path, capsys, text)
+    assert status == 0
+    assert result(doc, "check rth at p equals 0")["holds"] is True
+    false = result(doc, "check rth at p equals R1")
+    assert false["holds"] is False and "identically 0" in false["diagnosis"]
+    assert false["counterexample"]["quantity"] == 0.0
+    assert false["counterexample"]["claim"] == pytest.approx(1000.0)
+
+
+def test_solve_where_the_nominal_value_is_infinite():
+    # vth = R2 V1/(R2 + Ra - Rb) is infinite at Ra - Rb = -R2 (nominal); solving
+    # vth (R2 + Ra - Rb) = R2 V1 for R2 gives R2 = vth (Ra - Rb)/(V1 - vth) (hand algebra).
+    # before: internal error (TypeError: complex to float)
+    import sympy
+    from derive import derive_text
+    text = SINGULAR.replace("find vth at p\nfind rth at p\n", "solve vth at p for R2\n")
+    rec = derive_text(text, "s.eqv")
+    r = rec.results[0]
+    vth, V1, Ra, Rb = sympy.symbols("vth V1 Ra Rb")
+    assert sympy.simplify(r.quantities["R2"].expr - vth * (Ra - Rb) / (V1 - vth)) == 0
+    assert r.extra["measured"]["value"] is None
+    assert any("no finite real value" in n for n in r.notes)
+
+
+def test_solve_for_a_symbol_under_a_square_root_is_located(tmp_path, capsys):
+    # before: internal error (PolynomialError)
+    text = ("voltage source V1 between in and gnd = 1 V\n"
+            "resistor R1 between in and out = sqrt(x)\n"
+            "resistor R2 between out and gnd = 1 kohm\n"
+            "nominal x = 1 Mohm\nport p between out and gnd\nsolve vth at p for x\n")
+    status, _, err = record(tmp_path, capsys, text)
+    assert status == 2
+    msg, lines = located(err, 6)
+    assert "not a rational function of x" in msg
+    assert lines[1].strip() == "solve vth at p for x"
+
+
+def test_series_capacitors_whose_values_sum_to_zero(tmp_path, capsys):
+    # C1 in series with C2 = -C1: C1 C2/(C1 + C2) is infinite, the pair is a short, so the
+    # normalised frequency form has no value at nominal; the record still answers.
+    # before: internal error (LinAlgError in the roots at nominal values)
+    text = ("voltage source V1 between in and gnd = 1 V\n"
+            "capacitor C1 between in and m = 1 uF\ncapacitor C2 between m and out = -1 uF\n"
+            "resistor R1 between out and gnd = 1 kohm\nport p between out and gnd\n"
+            "find vth at p\nfind gain from V1 to p\n")
+    status, doc, _ = record(tmp_path, capsys, text)
+    assert status == 0
+    f = result(doc, "find vth at p")["frequency"]["vth"]
+    assert f["poles_value"] is None
+
+
+def test_value_imaginary_at_nominal_is_located(tmp_path, capsys):
+    # sqrt(-1 Mohm) is 1000j: not a resistance. before: internal error (complex to float)
+    text = ("voltage source V1 between in and gnd = 1 V\n"
+            "resistor R1 between in and out = sqrt(x)\n"
+            "resistor R2 between out and gnd = 1 kohm\n"
+            "nominal x = -1 Mohm\nport p between out and gnd\nfind vth at p\n"
+            "find sensitivity of vth at p\n")
+    status, _, err = record(tmp_path, capsys, text)
+    assert status == 2
+    msg, lines = located(err, 2)
+    assert "not a real number at nominal values" in msg
+    assert lines[1].strip() == "resistor R1 between in and out = sqrt(x)"
+
+
+def test_false_claim_whose_counterexample_is_not_real(tmp_path, capsys):
+    # V1 sqrt(-R1/R2) is imaginary at every positive point, the divider's vth = 2/3 V real:
+    # the counterexample gives the claim as [real, imaginary] = [0, sqrt(1/2)] at nominal.
+    # before: internal error (formatting None)
+    text = ("voltage source V1 between in and gnd = 1 V\n"
+            "resistor R1 between in and out = 1 kohm\nresistor R2 between out and gnd = 2 kohm\n"
+            "port p between out and gnd\ncheck vth at p equals V1*sqrt(-R1/R2)\n")
+    status, doc, _ = record(tmp_path, capsys, text)
+    assert status == 0
+    r = result(doc, "check vth at p equals V1*sqrt(-R1/R2)")
+    c = r["counterexample"]
+    assert r["holds"] is False and c["claim"] is None
+    assert c["quantity"] == pytest.approx(2 / 3)
+    assert c["claim_complex"] == pytest.approx([0.0, 0.5 ** 0.5])
+    status, md, _ = record(tmp_path, capsys, text, fmt="md")
+    assert "(not real)" in md

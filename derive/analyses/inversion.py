@@ -183,7 +183,17 @@ def solve_request(ctx, req) -> analysis.RequestResult:
                          loc.line, loc.col)
     q = measured_symbol(ctx, name)
     num, den = sympy.fraction(sympy.cancel(sympy.together(expr)))
-    poly = sympy.Poly(sympy.expand(num - q * den), x)
+    try:
+        poly = sympy.Poly(sympy.expand(num - q * den), x)
+    except sympy.PolynomialError:
+        poly = None
+    if poly is None or any(not c.is_polynomial(x) or c.has(x) for c in poly.coeffs()):
+        raise SheetError(f"{name} at {req.port} is not a rational function of "
+                         f"{req.solve_for} (it depends on it through a root or another "
+                         f"function), so it cannot be solved for {req.solve_for}",
+                         loc.line, loc.col,
+                         hint=f"solve for a symbol that {name} depends on rationally, or give "
+                         f"the value under the root a symbol of its own")
     roots, method = polynomial_roots(poly)
     if not roots:
         raise SheetError(f"{name} is a degree-{poly.degree()} polynomial in {req.solve_for}; no "
@@ -191,7 +201,10 @@ def solve_request(ctx, req) -> analysis.RequestResult:
     nominal = dict(ctx.nominal)
     info = ctx.circuit.symbols[x.name]
     q_nom = expr.xreplace(nominal)
-    have_nominal = q_nom.is_number
+    # a measured value infinite (the circuit singular at nominal) or not real has no use as
+    # a nominal measurement: the inversion stays symbolic and the record says why
+    undefined = q_nom.is_number and not (q_nom.is_finite and q_nom.is_extended_real)
+    have_nominal = q_nom.is_number and not undefined
     if have_nominal:
         nominal[q] = q_nom
     steps = [Step(f"Write the measured {name} as a symbol of its own, {q}, equal to its "
@@ -243,6 +256,10 @@ def solve_request(ctx, req) -> analysis.RequestResult:
     value = listed[pick]["value"]
     unit = info.unit
     out = analysis.RequestResult(req)
+    if undefined:
+        out.notes.append(f"{name} has no finite real value at nominal values (its closed form "
+                         "is not defined or not real there), so no nominal measurement is "
+                         "used: roots and conditions are given symbolically")
     out.quantities[x.name] = analysis.QuantityResult(x.name, root, value, unit, form="inverted")
     out.extra.update({
         "measured": {"symbol": q.name, "quantity": name, "unit": fq.unit,

@@ -274,6 +274,20 @@ def exact_value(expr, point: dict, defs: dict | None = None):
         return None
 
 
+def square_roots_away(exprs) -> dict:
+    """{x: t**2} for every symbol ``x`` that occurs under a square root (``sqrt(x)``, or
+    ``x**(k/2)``) in ``exprs``, with ``t`` a new positive symbol: substituted, the
+    expressions become rational functions (``sqrt(t**2) = t``), so exact random-point
+    checks apply to them, a random ``t`` standing for a random perfect square ``x``."""
+    out = {}
+    for e in exprs:
+        for x in sympy.preorder_traversal(e):
+            if x.is_Pow and x.base.is_Symbol and x.exp.is_Rational and x.exp.q == 2 \
+                    and x.base not in out:
+                out[x.base] = sympy.Symbol(f"_sqrt_{x.base}", positive=True) ** 2
+    return out
+
+
 def random_point(rnd: random.Random, syms) -> dict:
     """Positive random rationals for ``syms`` (sorted by name, so the draw is repeatable)."""
     return {x: sympy.Rational(rnd.randint(1, 10**6), rnd.randint(1, 10**3))
