@@ -263,3 +263,68 @@ def test_false_claim_whose_counterexample_is_not_real(tmp_path, capsys):
     assert c["claim_complex"] == pytest.approx([0.0, 0.5 ** 0.5])
     status, md, _ = record(tmp_path, capsys, text, fmt="md")
     assert "(not real)" in md
+
+
+# ------------------------------------------------------------------ 6. the error display
+BASE = ("voltage source V1 between a and gnd = 5 V\n"
+        "resistor R1 between a and gnd = 1k\nport p between a and gnd\n")
+
+
+@pytest.mark.parametrize("sep", ["\u2028", "\u2029", "\x85", "\x0b", "\x0c", "\x1c", "\x1d",
+                                 "\x1e"])
+def test_unicode_line_separators_do_not_shift_the_caret(tmp_path, capsys, sep):
+    # the lexer ends a line only at \n: a separator inside a comment is part of the
+    # comment, so the bad request is on line 5. before: the line shown was line 5 of
+    # str.splitlines, which counts the separator as a line break (one line off)
+    text = f"# a{sep}b\n" + BASE + "find vth at q\n"
+    status, _, err = record(tmp_path, capsys, text)
+    assert status == 2
+    msg, lines = located(err, 5)
+    assert "unknown port 'q'" in msg
+    assert lines[1] == "    find vth at q" and lines[2] == "    " + " " * 12 + "^"
+    assert sep not in err
+
+
+def test_lone_carriage_return_is_not_a_line_break(tmp_path, capsys):
+    status, _, err = record(tmp_path, capsys, "# a\rb\n" + BASE + "find vth at p\n")
+    assert status == 2
+    msg, lines = located(err, 1)
+    assert "carriage return" in msg and "\r" not in err
+    assert lines[1] == "    # a\\x0db" and lines[2] == "       ^"
+
+
+def test_control_characters_are_shown_escaped(tmp_path, capsys):
+    status, _, err = record(tmp_path, capsys, BASE + "find vth at p\x1b[31mRED\x07\n")
+    assert status == 2
+    msg, lines = located(err, 4)
+    assert not any(ord(c) < 32 and c != "\n" for c in err)      # nothing raw
+    assert "\\x1b" in msg
+    assert lines[1] == "    find vth at p\\x1b[31mRED\\x07"
+    assert lines[2].index("^") == lines[1].index("\\x1b")        # caret under the escape
+
+
+def test_a_very_long_line_is_shown_as_a_window_around_the_column(tmp_path, capsys):
+    text = BASE + 'note "' + "y" * 3000 + '" $ zz\n'
+    status, _, err = record(tmp_path, capsys, text)
+    assert status == 2
+    msg, lines = located(err, 4)
+    assert "'$'" in msg
+    shown, caret = lines[1], lines[2]
+    assert len(shown) < 200 and shown.startswith("    ...")
+    assert shown[caret.index("^")] == "$"
+    # a long token in the message is cut too
+    status, _, err = record(tmp_path, capsys, BASE + "find vth at p " + "x" * 5000 + "\n")
+    assert status == 2 and len(err.splitlines()[0]) < 200
+
+
+@pytest.mark.parametrize("digit", ["\u0665", "\u06f5", "\uff15", "\u0b6b"])
+def test_digits_other_than_ascii_are_not_numbers(tmp_path, capsys, digit):
+    # Arabic-Indic, extended Arabic-Indic, full-width and Oriya five. before: read as 5 V
+    for value in (digit, "5" + digit):
+        text = f"voltage source V1 between a and gnd = {value} V\n" + BASE.split("\n", 1)[1] \
+            + "find vth at p\n"
+        status, _, err = record(tmp_path, capsys, text)
+        assert status == 2
+        msg, lines = located(err, 1)
+        assert "ASCII 0-9" in msg
+        assert lines[2].index("^") - 4 == lines[1].index(digit) - 4
