@@ -328,3 +328,47 @@ def test_digits_other_than_ascii_are_not_numbers(tmp_path, capsys, digit):
         msg, lines = located(err, 1)
         assert "ASCII 0-9" in msg
         assert lines[2].index("^") - 4 == lines[1].index(digit) - 4
+
+
+# ------------------------------------------------------------------ 7. PDF
+def _have_tex():
+    import shutil
+    from derive.export import latex
+    return latex._tex_tool() is not None and shutil.which("pdftotext") is not None
+
+
+PDF_SHEET = ('title "Bad \x7f title \x85 here \x9b end"\n'
+             "voltage source V1 between a and gnd = 5 V\n"
+             "resistor pi between a and b = 1k\nresistor R2 between b and gnd = _\n"
+             "nominal _ = 2k\nport p between b and gnd\nfind vth at p\n")
+
+
+def test_latex_of_pi_and_underscore_symbols():
+    import sympy
+    from derive.export.printing import latex_name, to_latex
+    assert latex_name("pi") == r"\mathit{pi}" and "\\pi" not in latex_name("Pi")
+    assert latex_name("_") == r"\mathit{\_}"
+    assert latex_name("beta") == r"\beta"                  # other Greek names stay Greek
+    assert to_latex(sympy.pi * sympy.Symbol("pi")) == r"\pi \mathit{pi}"   # the constant is π
+
+
+def test_latex_text_drops_del_and_c1_controls():
+    from derive.export.latex import text
+    assert str(text("a\x7fb\x85c\x9bd")) == "a?b?c?d"
+
+
+@pytest.mark.skipif(not _have_tex(), reason="TeX Live or pdftotext not installed")
+def test_pdf_with_control_characters_pi_and_underscore_builds(tmp_path, capsys):
+    import subprocess
+    src = tmp_path / "s.eqv"
+    src.write_text(PDF_SHEET, encoding="utf-8")
+    out = tmp_path / "r.pdf"
+    # before: TeX "Text line contains an invalid character" (DEL, C1 in the title) and a
+    # bare "_" in math mode
+    assert main(["record", str(src), "-o", str(out)]) == 0
+    text = subprocess.run(["pdftotext", "-layout", str(out), "-"], capture_output=True,
+                          text=True, check=True).stdout
+    assert "Bad ? title ? here ? end" in " ".join(text.split())
+    assert "π" not in text
+    # divider: 5 V * 2k/(1k + 2k) = 3.33 V (common practice)
+    assert "3.33 V" in text

@@ -29,11 +29,13 @@ def latex_name(key: str) -> str:
     """``R_load`` -> R with subscript load, ``R12`` -> R_{12}, ``div1_Rt`` -> R_t^{div1}
     (instance as a superscript), ``beta`` -> \\beta."""
     greek = {"alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "kappa",
-             "lambda", "mu", "nu", "xi", "pi", "rho", "sigma", "tau", "phi", "chi", "psi",
-             "omega", "Gamma", "Delta", "Theta", "Lambda", "Xi", "Pi", "Sigma", "Phi", "Psi",
-             "Omega"}
+             "lambda", "mu", "nu", "xi", "rho", "sigma", "tau", "phi", "chi", "psi",
+             "omega", "Gamma", "Delta", "Theta", "Lambda", "Xi", "Sigma", "Phi", "Psi",
+             "Omega"}      # not pi, Pi: a symbol named pi typeset as π reads as 3.14159...
     if key in _QUANTITY:
         return _QUANTITY[key]
+    if key in ("pi", "Pi"):
+        return r"\mathit{" + key + "}"
     m = re.match(r"^([A-Z])eq(\d+)_*$", key)
     if m:
         return f"{m.group(1)}_{{\\mathrm{{eq}}{m.group(2)}}}"
@@ -67,7 +69,7 @@ def latex_name(key: str) -> str:
         return f"{base}_{{\\mathrm{{{_esc(parts[1])}}}}}"
     if re.match(r"^[A-Z][a-z]$", key) or re.match(r"^[A-Z][a-z0-9]+$", key):
         return f"{key[0]}_{{\\mathrm{{{_esc(key[1:])}}}}}"
-    return r"\mathit{" + _esc(key) + "}" if len(key) > 1 else key
+    return r"\mathit{" + _esc(key) + "}" if len(key) > 1 or not key.isalpha() else key
 
 
 # quantity names typeset as such (derive.sheet.quantities)
