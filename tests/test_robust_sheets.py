@@ -372,3 +372,22 @@ def test_pdf_with_control_characters_pi_and_underscore_builds(tmp_path, capsys):
     assert "π" not in text
     # divider: 5 V * 2k/(1k + 2k) = 3.33 V (common practice)
     assert "3.33 V" in text
+
+
+# ------------------------------------------------------------------ 8. step text
+def test_source_transformation_quotient_is_unambiguous():
+    # V behind x, x to ground: Thevenin V/2 behind x/2; plus R3 = x in series: V/2 behind
+    # 3x/2, which the next move turns into a current source (V/2)/(3x/2). vth across R4 = y
+    # is then V*y/(3x + 2y) (divider algebra, common practice)
+    import sympy
+    from derive import derive_text
+    text = ("voltage source V between a and gnd\nresistor R1 between a and b = x\n"
+            "resistor R2 between b and gnd = x\nresistor R3 between b and c = x\n"
+            "resistor R4 between c and gnd = y\nport p between c and gnd\nfind vth at p\n")
+    rec = derive_text(text, "s.eqv")
+    r = rec.results[0]
+    steps = " ".join(st.text for st in r.steps)
+    assert "current source (V/2)/(3*x/2)" in steps
+    assert "V/2/3*x/2" not in steps           # before: read as ((V/2)/3)*x/2
+    V, x, y = sympy.symbols("V x y")
+    assert sympy.simplify(r.quantities["vth"].expr - V * y / (3 * x + 2 * y)) == 0

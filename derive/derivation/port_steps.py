@@ -267,7 +267,7 @@ def _move_step(m, env, defs) -> Step:
     ex, ey = x.E.xreplace(env), y.E.xreplace(env)
     text = f"{_label(x)} and {_label(y)} are in parallel {between}"
     if ex != 0 or ey != 0:
-        srcs = [f"{_label(b)} (voltage {e} behind {b.Z}) becomes a current source {e}/{b.Z} "
+        srcs = [f"{_label(b)} (voltage {e} behind {b.Z}) becomes a current source {_quot(e, b.Z)} "
                 f"in parallel with {b.Z}" for b, e in ((x, ex), (y, ey)) if e != 0]
         text = ("Source transformation: " + "; ".join(srcs) + ". " + text +
                 ": the currents add, the impedances combine in parallel, and the result "
@@ -276,6 +276,15 @@ def _move_step(m, env, defs) -> Step:
         lhs = _vname(r, el, defs)
         eqs.append(Equation(lhs, zl * (ex / x.Z + ey / y.Z), check=el, defs=d))
     return Step(text + ".", eqs, members, kind="reduction")
+
+
+def _quot(a, b) -> str:
+    """``a/b`` in step text, never ambiguous: a side that is not a lone symbol or a natural
+    number is parenthesised (``(V/2)/(3*x/2)``, not ``V/2/3*x/2``)."""
+    def part(x):
+        x = sympy.sympify(x)
+        return str(x) if x.is_Symbol or (x.is_Integer and x >= 0) else f"({x})"
+    return f"{part(a)}/{part(b)}"
 
 
 def _with(defs, sym, value):
