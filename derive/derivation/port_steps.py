@@ -282,8 +282,8 @@ def _quot(a, b) -> str:
     """``a/b`` in step text, never ambiguous: a side that is not a lone symbol or a natural
     number is parenthesised (``(V/2)/(3*x/2)``, not ``V/2/3*x/2``)."""
     def part(x):
-        x = sympy.sympify(x)
-        return str(x) if x.is_Symbol or (x.is_Integer and x >= 0) else f"({x})"
+        atom = isinstance(x, sympy.Basic) and (x.is_Symbol or (x.is_Integer and x >= 0))
+        return str(x) if atom else f"({x})"
     return f"{part(a)}/{part(b)}"
 
 
