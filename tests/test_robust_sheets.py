@@ -391,3 +391,25 @@ def test_source_transformation_quotient_is_unambiguous():
     assert "V/2/3*x/2" not in steps           # before: read as ((V/2)/3)*x/2
     V, x, y = sympy.symbols("V x y")
     assert sympy.simplify(r.quantities["vth"].expr - V * y / (3 * x + 2 * y)) == 0
+
+
+def test_square_root_value_in_a_bridge_solved_by_nodal_analysis(tmp_path, capsys):
+    # a bridge (no series-parallel reduction): Ra = sqrt(x) = 1 kohm. before: "internal
+    # check failed" on the Cramer determinants (the random-point check met sqrt)
+    import numpy as np
+    text = ("voltage source V1 between t and gnd = 1 V\n"
+            "resistor Ra between t and l = sqrt(x)\nresistor Rb between l and gnd = 1k\n"
+            "resistor Rc between t and r = 1k\nresistor Rd between r and gnd = 2k\n"
+            "resistor Rm between l and r = 3k\nnominal x = 1 Mohm\nport p between l and r\n"
+            "find vth at p\nfind current through Rm\n")
+    status, doc, _ = record(tmp_path, capsys, text)
+    assert status == 0
+    # reference: a nodal solve written here (numpy), nodes l and r
+    Ra, Rb, Rc, Rd, Rm = 1e3, 1e3, 1e3, 2e3, 3e3
+    G = np.array([[1 / Ra + 1 / Rb + 1 / Rm, -1 / Rm], [-1 / Rm, 1 / Rc + 1 / Rd + 1 / Rm]])
+    vl, vr = np.linalg.solve(G, np.array([1 / Ra, 1 / Rc]))
+    r = result(doc, "find vth at p")
+    assert r["quantities"]["vth"]["value"] == pytest.approx(vl - vr)
+    assert all(st["verified"] for st in r["steps"])
+    cur = result(doc, "find current through Rm")["quantities"]["current"]["value"]
+    assert cur == pytest.approx((vl - vr) / Rm)

@@ -341,7 +341,9 @@ def _det_check(M, d, points=POINTS) -> tuple:
     at random rational points (exact ``fmpq`` arithmetic)."""
     try:
         n = M.shape[0]
-        prog = Program(list(M) + [d])
+        entries = list(M) + [d]
+        roots = square_roots_away(entries)      # sqrt(x): checked where x is a square
+        prog = Program([e.xreplace(roots) for e in entries] if roots else entries)
         syms = prog.symbols()
         used = 0
         for pt in _draws(syms, 3, points):
