@@ -175,6 +175,33 @@ def test_square_root_value_in_an_op_amp_circuit(tmp_path, capsys):
     assert all(st["verified"] for st in r["steps"])
 
 
+@pytest.mark.parametrize("value, gain", [
+    ("sqrt(a*b)", 1 + 2000 / 1000),             # sqrt(4k*1k) = 2k
+    ("sqrt(a + b)", 1 + 5000 ** 0.5 / 1000),
+    ("sqrt(a) + sqrt(a*b)", 1 + (4000 ** 0.5 + 2000) / 1000)])
+def test_compound_square_roots_in_an_op_amp_circuit(tmp_path, capsys, value, gain):
+    # gain = 1 + Rf/Rg (ideal non-inverting stage, handbook form), a = 4k, b = 1k
+    text = ("voltage source Vin between inp and gnd = 1 V
+"
+            "opamp U1 inputs inp, inn output out
+"
+            f"resistor Rf between out and inn = {value}
+"
+            "resistor Rg between inn and gnd = 1 kohm
+"
+            "nominal a = 4 kohm
+nominal b = 1 kohm
+port p between out and gnd
+"
+            "find gain from Vin to p
+")
+    status, doc, _ = record(tmp_path, capsys, text)
+    assert status == 0
+    r = result(doc, "find gain from Vin to p")
+    assert r["quantities"]["gain"]["value"] == pytest.approx(gain)
+    assert all(st["verified"] for st in r["steps"])
+
+
 def test_check_rth_at_a_port_across_a_voltage_source(tmp_path, capsys):
     # rth across an ideal voltage source is 0 (sources zeroed: a short). before: internal
     # error (ValueError "infinite result") while wording the diagnosis of the false claim
