@@ -181,20 +181,12 @@ def test_square_root_value_in_an_op_amp_circuit(tmp_path, capsys):
     ("sqrt(a) + sqrt(a*b)", 1 + (4000 ** 0.5 + 2000) / 1000)])
 def test_compound_square_roots_in_an_op_amp_circuit(tmp_path, capsys, value, gain):
     # gain = 1 + Rf/Rg (ideal non-inverting stage, handbook form), a = 4k, b = 1k
-    text = ("voltage source Vin between inp and gnd = 1 V
-"
-            "opamp U1 inputs inp, inn output out
-"
-            f"resistor Rf between out and inn = {value}
-"
-            "resistor Rg between inn and gnd = 1 kohm
-"
-            "nominal a = 4 kohm
-nominal b = 1 kohm
-port p between out and gnd
-"
-            "find gain from Vin to p
-")
+    text = ("voltage source Vin between inp and gnd = 1 V\n"
+            "opamp U1 inputs inp, inn output out\n"
+            f"resistor Rf between out and inn = {value}\n"
+            "resistor Rg between inn and gnd = 1 kohm\n"
+            "nominal a = 4 kohm\nnominal b = 1 kohm\nport p between out and gnd\n"
+            "find gain from Vin to p\n")
     status, doc, _ = record(tmp_path, capsys, text)
     assert status == 0
     r = result(doc, "find gain from Vin to p")
