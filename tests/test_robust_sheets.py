@@ -432,3 +432,32 @@ def test_square_root_value_in_a_bridge_solved_by_nodal_analysis(tmp_path, capsys
     assert all(st["verified"] for st in r["steps"])
     cur = result(doc, "find current through Rm")["quantities"]["current"]["value"]
     assert cur == pytest.approx((vl - vr) / Rm)
+
+
+# ------------------------------------------------------------------ the corpus
+import os  # noqa: E402
+
+CORPUS = os.path.join(os.path.dirname(os.path.abspath(__file__)), "corpus")
+ROBUST = sorted(f for f in os.listdir(CORPUS) if f.startswith("robust_"))
+_EXPECT = re.compile(r"^# expect: (0|2 line (\d+))$")
+
+
+@pytest.mark.parametrize("name", ROBUST)
+def test_corpus_sheet_keeps_the_exit_contract(name, capsys):
+    """Every tests/corpus/robust_*.eqv says on its first line what it must give: exit 0,
+    or exit 2 located at a given line (the sheets of the defects above, as files)."""
+    path = os.path.join(CORPUS, name)
+    with open(path, encoding="utf-8", newline="") as f:
+        first = f.readline().rstrip("\n")
+    m = _EXPECT.match(first)
+    assert m, f"{name}: first line must be '# expect: 0' or '# expect: 2 line N'"
+    capsys.readouterr()
+    status = main(["record", path, "--format", "json", "--samples", "2000"])
+    out, err = capsys.readouterr()
+    assert "Traceback" not in err and "internal error" not in err
+    if m.group(2) is None:
+        assert status == 0, err
+        json.loads(out)
+    else:
+        assert status == 2
+        located(err, int(m.group(2)))
