@@ -29,13 +29,13 @@ def latex_name(key: str) -> str:
     """``R_load`` -> R with subscript load, ``R12`` -> R_{12}, ``div1_Rt`` -> R_t^{div1}
     (instance as a superscript), ``beta`` -> \\beta."""
     greek = {"alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "kappa",
-             "lambda", "mu", "nu", "xi", "rho", "sigma", "tau", "phi", "chi", "psi",
-             "omega", "Gamma", "Delta", "Theta", "Lambda", "Xi", "Sigma", "Phi", "Psi",
-             "Omega"}      # not pi, Pi: a symbol named pi typeset as π reads as 3.14159...
+             "lambda", "mu", "nu", "xi", "pi", "rho", "sigma", "tau", "phi", "chi", "psi",
+             "omega", "Gamma", "Delta", "Theta", "Lambda", "Xi", "Pi", "Sigma", "Phi", "Psi",
+             "Omega"}
     if key in _QUANTITY:
         return _QUANTITY[key]
-    if key in ("pi", "Pi"):
-        return r"\mathit{" + key + "}"
+    if key in ("pi", "Pi"):         # a symbol named pi typeset as π would read as 3.14159...
+        return r"\mathit{" + key + "}"   # (r_pi, a subscript, stays r_π)
     m = re.match(r"^([A-Z])eq(\d+)_*$", key)
     if m:
         return f"{m.group(1)}_{{\\mathrm{{eq}}{m.group(2)}}}"
