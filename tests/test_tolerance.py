@@ -187,7 +187,8 @@ def test_pole_inside_the_box_is_flagged():
     # Rn = R3 = 1 kohm (algebra, common practice); d spans -1990..2010 ohm here
     text = NON_MONOTONE.replace("±500%", "±20000%").replace(
         "port p", "resistor R3 between a and gnd = 1k\nport p")
-    rec = run(text)
-    ex = rec.results[0].extra
-    assert "boundedness of Q on the box is not proven" in ex["spread"]["method"]
-    json.loads(rec.to_json(), parse_constant=lambda c: pytest.fail(f"non-JSON number {c}"))
+    # before: finite "extremes" with a warning; now the pole is proven (the exact
+    # denominator takes both signs on the box) and the request is refused, located
+    with pytest.raises(SheetError, match="unbounded on the box") as e:
+        run(text)
+    assert "changes sign" in str(e.value)

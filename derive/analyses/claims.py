@@ -50,6 +50,12 @@ def diagnose(q_expr, claim, name: str, nominal: dict | None = None) -> str:
     >>> diagnose(a*b/(a + b), -a*b/(a + b), 'rth')
     'differs in sign: the claim is -rth'
     """
+    if q_expr == 0:          # e.g. rth at a port across an ideal voltage source
+        return (f"{name} is identically 0 (a short or an ideal voltage source across the "
+                f"port), while the claim "
+                f"{to_text(claim)} is not")
+    if claim == 0:
+        return f"the claim is 0, but {name} is not identically zero"
     try:
         fq, fc = rational.common([q_expr, claim])
     except (rational.NotPolynomial, ZeroDivisionError):
@@ -213,10 +219,19 @@ def check_request(ctx, req) -> analysis.RequestResult:
                 continue
             if vq.is_number and vc.is_number and vq.is_finite and vc.is_finite \
                     and sympy.simplify(vq - vc) != 0:
-                counter = {"point": {x.name: _value(v) for x, v in pt.items()},
-                           "at_nominal": attempt == 0 and all(x in ctx.nominal for x in syms),
-                           "quantity": _value(vq), "claim": _value(vc)}
-                break
+                found = {"point": {x.name: _value(v) for x, v in pt.items()},
+                         "at_nominal": attempt == 0 and all(x in ctx.nominal for x in syms),
+                         "quantity": _value(vq), "claim": _value(vc)}
+                if found["quantity"] is not None and found["claim"] is not None:
+                    counter = found
+                    break
+                # a value that is not real (a root of a negative number): kept, as a pair
+                # [real, imaginary], only if no point with real values is found
+                for key, v in (("quantity", vq), ("claim", vc)):
+                    if found[key] is None:
+                        z = complex(v)
+                        found[key + "_complex"] = [z.real, z.imag]
+                counter = counter or found
         nom = ctx.nominal
         if S not in syms and all(x in nom for x in syms):
             vq = q_expr.xreplace(nom) if q.expr is not None else _eval_seq(q, nom)
@@ -227,7 +242,11 @@ def check_request(ctx, req) -> analysis.RequestResult:
         rows = [["symbol", "value"]] + [[k, f"{v:.6g}"] for k, v in
                                         (counter or {"point": {}})["point"].items()]
         if counter:
-            rows += [[name, f"{counter['quantity']:.6g}"], ["claim", f"{counter['claim']:.6g}"]]
+            for label, key in ((name, "quantity"), ("claim", "claim")):
+                v = counter[key]
+                z = counter.get(key + "_complex")
+                rows.append([label, f"{v:.6g}" if v is not None else
+                             f"{z[0]:.6g} {'+' if z[1] >= 0 else '-'} {abs(z[1]):.6g}j (not real)"])
         steps.append(Step(f"The claim does not hold: {diagnosis}." +
                           (f" Relative error at nominal values: {rel:.3g}." if rel is not None
                            else ""), kind="check", table=rows if counter else None))

@@ -153,6 +153,8 @@ def numeric_roots(cs, nominal):
     if not all(v.is_number for v in vals):
         return None
     desc = [complex(v) for v in reversed(vals)]
+    if not all(math.isfinite(z.real) and math.isfinite(z.imag) for z in desc):
+        return None          # a coefficient undefined at nominal values (a pole there)
     while desc and desc[0] == 0:
         desc.pop(0)
     return list(np.roots(desc)) if len(desc) > 1 else []
@@ -251,7 +253,8 @@ def analyse_quantity(q, nominal) -> tuple:
     num = [c.xreplace(nominal) for c in f["numerator"]]
     den = [c.xreplace(nominal) for c in f["denominator"]]
     coeffs = None
-    if all(c.is_number for c in num + den):
+    if all(c.is_number and c.is_finite and c.is_extended_real for c in num + den) \
+            and any(c != 0 for c in den):
         coeffs = ([float(c) for c in num], [float(c) for c in den])
     return d, step, coeffs
 

@@ -187,8 +187,21 @@ def solve_request(ctx, req) -> analysis.RequestResult:
         raise SheetError(f"{name} at {req.port} does not depend on {req.solve_for}{why}",
                          loc.line, loc.col)
     q = measured_symbol(ctx, name)
-    num, den = edge.cancelled(expr)
-    poly = sympy.Poly(num - q * den, x)
+    try:                                    # cancelled in python-flint
+        num, den = edge.cancelled(expr)
+    except (sympy.PolynomialError, TypeError, ValueError):     # roots, irrational constants
+        num, den = sympy.fraction(sympy.cancel(sympy.together(expr)))
+    try:
+        poly = sympy.Poly(sympy.expand(num - q * den), x)
+    except sympy.PolynomialError:
+        poly = None
+    if poly is None or any(not c.is_polynomial(x) or c.has(x) for c in poly.coeffs()):
+        raise SheetError(f"{name} at {req.port} is not a rational function of "
+                         f"{req.solve_for} (it depends on it through a root or another "
+                         f"function), so it cannot be solved for {req.solve_for}",
+                         loc.line, loc.col,
+                         hint=f"solve for a symbol that {name} depends on rationally, or give "
+                         f"the value under the root a symbol of its own")
     roots, method = polynomial_roots(poly)
     if not roots:
         raise SheetError(f"{name} is a degree-{poly.degree()} polynomial in {req.solve_for}; no "
@@ -196,7 +209,10 @@ def solve_request(ctx, req) -> analysis.RequestResult:
     nominal = dict(ctx.nominal)
     info = ctx.circuit.symbols[x.name]
     q_nom = expr.xreplace(nominal)
-    have_nominal = q_nom.is_number
+    # a measured value infinite (the circuit singular at nominal) or not real has no use as
+    # a nominal measurement: the inversion stays symbolic and the record says why
+    undefined = q_nom.is_number and not (q_nom.is_finite and q_nom.is_extended_real)
+    have_nominal = q_nom.is_number and not undefined
     if have_nominal:
         nominal[q] = q_nom
     steps = [Step(f"Write the measured {name} as a symbol of its own, {q}, equal to its "
@@ -249,6 +265,10 @@ def solve_request(ctx, req) -> analysis.RequestResult:
     value = listed[pick]["value"]
     unit = info.unit
     out = analysis.RequestResult(req)
+    if undefined:
+        out.notes.append(f"{name} has no finite real value at nominal values (its closed form "
+                         "is not defined or not real there), so no nominal measurement is "
+                         "used: roots and conditions are given symbolically")
     out.quantities[x.name] = analysis.QuantityResult(x.name, root, value, unit, form="inverted")
     if rng and all((e[0] is None) or (e[1] is not None) for lo, hi in rng for e in (lo, hi)):
         out.quantities[x.name].validity = [(lo[1], hi[1]) for lo, hi in rng]

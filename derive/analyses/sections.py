@@ -243,11 +243,12 @@ def model_handler(ctx, req) -> analysis.RequestResult:
     if not dets.unilateral:
         zl = _load_symbol(ctx.circuit)
         sc = dets.ratio(-1, "DM", "D2")
+        op = dets.ratio(-1, "D1", "D")      # None: rin is infinite with the output open
         loaded = _loaded_rin(dets, zl)
         out.extra["loaded_rin"] = {
             "load": str(zl), "expr": loaded,
             "shorted": _expr_json(ctx, sc, "ohm") if sc is not None else None,
-            "open": _expr_json(ctx, dets.ratio(-1, "D1", "D"), "ohm")}
+            "open": _expr_json(ctx, op, "ohm") if op is not None else None}
         out.steps.append(Step(
             f"The section is not unilateral (z12 ≠ 0): its input resistance depends on the load "
             f"{zl} across {req.port2}. rin above is for {req.port2} open; with {req.port2} "

@@ -338,6 +338,9 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1,
                       f"or at the real roots of the derivative's numerator "
                       f"({exact[2]} critical point(s) inside)")
             return exact[0], exact[1], method, mono
+    pole = pole_inside(form, base, box)
+    if pole:
+        raise Unbounded(pole)
     f = _vec(form)
     fl = {x: float(v) for x, v in base.items()}
     best = {}
@@ -422,6 +425,54 @@ def _one_part_extremes(form: Form, x, box: dict, base: dict, lo_pt: dict, hi_pt:
 
 class Unbounded(ArithmeticError):
     """Q is not a finite real number somewhere on the box."""
+
+
+MAX_POLE_CORNERS = 4096
+
+
+def pole_inside(form: Form, nominal: dict, box: dict) -> str | None:
+    """Why Q is unbounded on the box, or None where that is not proven.
+
+    Q is rebuilt as a cancelled ratio ``n/d`` of flint polynomials; ``d`` is evaluated
+    exactly at the nominal point and at corners of the box (all of them up to
+    MAX_POLE_CORNERS). If it is zero at one of them, or takes both signs, it vanishes on
+    the box (a polynomial is continuous and the box connected), and since ``n`` and ``d``
+    have no common factor their common zeros are too few to fill the zero set of ``d``
+    there: Q has a pole on the box."""
+    r = _sens.rational(form.final, list(form.defs))
+    if r is None:
+        return None
+    n, d, syms = r
+    parts = [x for x in syms if x in box]
+    if not parts or any(x not in box and x not in nominal for x in syms):
+        return None
+    if 2 ** len(parts) > MAX_POLE_CORNERS:
+        return None
+    import flint
+
+    def at(pt):
+        vals = []
+        for x in syms:
+            v = sympy.Rational(pt[x] if x in pt else nominal[x])
+            vals.append(flint.fmpq(int(v.p), int(v.q)))
+        return d(*vals)
+    seen = {}
+    points = [({}, "nominal")] + [
+        ({x: box[x][0] + sg * box[x][1] for x, sg in zip(parts, signs)},
+         "the corner " + ", ".join(f"{x} {'+' if sg > 0 else '-'}tol"
+                                    for x, sg in zip(parts, signs)))
+        for signs in itertools.product((-1, 1), repeat=len(parts))]
+    for pt, where in points:
+        v = at(pt)
+        if v == 0:
+            return (f"its denominator is zero at {where} of the box of tolerances: the "
+                    "quantity has a pole there and is unbounded on the box")
+        seen.setdefault(1 if v > 0 else -1, where)
+        if len(seen) == 2:
+            return (f"its denominator changes sign on the box of tolerances (positive at "
+                    f"{seen[1]}, negative at {seen[-1]}), so it vanishes inside the box: the "
+                    "quantity has a pole there and is unbounded on the box")
+    return None
 
 
 def _real(v) -> float:
@@ -566,6 +617,11 @@ def spread_of(ctx: Context, a, req) -> tuple:
     name, unit = a.q.name, a.q.unit
     if a.nominal_value is None:
         missing = sorted(str(x) for x in a.form.base_symbols() if x not in ctx.nominal)
+        if not missing:
+            why = getattr(a.q, "undefined", None) or (f"{name} has no finite value at "
+                                                      "nominal values")
+            raise SheetError(f"the tolerance of {name} cannot be given: {why}",
+                             req.loc.line, req.loc.col)
         raise SheetError(f"the tolerance of {name} needs nominal values of: {', '.join(missing)}",
                          req.loc.line, req.loc.col)
     q0 = _real(a.nominal_value)
@@ -622,10 +678,13 @@ def tolerance(ctx: Context, req) -> RequestResult:
     for a in _sens.analysed(ctx, req):
         try:
             out, steps, values = spread_of(ctx, a, req)
-        except (Unbounded, ZeroDivisionError):
-            raise SheetError(f"the tolerance of {a.q.name} cannot be given: it is not finite "
-                             "everywhere on the box of tolerances (a denominator vanishes "
-                             "there); narrow the tolerances", req.loc.line, req.loc.col) from None
+        except (Unbounded, ZeroDivisionError) as e:
+            why = str(e) if isinstance(e, Unbounded) and str(e) else (
+                "it is not finite everywhere on the box of tolerances (a denominator vanishes "
+                "there)")
+            raise SheetError(f"the tolerance of {a.q.name} cannot be given: {why}; no "
+                             "extremes, worst case or spread exist; narrow the tolerances",
+                             req.loc.line, req.loc.col) from None
         out = _clean(out)
         by[a.q.name] = out
         res.steps.extend(steps)

@@ -16,7 +16,7 @@ import sympy
 from derive.errors import SheetError
 from derive.sheet import kinds
 from derive.sheet.expressions import names_in, to_sympy
-from derive.sheet.model import Call, Element, Loc, Name, OpAmp, Sheet, Use
+from derive.sheet.model import Call, Element, Loc, Name, Nominal, OpAmp, Sheet, Use
 from derive.circuit.naming import key_of
 from derive.circuit.requests import check_requests
 from derive.circuit.topology import check_topology, dependent_cuts
@@ -180,6 +180,14 @@ class _Builder:
                 self.add_opamp(st, scope)
             elif isinstance(st, Use):
                 self.add_use(st, scope, stack)
+            elif isinstance(st, Nominal) and stack:
+                # a block's values name the sheet's own symbols, shared by every instance:
+                # a nominal here used to be ignored silently (values null); refused instead
+                raise SheetError(f"a 'nominal' line cannot stand inside block '{stack[-1]}': "
+                                 f"the symbol '{st.name}' is shared by every instance, so its "
+                                 "nominal value belongs at the top level of the sheet",
+                                 st.loc.line, st.loc.col,
+                                 hint=f"move 'nominal {st.name} = ...' out of the block")
 
     def value_of(self, display, kind, value, scope, loc, mapped=None):
         """The element value expression: mapped by ``with``, an expression, or its own symbol."""
@@ -362,10 +370,27 @@ def build_circuit(sheet: Sheet) -> Circuit:
                 raise SheetError(f"numeric: {n!r} has no nominal value", l.line, l.col)
             numeric.add(k)
     c = Circuit(sheet, b.ground, nodes, b.elements, symbols, ports, list(sheet.requests), numeric)
+    _real_at_nominal(c)
     c.dependent_cuts = dependent_cuts(c.elements, c.ground, c.nodes)
     check_requests(c)
     return c
 
+
+
+def _real_at_nominal(c: Circuit) -> None:
+    """A value that is not a real number at nominal values (``sqrt(x)`` with x < 0) is
+    refused at its element: every number, sensitivity and tolerance of it would be complex."""
+    nominal = c.nominal_values()
+    for e in c.elements:
+        if e.value is None or not e.value.free_symbols or \
+                not e.value.free_symbols <= set(nominal):
+            continue
+        v = e.value.xreplace(nominal)
+        if v.is_number and v.is_extended_real is False and v.is_finite:
+            shown = ", ".join(f"{x} = {nominal[x]}" for x in sorted(e.value.free_symbols, key=str))
+            raise SheetError(f"the value of {e.part_of or e.name} is not a real number at "
+                             f"nominal values ({shown})", e.loc.line, e.loc.col,
+                             hint="a value under a square root must not be negative")
 
 
 def _symbols(b: _Builder, sheet: Sheet) -> dict:

@@ -28,7 +28,8 @@ import sympy
 from derive.forms import select as forms
 from derive.sheet import kinds
 from derive.forms.elimination import entry_expr
-from derive.derivation.steps import ATTEMPTS, POINTS, Equation, Program, Step, random_point
+from derive.derivation.steps import (ATTEMPTS, POINTS, Equation, Program, Step, random_point,
+                                     square_roots_away)
 
 MAX_CRAMER = 4        # unknowns up to which determinants are written out (symbolic
                       # determinants of larger systems are slow and unreadable)
@@ -340,7 +341,9 @@ def _det_check(M, d, points=POINTS) -> tuple:
     at random rational points (exact ``fmpq`` arithmetic)."""
     try:
         n = M.shape[0]
-        prog = Program(list(M) + [d])
+        entries = list(M) + [d]
+        roots = square_roots_away(entries)      # sqrt(x): checked where x is a square
+        prog = Program([e.xreplace(roots) for e in entries] if roots else entries)
         syms = prog.symbols()
         used = 0
         for pt in _draws(syms, 3, points):
@@ -378,10 +381,19 @@ def random_solve_check(nodal, form, b, expected, points=2, defs=None, over=None)
         A = nodal.A
         n = A.shape[0]
         rhs = [b] if over is None else [b, over[1]]
-        sys_prog = Program(list(A) + [x for r in rhs for x in r])
         forms = [form] if over is None else [form, over[0]]
+        entries = list(A) + [x for r in rhs for x in r]
+        defs = dict(defs or {})
+        # a value under a square root (sqrt(x)): checked where x is a perfect square
+        roots = square_roots_away(entries + forms + [expected] + list(defs.values()))
+        if roots:
+            entries, forms = [e.xreplace(roots) for e in entries], \
+                [e.xreplace(roots) for e in forms]
+            expected = expected.xreplace(roots)
+            defs = {k: v.xreplace(roots) for k, v in defs.items()}
+        sys_prog = Program(entries)
         form_prog = Program(forms)
-        exp_prog = Program([expected], defs or {})
+        exp_prog = Program([expected], defs)
         syms = (sys_prog.symbols() | form_prog.symbols() | exp_prog.symbols()) - \
             set(nodal.unknowns)
         used = 0

@@ -269,8 +269,8 @@ def _move_step(m, env, defs) -> Step:
     text = f"{_label(x)} and {_label(y)} are in parallel {between}"
     if ex != 0 or ey != 0:
         srcs = [f"{_label(b)} (open-circuit voltage {e}, node {b.a} relative to node {b.b}, "
-                f"behind {b.Z}) becomes a current source {e}/{b.Z} in parallel with {b.Z}"
-                for b, e in ((x, ex), (y, ey)) if e != 0]
+                f"behind {b.Z}) becomes a current source {_quot(e, b.Z)} in parallel with "
+                f"{b.Z}" for b, e in ((x, ex), (y, ey)) if e != 0]
         text = ("Source transformation: " + "; ".join(srcs) + ". " + text +
                 ": the currents add, the impedances combine in parallel, and the result "
                 "transforms back into a voltage source behind the parallel impedance")
@@ -278,6 +278,15 @@ def _move_step(m, env, defs) -> Step:
         lhs = _vname(r, el, defs)
         eqs.append(Equation(lhs, zl * (ex / x.Z + ey / y.Z), check=el, defs=d))
     return Step(text + ".", eqs, members, kind="reduction")
+
+
+def _quot(a, b) -> str:
+    """``a/b`` in step text, never ambiguous: a side that is not a lone symbol or a natural
+    number is parenthesised (``(V/2)/(3*x/2)``, not ``V/2/3*x/2``)."""
+    def part(x):
+        atom = isinstance(x, sympy.Basic) and (x.is_Symbol or (x.is_Integer and x >= 0))
+        return str(x) if atom else f"({x})"
+    return f"{part(a)}/{part(b)}"
 
 
 def _with(defs, sym, value):
@@ -466,6 +475,9 @@ def _value_step(ctx, req, q) -> Step:
         rows.append([si.display if si else str(s),
                      format_eng(to_float(val), si.unit if si else None) if val is not None
                      else "none (kept symbolic)"])
+    if q.value is None and getattr(q, "undefined", None):
+        return Step(q.undefined[0].upper() + q.undefined[1:] + ".", [], kind="value",
+                    table=rows)
     if q.value is None:
         return Step(f"{q.name} has no single value: some symbols have no nominal value (or the "
                     "result depends on s).", [], kind="value", table=rows)

@@ -333,6 +333,41 @@ def exact_value(expr, point: dict, defs: dict | None = None):
         return None
 
 
+def square_roots_away(exprs, limit: int = 8) -> dict:
+    """{x: expression} that makes every square root in ``exprs`` rational: for a root
+    ``sqrt(E)`` (or ``E**(k/2)``) with ``E`` affine in one of its symbols ``x``,
+    ``E = c1*x + c0``, the substitution ``x = (t**2 - c0)/c1`` with ``t`` a new positive
+    symbol turns ``sqrt(E)`` into ``t``. Substituted (one ``xreplace``), the expressions
+    become rational functions of the other symbols and ``t``, so exact random-point checks
+    apply to them: a random ``t`` stands for a random point where ``E`` is a square. Roots
+    that cannot be so removed are left (the check then fails honestly)."""
+    out: dict = {}
+    exprs = list(exprs)
+    for k in range(limit):
+        pick = None
+        for e in exprs:
+            for x in sympy.preorder_traversal(e):
+                if x.is_Pow and x.exp.is_Rational and x.exp.q == 2 and x.base.free_symbols:
+                    for v in sorted(x.base.free_symbols, key=str):
+                        c1 = sympy.diff(x.base, v)
+                        if c1 != 0 and not c1.has(v) and v not in out:
+                            pick = (v, c1, x.base.xreplace({v: 0}))
+                            break
+                if pick:
+                    break
+            if pick:
+                break
+        if pick is None:
+            break
+        v, c1, c0 = pick
+        t = sympy.Symbol(f"_sqrt{k}_{v}", positive=True)
+        sub = {v: (t ** 2 - c0) / c1}
+        exprs = [e.xreplace(sub) for e in exprs]
+        out = {key: val.xreplace(sub) for key, val in out.items()}
+        out[v] = sub[v]
+    return out
+
+
 def random_point(rnd: random.Random, syms) -> dict:
     """Positive random rationals for ``syms`` (sorted by name, so the draw is repeatable)."""
     return {x: sympy.Rational(rnd.randint(1, 10**6), rnd.randint(1, 10**3))

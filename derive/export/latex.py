@@ -78,7 +78,7 @@ def text(t) -> NoEscape:
             out.append(_TEXT_CHARS[ch])
         elif ch in "\r\n\t":
             out.append(" ")
-        elif ord(ch) < 32 or (ord(ch) > 255):
+        elif ord(ch) < 32 or 127 <= ord(ch) < 160 or ord(ch) > 255:   # C0, DEL, C1
             out.append("?")
         else:
             out.append(escape_latex(ch))

@@ -34,6 +34,8 @@ def latex_name(key: str) -> str:
              "Omega"}
     if key in _QUANTITY:
         return _QUANTITY[key]
+    if key in ("pi", "Pi"):         # a symbol named pi typeset as π would read as 3.14159...
+        return r"\mathit{" + key + "}"   # (r_pi, a subscript, stays r_π)
     m = re.match(r"^([A-Z])eq(\d+)_*$", key)
     if m:
         return f"{m.group(1)}_{{\\mathrm{{eq}}{m.group(2)}}}"
@@ -67,7 +69,7 @@ def latex_name(key: str) -> str:
         return f"{base}_{{\\mathrm{{{_esc(parts[1])}}}}}"
     if re.match(r"^[A-Z][a-z]$", key) or re.match(r"^[A-Z][a-z0-9]+$", key):
         return f"{key[0]}_{{\\mathrm{{{_esc(key[1:])}}}}}"
-    return r"\mathit{" + _esc(key) + "}" if len(key) > 1 else key
+    return r"\mathit{" + _esc(key) + "}" if len(key) > 1 or not key.isalpha() else key
 
 
 # quantity names typeset as such (derive.sheet.quantities)

@@ -442,7 +442,9 @@ def request_summary(record, r) -> list:
         math = name + (" = " + form if form and visual_len(form) <= SHORT_FORM else "")
         value = _value_text(q.value, q.unit) if q.value is not None else ""
         items.append({"label": "inverted formula" if q.form == "inverted" else "",
-                      "math": math, "text": ("= " + value) if value else "no value (symbolic)" +
+                      "math": math, "text": ("= " + value) if value else
+                      (f"no value: {q.undefined}" if getattr(q, "undefined", None) else
+                       "no value (symbolic)") +
                       (", closed form below" if form and visual_len(form) > SHORT_FORM
                        else "")})
         items += _frequency_items(record, r, q)

@@ -26,6 +26,8 @@ class QuantityResult:
     in_sequence: Optional[sympy.Expr] = None
     form: str = "expanded"              # 'expanded', 'series-parallel', 'sequence'
     notes: list = field(default_factory=list)
+    # why there is no value although every symbol has a nominal value (a pole there)
+    undefined: Optional[str] = None
     # an inverted formula: intervals (low, high) of the measured symbol where the chosen root
     # is real and positive, each end a sympy expression or None (unbounded); empty: none
     # derived, or an end known only as a number at nominal values

@@ -7,6 +7,8 @@ intermediate quantities (node elimination). The shortest exact form becomes ``ex
 """
 from __future__ import annotations
 
+import math
+
 import flint
 import sympy
 
@@ -64,10 +66,42 @@ def port_quantities(ctx, req) -> list:
             q.expr, q.form = edge.to_sympy(ratio), "expanded"
         if q.expr is None and not q.sequence:
             raise SheetError(f"no closed form of {name} could be derived", req.loc.line, req.loc.col)
+        undefined_at_nominal(ctx, q)
         out.append(q)
     if req.quantity in ("thevenin", "norton") and expandable(ctx):
         cross_check(ctx, req)
     return out
+
+
+S = sympy.Symbol("s")
+
+
+def undefined_at_nominal(ctx, q) -> None:
+    """Mark ``q`` when every symbol it uses has a nominal value but it has no finite value
+    there (its exact closed form divides by zero at nominal: the circuit is singular at
+    nominal values). The value becomes None and ``q.undefined`` says why."""
+    if q.value is not None and not (isinstance(q.value, float) and not math.isfinite(q.value)):
+        return
+    used = set(q.expr.free_symbols) if q.expr is not None else set()
+    for _, e in q.sequence:
+        used |= e.free_symbols
+    if q.in_sequence is not None:
+        used |= q.in_sequence.free_symbols
+    used -= {s for s, _ in q.sequence}
+    nominal = ctx.nominal
+    if S in used or any(x not in nominal for x in used):
+        return                       # symbolic, or a function of s: no single value
+    if q.value is None:
+        if q.expr is None:
+            return
+        v = q.expr.xreplace(nominal)
+        if v.is_finite or not v.is_number:
+            return                   # a finite (or irrational) value: not a pole
+    q.value = None
+    q.undefined = (f"{q.name} is unbounded or undefined at nominal values: the denominator "
+                   "of its exact closed form vanishes there (the circuit is singular at "
+                   "nominal values), so no value is given")
+    q.notes.append(q.undefined)
 
 
 def _reactive(ctx) -> bool:

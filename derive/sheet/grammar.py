@@ -93,20 +93,21 @@ def _found(token) -> str:
     kind = token.type
     if kind in ("_NL", "$END"):
         return _READABLE[kind]
+    text = str(token) if len(str(token)) <= 40 else str(token)[:37] + "..."
     if kind == "NUMBER":
-        return f"the number {token}"
+        return f"the number {text}"
     if kind == "STRING":
-        return f"the string {token}"
-    return f"'{token}'"
+        return f"the string {text}"
+    return f"'{text}'"
 
 
 def describe_syntax_error(e, source: str, parser: Lark):
     """A lark parse error as a :class:`SheetError` with a message in plain words."""
     from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedToken
 
-    from derive.errors import SheetError
+    from derive.errors import SheetError, lexer_lines
 
-    lines = source.splitlines()
+    lines = lexer_lines(source)
     if isinstance(e, UnexpectedToken) and e.token.type != "$END":
         tok, expected = e.token, set(e.expected)
         try:    # the LALR state may only be able to reduce: ask what really can follow
@@ -169,8 +170,15 @@ def describe_syntax_error(e, source: str, parser: Lark):
                               line, col)
         if char == "|":
             return SheetError("unexpected '|': the parallel operator is written '||'", line, col)
-        if char == "=" and source.splitlines()[line - 1][col - 1:col + 1] == "==":
+        if char == "=" and lexer_lines(source)[line - 1][col - 1:col + 1] == "==":
             return SheetError("unexpected '==': use 'check Q equals EXPR' for a claim", line, col)
+        if char == "\r":
+            return SheetError("a carriage return (CR) alone is not a line break", line, col,
+                              hint="end lines with LF or CR LF")
+        if char.isdigit() and not ("0" <= char <= "9"):
+            return SheetError(f"unexpected character '{char}': a digit other than ASCII 0-9 "
+                              "is not a number", line, col, hint="write numbers with the "
+                              "digits 0-9")
         allowed = set(e.allowed or ())
         message = f"unexpected character '{char}'"
         if allowed and len(allowed) <= 6:

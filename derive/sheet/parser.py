@@ -17,7 +17,7 @@ from typing import Optional
 from lark import Token, Tree
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken
 
-from derive.errors import SheetError
+from derive.errors import SheetError, lexer_lines
 from derive.sheet import kinds, quantities
 from derive.sheet.grammar import describe_syntax_error, get_parser
 from derive.sheet.model import BinOp, Block, Call, Derating, E_SERIES, Element, Loc, Name, Neg, Nominal, Num, Numeric, OpAmp, Port, Quantity, Replacement, Request, Sheet, Temperature, Tolerance, Use, Value
@@ -73,7 +73,7 @@ def _check_nesting(source: str) -> None:
     ...
     derive.errors.SheetError: <sheet>:1:130: error: the expression nests more than 100 levels deep
     """
-    for lineno, line in enumerate(source.splitlines(), 1):
+    for lineno, line in enumerate(lexer_lines(source), 1):
         code = _STRING_OR_COMMENT.sub(lambda m: " " * len(m.group(0)), line)
         depth = ops = 0
         for col, ch in enumerate(code, 1):
