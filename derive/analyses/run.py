@@ -12,7 +12,7 @@ from __future__ import annotations
 
 from typing import Callable
 
-from derive.analyses import claims, frequency, inversion, ports, power, sections
+from derive.analyses import claims, frequency, inversion, noise, ports, power, sections
 from derive.analyses import sensitivity, substitution, tolerance
 from derive.circuit.build import Circuit
 from derive.errors import NotAvailableYet
@@ -28,6 +28,7 @@ HANDLERS: dict = {
     "resistance": ports.answer, "impedance": ports.answer, "voltage": ports.answer,
     "gain": ports.answer, "current": ports.answer,
     "power": power.answer,
+    "noise": noise.answer,
     "model": sections.model_handler, "twoport": sections.twoport_handler,
     "sensitivity": sensitivity.sensitivity, "tolerance": tolerance.tolerance,
     "solve": inversion.solve_request, "check": claims.check_request,
