@@ -213,6 +213,10 @@ def answer(ctx, req) -> RequestResult:
     else:
         out.notes.append("find noise: some symbols have no nominal value, so the density is "
                          "given in closed form only (no rms, no shares)")
+        for con in model.contributions:
+            noise["contributions"][con.source.name] = {
+                "rms": None, "share": None,
+                "density": {"expr": con.density, "unit": "V^2/Hz"}, "method": None}
     if model.noiseless:
         out.notes.append("taken as noiseless: " + ", ".join(n for n, _ in model.noiseless))
     out.extra["noise"] = noise
