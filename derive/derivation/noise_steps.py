@@ -172,7 +172,7 @@ def source_steps(ctx, req, model) -> list:
         unit = "A/√Hz" if src.unit.startswith("A") else "V/√Hz"
         shown = format_eng(float(sympy.sqrt(v)), unit, digits=4) if v.is_number else "—"
         rows.append([src.name, what, at, shown])
-        if src.kind == "thermal":
+        if src.shown is not None:
             eqs.append(Equation(sympy.Symbol(f"S_{_sym(src.name)}"), src.shown,
                                 definition=True))
     noted = "; ".join(f"{n} ({why})" for n, why in model.noiseless)
@@ -182,8 +182,9 @@ def source_steps(ctx, req, model) -> list:
                   f"4kT/R (Johnson–Nyquist), with Boltzmann's constant "
                   f"k = 1.380649e-23 J/K (exact in the SI) and T = {float(t_k):g} K "
                   f"({float(model.temperature_c):g} °C), so 4kT = {float(k_T):.6g} J; "
-                  "op-amps: the voltage noise in series with the non-inverting input and a "
-                  "current noise from each input to the reference node. Capacitors, "
+                  "op-amps: the voltage noise E (density E²) in series with the non-inverting "
+                  "input and a current noise I (density I²) from each input to the reference "
+                  "node, with E and I as given on the sheet (table). Capacitors, "
                   "inductors and the sources themselves are noiseless; independent sources "
                   "are zeroed." + (f" Taken as noiseless: {noted}." if noted else ""),
                   eqs, [s.owner for s in model.sources], kind="noise", table=rows)]

@@ -102,7 +102,6 @@ def _draw_noise(fig_: Figure, path: str) -> None:
     ax.set_ylabel("noise density / (V/√Hz)")
     ax.grid(True, which="both", alpha=0.3)
     ax.legend(fontsize="small")
-    ax.set_title(fig_.caption, fontsize=8)
     fig.tight_layout()
     fig.savefig(path)
 

@@ -175,7 +175,8 @@ def _opamp_sources(ctx, system, op, origin: OpAmp, core, subs, model) -> list:
                 if idx is not None:
                     vec[idx] = vec.get(idx, system.ctx.constant(0)) + sg * y
         out.append(Source(f"{op}.en", "en", op, _q(en) ** 2, "V^2/Hz", vector=vec,
-                          nodes=(inp, inn), opamp=op, core=core.name))
+                          nodes=(inp, inn), opamp=op, core=core.name,
+                          shown=_shown(model, f"E_{op}", en, c)))
     if inn_:
         for label, node in (("in+", inp), ("in-", inn)):
             if node == c.ground:
@@ -183,8 +184,20 @@ def _opamp_sources(ctx, system, op, origin: OpAmp, core, subs, model) -> list:
                                         f"{c.ground}: its current noise flows in a short"))
                 continue
             out.append(Source(f"{op}.{label}", "in", op, _q(inn_) ** 2, "A^2/Hz",
-                              named=("port", node, c.ground), nodes=(node, c.ground), opamp=op))
+                              named=("port", node, c.ground), nodes=(node, c.ground), opamp=op,
+                              shown=_shown(model, f"I_{op}", inn_, c)))
     return out
+
+
+def _shown(model, name, value: Fraction, circuit):
+    """The displayed density of an op-amp source: ``e_U1^2`` (its value in
+    ``model.shown_values``), or the number where the name is taken by a circuit symbol."""
+    key = name.replace(".", "_")
+    if key in circuit.symbols or not model.shown_values:
+        return _q(value) ** 2
+    sym = sympy.Symbol(key)
+    model.shown_values[sym] = _q(value)
+    return sym ** 2
 
 
 def transfer(ctx, req, src: Source) -> Ratio:
