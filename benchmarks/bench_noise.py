@@ -14,9 +14,11 @@ exact band integral, the JSON). Target: under 3 s.
 
 Naive baselines, measured here:
 
-1. the sympy route: the same nodal equations in sympy with every resistor symbolic, solved
-   for each source alone with ``sympy.Matrix.LUsolve``, ``|H|^2`` at nominal values by
-   substitution at ``s = j 2 pi f``, and the band integral by ``sympy.integrate``;
+1. the sympy route: the same nodal equations in sympy, solved for each source alone with
+   ``sympy.Matrix.LUsolve`` and ``cancel``, ``|H|^2`` at ``s = j 2 pi f``, and the band
+   integral by ``sympy.integrate``: measured in full with the nominal numbers substituted
+   first (only ``s`` symbolic, so easier than derive's task), and with every resistor symbolic
+   (derive's task) for one source in a subprocess stopped after 60 s (then a lower bound);
 2. numeric superposition: numpy solves of the complex nodal system at 20 000 log-spaced
    frequencies for every source and the trapezoid rule (approximate, for scale; its error
    against derive's exact value is printed).
@@ -129,27 +131,47 @@ def naive_numpy(points=20000):
     return time.perf_counter() - t, ms
 
 
-def naive_sympy():
+def naive_sympy(symbolic: bool, count=None):
+    """The sympy route for the first ``count`` sources (all by default): nodal equations in
+    sympy (every resistor a symbol with ``symbolic``, else the nominal numbers with only s
+    symbolic), ``LUsolve`` and ``cancel`` per source, ``|H|^2`` at s = j 2 pi f, and
+    ``sympy.integrate`` over the band."""
     t = time.perf_counter()
     s, f = sympy.symbols("s f")
-    syms = {n: sympy.Symbol(n, positive=True) for n in list(RES) + ["Cf"]}
+    vals = {n: sympy.nsimplify(v[2]) for n, v in RES.items()}
+    vals["Cf"] = sympy.Rational(1, 10 ** 7)
+    syms = {n: sympy.Symbol(n, positive=True) for n in vals} if symbolic else vals
     A, idx = mna(syms, s, sympy.Integer(0), sympy.Integer(1))
     M = sympy.Matrix(A)
-    nominal = {syms[n]: sympy.nsimplify(v[2]) for n, v in RES.items()}
-    nominal[syms["Cf"]] = sympy.Rational(1, 10 ** 7)
+    nominal = {syms[n]: vals[n] for n in vals} if symbolic else {}
     total = sympy.Integer(0)
-    for name, d, rhs in sources(idx):
+    for name, d, rhs in sources(idx)[:count]:
         b = sympy.zeros(M.shape[0], 1)
         for i, v in rhs.items():
             if i is not None:
                 b[i] = v
-        x = M.LUsolve(b)
-        h = sympy.cancel(x[idx["out"]])                       # symbolic transfer
+        h = sympy.cancel(M.LUsolve(b)[idx["out"]])             # the transfer
         hn = h.xreplace(nominal).subs(s, 2 * sympy.pi * sympy.I * f)
-        mag2 = sympy.simplify(hn * sympy.conjugate(hn).subs(sympy.conjugate(f), f))
+        mag2 = sympy.cancel(sympy.expand(hn * sympy.conjugate(hn).subs(sympy.conjugate(f), f)))
         total += sympy.nsimplify(d) * mag2
     ms = sympy.integrate(total, (f, sympy.Rational(1, 10), 10 ** 4))
     return time.perf_counter() - t, float(ms)
+
+
+SYMBOLIC_BUDGET = 60.0      # s: the symbolic sympy route for one source, stopped after this
+
+
+def naive_sympy_symbolic_one() -> float | None:
+    """Seconds of the symbolic sympy route for one source, in a subprocess; None when it
+    does not finish within SYMBOLIC_BUDGET."""
+    code = ("import sys; sys.path.insert(0, %r); import bench_noise as b; "
+            "print(b.naive_sympy(True, 1)[0])" % os.path.dirname(os.path.abspath(__file__)))
+    try:
+        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                             timeout=SYMBOLIC_BUDGET, check=True)
+        return float(out.stdout.strip().splitlines()[-1])
+    except subprocess.TimeoutExpired:
+        return None
 
 
 def main():
@@ -166,15 +188,34 @@ def main():
     n = json.loads(proc.stdout)["results"][0]["noise"]
     print(f"derive (whole process, fresh interpreter): {ours:.2f} s; rms "
           f"{n['rms'] * 1e6:.6f} uV over 0.1 Hz..10 kHz ({n['mean_square']['method']})")
+    import derive
+    derive.derive_text("resistor R between a and gnd = 1k\nport p between a and gnd\n"
+                       "find noise at p from 1 Hz to 2 Hz\n", "warm.eqv")       # imports
+    t = time.perf_counter()
+    rec = derive.derive_text(SHEET, "ina.eqv")
+    rec.to_json()
+    inproc = time.perf_counter() - t
+    print(f"derive in-process (after imports, the same work): {inproc:.2f} s")
     t_np, ms_np = naive_numpy()
     print(f"numpy superposition + trapezoid (20 000 frequencies x 19 sources): {t_np:.2f} s; "
           f"rms {math.sqrt(ms_np) * 1e6:.6f} uV, relative error of the mean square "
           f"{abs(ms_np - n['mean_square']['value']) / n['mean_square']['value']:.2e}")
-    t_sp, ms_sp = naive_sympy()
-    print(f"sympy route (symbolic LUsolve per source, sympy.integrate): {t_sp:.2f} s; rms "
-          f"{math.sqrt(ms_sp) * 1e6:.6f} uV")
-    print(f"ratio sympy route / derive: {t_sp / ours:.1f}x; numpy trapezoid / derive: "
-          f"{t_np / ours:.2f}x")
+    t_sp, ms_sp = naive_sympy(False)
+    print(f"sympy route at nominal values (numbers first, only s symbolic; LUsolve, cancel, "
+          f"sympy.integrate; 19 sources): {t_sp:.2f} s; rms {math.sqrt(ms_sp) * 1e6:.6f} uV")
+    one = naive_sympy_symbolic_one()
+    if one is None:
+        print(f"sympy route with every resistor symbolic (as derive keeps them): one source "
+              f"did not finish in {SYMBOLIC_BUDGET:g} s, so 19 sources take more than "
+              f"{19 * SYMBOLIC_BUDGET:g} s (lower bound)")
+        sym_ratio = f"more than {19 * SYMBOLIC_BUDGET / ours:.0f}x (lower bound)"
+    else:
+        print(f"sympy route with every resistor symbolic: {one:.2f} s for one source, "
+              f"about {19 * one:.1f} s for 19 (extrapolated linearly)")
+        sym_ratio = f"about {19 * one / ours:.0f}x (extrapolated)"
+    print(f"in-process ratio: sympy at nominal values / derive {t_sp / inproc:.1f}x")
+    print(f"ratios against derive: sympy at nominal values {t_sp / ours:.1f}x; sympy symbolic "
+          f"{sym_ratio}; numpy trapezoid (approximate, not exact) {t_np / ours:.2f}x")
     print(f"target: under {TARGET:g} s: {'met' if ours < TARGET else 'NOT met'}")
 
 
