@@ -353,3 +353,35 @@ def test_pole_in_the_band_is_a_located_error(tmp_path, capsys):
     R, C = 1e3, 1e-6
     ms = 4 * K * T25 * R / (2 * math.pi * R * C) ** 2 * (1 / 1 - 1 / 1e3)
     assert n["rms"] == pytest.approx(math.sqrt(ms), rel=1e-12)
+
+
+# ------------------------------------------------------------------ the checks can fail
+def test_checks_reject_a_wrong_transfer_and_a_wrong_density():
+    """Mutations: a wrong |H|^2, a wrong total density and a wrong H must not verify."""
+    from derive.analyses.run import Context, Options
+    from derive.derivation import noise_steps
+    from derive.derivation.nodal_steps import random_solve_check
+    from derive.forms import noise as nforms
+    text = NONINV.replace("port out", "capacitor Cf between o and n = 1 nF\nport out")
+    c = derive.circuit_of(text, "m.eqv")
+    ctx = Context(c, Options())
+    req = c.requests[0]
+    model = nforms.contributions(ctx, req)
+    nodal = noise_steps.nodal_of(ctx)
+    plus, minus = ctx.port(req.port)
+    form = nodal.v(plus) - nodal.v(minus)
+    con = model.contributions[0]
+    vec = noise_steps.source_vector(nodal, ctx, con.source)
+    ok, _ = noise_steps.jw_check(nodal, form, [[(1, vec)]], [con.mag2])[0]
+    assert ok
+    bad, _ = noise_steps.jw_check(nodal, form, [[(1, vec)]], [con.mag2 * sympy.Rational(10001, 10000)])[0]
+    assert not bad
+    f = sympy.Symbol("f")
+    shifted = con.mag2.xreplace({f: f * sympy.Rational(101, 100)})
+    assert not noise_steps.jw_check(nodal, form, [[(1, vec)]], [shifted])[0][0]
+    assert random_solve_check(nodal, form, vec, con.H)[0]
+    assert not random_solve_check(nodal, form, vec, -con.H * 2)[0]
+    # the en vector of another op-amp input is not this source's vector
+    en = next(x for x in model.contributions if x.source.role == "en")
+    wrong = nodal.test_vector(en.source.nodes[0], "gnd")
+    assert not random_solve_check(nodal, form, wrong, en.H)[0]

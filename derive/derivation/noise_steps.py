@@ -165,7 +165,7 @@ def source_steps(ctx, req, model) -> list:
     nominal = ctx.nominal
     for src in model.sources:
         what = {"thermal": "thermal noise current", "en": "op-amp input voltage noise",
-                "in": "op-amp input current noise"}[src.kind]
+                "in": "op-amp input current noise"}[src.role]
         at = " – ".join(src.named[1:]) if src.named else \
             f"in series with the + input of {src.opamp}"
         v = src.density.xreplace(nominal)
@@ -209,9 +209,9 @@ def source_steps(ctx, req, model) -> list:
             eqs.append(m)
         unit = "V/A" if src.unit.startswith("A") else "V/V"
         unit = "Ω" if unit == "V/A" else unit
-        if src.kind == "thermal":
+        if src.role == "thermal":
             how = f"a 1 A current driven into {src.named[1]} and out of {src.named[2]}"
-        elif src.kind == "en":
+        elif src.role == "en":
             how = f"1 V in series with the non-inverting input of {src.opamp}"
         else:
             how = f"a 1 A current into node {src.named[1]}"

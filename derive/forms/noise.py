@@ -48,12 +48,12 @@ W = sympy.Symbol("omega")                    # angular frequency (internal)
 @dataclass
 class Source:
     """One noise source: ``name`` (the contributions key: ``R1``, ``U1.en``, ``U1.in+``),
-    ``kind`` ('thermal', 'en', 'in'), the element or op-amp it belongs to, its one-sided
+    ``role`` ('thermal', 'en', 'in'), the element or op-amp it belongs to, its one-sided
     density ``density`` (sympy, in the circuit symbols: ``4kT/R``; A^2/Hz or V^2/Hz), the
     right-hand-side vector ``vector`` (ring polynomials by unknown index) or ``named`` (a
     solver vector name), and ``where`` (the nodes or the input it acts at)."""
     name: str
-    kind: str
+    role: str
     owner: str
     density: sympy.Expr
     unit: str
