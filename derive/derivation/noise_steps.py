@@ -62,6 +62,11 @@ def source_vector(nodal, ctx, src):
     return b
 
 
+def _expr(x):
+    """A number or sympy expression as a sympy expression (no text is read)."""
+    return sympy.Integer(x) if isinstance(x, int) else x
+
+
 def _complex_parts(v):
     v = sympy.expand(v)
     return sympy.re(v), sympy.im(v)
@@ -83,9 +88,9 @@ def jw_check(nodal, form, vectors, expected, points=2, seed=5) -> list:
         flat = [v for vs in vectors for _, v in vs]
         syms = set()
         for x in list(A) + [y for v in flat for y in v]:
-            syms |= sympy.sympify(x).free_symbols
+            syms |= _expr(x).free_symbols
         syms |= {s for e in exp_w for s in e.free_symbols}
-        syms |= {s for vs in vectors for w, _ in vs for s in sympy.sympify(w).free_symbols}
+        syms |= {s for vs in vectors for w, _ in vs for s in _expr(w).free_symbols}
         syms -= set(nodal.unknowns) | {S}
         syms.add(W)
         rnd = random.Random(seed)
@@ -132,7 +137,7 @@ def jw_check(nodal, form, vectors, expected, points=2, seed=5) -> list:
                     env_i.update({u: X[n + i, k] for i, u in enumerate(nodal.unknowns)})
                     re = form_prog.run(env_r)[0]
                     im = form_prog.run(env_i)[0]
-                    wv = Program([sympy.sympify(weight)]).run(pt)[0]
+                    wv = Program([_expr(weight)]).run(pt)[0]
                     total += wv * (re * re + im * im)
                     k += 1
                 got_all.append(total)
