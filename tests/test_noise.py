@@ -385,3 +385,16 @@ def test_checks_reject_a_wrong_transfer_and_a_wrong_density():
     en = next(x for x in model.contributions if x.source.role == "en")
     wrong = nodal.test_vector(en.source.nodes[0], "gnd")
     assert not random_solve_check(nodal, form, wrong, en.H)[0]
+
+
+def test_input_referred_noise_of_the_non_inverting_amplifier():
+    # with `find gain from Vin to out` on the same port: S_in = S_out/G², G = 1 + R2/R1 = 10
+    # (non-inverting gain, from memory); the input-referred density of Rs is 4kTRs itself
+    n, rec = noise_of(NONINV + "find gain from Vin to out\n")
+    ir = n["input_referred"]["Vin"]
+    assert ir["unit"] == "V" and ir["rms"] == pytest.approx(n["rms"] / 10, rel=1e-12)
+    expr = ir["density"]["expr"].xreplace(rec.circuit.nominal_values())
+    en, inn, Rs, R1, R2 = 4e-9, 2e-12, 1e3, 1e3, 9e3
+    want = en ** 2 + inn ** 2 * Rs ** 2 + 4 * K * T25 * Rs + (
+        inn ** 2 * R2 ** 2 + 4 * K * T25 * (R1 * (R2 / R1) ** 2 + R2)) / 100
+    assert float(expr) == pytest.approx(want, rel=1e-12)

@@ -17,7 +17,8 @@ from fractions import Fraction
 import sympy
 from flint import fmpq_poly
 
-from derive.derivation.noise_steps import density_step, source_steps
+from derive.derivation.nodal_steps import random_solve_check
+from derive.derivation.noise_steps import density_step, nodal_of, source_steps
 from derive.derivation.port_steps import StepFailed
 from derive.derivation.steps import Equation, Figure, Step
 from derive.errors import SheetError
@@ -129,6 +130,58 @@ def _figure(req, model, per, total_pq):
                   "at nominal values: the total and the largest contributions", "noise", data)
 
 
+def input_referred(ctx, req, model, total, noise, steps):
+    """The noise referred to the input of each ``find gain from S to P`` on the same port:
+    S_in(f) = S_out(f)/|G(j 2 pi f)|^2 and its rms over the band (at nominal values)."""
+    from derive.sheet import kinds
+    gains = [r for r in ctx.circuit.requests if r.statement == "find" and
+             r.quantity == "gain" and r.analysis is None and r.port == req.port]
+    out = {}
+    F1, F2 = (Fraction(x) for x in req.band)
+    pq = _nominal_total(model)
+    for g in gains:
+        if g.source in out:
+            continue
+        ratio = ctx.solver(req.loc).vth(ctx.port(req.port), only=g.source)
+        if ratio.is_zero:
+            continue
+        unit = "V^2/Hz" if kinds.kind(ctx.circuit.element(g.source).kind).source == \
+            "voltage" else "A^2/Hz"
+        G = forms.edge.to_sympy(ratio)
+        m2 = forms.mag2(G)
+        entry = {"density": {"expr": total / m2, "unit": unit}, "rms": None,
+                 "unit": unit.split("^")[0]}
+        gm = forms.nominal_mag2(ratio, ctx.nominal)
+        note = None
+        if pq is not None and gm is not None and not gm[0].is_zero():
+            P, Q = pq[0] * gm[1], pq[1] * gm[0]
+            if bands.has_pole_in_band(Q, F1, F2) is not None:
+                note = "the gain is zero inside the band: no finite input-referred rms"
+            else:
+                bi = bands.band_integral(P, Q, F1, F2)
+                entry["rms"] = math.sqrt(max(bi.value, 0.0))
+                entry["method"] = bi.method
+        if note:
+            entry["note"] = note
+        out[g.source] = entry
+        sym_in, sym_out = sympy.Symbol(f"S_in_{g.source}"), sympy.Symbol("S_out")
+        gain = sympy.Symbol(f"G_{g.source}")
+        nodal = nodal_of(ctx)
+        plus, minus = ctx.port(req.port)
+        geq = Equation(gain, G)
+        geq.mark("system", *random_solve_check(nodal, nodal.v(plus) - nodal.v(minus),
+                                               nodal.rhs_for(only=g.source), G))
+        eqs = [geq, Equation(sym_in, sym_out / sympy.Abs(gain) ** 2, definition=True)]
+        shown = "" if entry["rms"] is None else \
+            f"; over the band its rms is {format_eng(entry['rms'], entry['unit'], digits=4)}"
+        steps.append(Step(f"Referred to the input {g.source} (the sheet also asks for the gain "
+                          f"from {g.source} to {req.port}): the output density divided by "
+                          f"|G(j2πf)|², in {unit.replace('^2', '²')}" + shown +
+                          (f" ({note})" if note else "") + ".", eqs, [g.source], kind="noise"))
+    if out:
+        noise["input_referred"] = out
+
+
 def answer(ctx, req) -> RequestResult:
     model = forms.contributions(ctx, req)
     out = RequestResult(req)
@@ -207,6 +260,7 @@ def answer(ctx, req) -> RequestResult:
         else:
             noise["noise_bandwidth"] = None
             noise["noise_bandwidth_note"] = why
+        input_referred(ctx, req, model, total, noise, steps)
         fig = _figure(req, model, per, None)
         if fig is not None:
             out.extra["figures"] = [fig]
