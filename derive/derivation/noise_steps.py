@@ -240,6 +240,6 @@ def density_step(ctx, req, model, total, nodal, form, vectors) -> Step:
     else:
         eq.mark("exact", total == 0)
     return Step(f"Output noise density at port {req.port} (V²/Hz): the sources are "
-                "uncorrelated, so their contributions S_k·|H_k(j2πf)|² add; compared with "
+                "uncorrelated, so their contributions S·|H(j2πf)|² add; compared with "
                 "exact solves of the nodal equations at s = j2πf for every source at random "
                 "rational points.", [eq], kind="noise")
