@@ -398,3 +398,12 @@ def test_input_referred_noise_of_the_non_inverting_amplifier():
     want = en ** 2 + inn ** 2 * Rs ** 2 + 4 * K * T25 * Rs + (
         inn ** 2 * R2 ** 2 + 4 * K * T25 * (R1 * (R2 / R1) ** 2 + R2)) / 100
     assert float(expr) == pytest.approx(want, rel=1e-12)
+
+
+def test_notebook_summary_and_markdown_record_show_the_rms():
+    rec = run(DIVIDER)
+    rms = math.sqrt(4 * K * T25 * 8e3 * (10e3 - 10))          # 4kT(R1||R2)·band, as above
+    from derive.sheet.units import format_eng
+    md = rec.results[0]._repr_markdown_()
+    assert f"output noise {format_eng(rms, 'V')} rms" in md
+    assert f"output noise: {format_eng(rms, 'V', digits=4)} rms" in rec.to_markdown().replace("\\.", ".")
