@@ -260,6 +260,8 @@ def answer(ctx, req) -> RequestResult:
         else:
             noise["noise_bandwidth"] = None
             noise["noise_bandwidth_note"] = why
+            steps.append(Step(f"No noise-equivalent bandwidth is given: {why}.", [],
+                              kind="noise"))
         input_referred(ctx, req, model, total, noise, steps)
         fig = _figure(req, model, per, None)
         if fig is not None:
