@@ -149,7 +149,11 @@ def test_ratings_and_noise_agree_with_sheet_md_section_5():
     assert rated == {"resistor": {"W", "V"}, "capacitor": {"V"}, "inductor": {"V"}}
     # "every resistor (unless `noiseless`) contributes thermal noise 4kTR"
     assert "every resistor (unless `noiseless`) contributes thermal noise" in text
-    assert {k.name for k in KINDS.values() if k.noise} == {"resistor"}
+    # a conductance is a resistor written as 1/R: thermal noise 4kTG; a general impedance or
+    # admittance has no noise model ('unknown': find noise refuses it unless 'noiseless')
+    assert {k.name: k.noise for k in KINDS.values() if k.noise} == {
+        "resistor": "thermal", "conductance": "thermal", "impedance": "unknown",
+        "admittance": "unknown"}
 
 
 def test_quantities_agree_with_sheet_md():

@@ -15,7 +15,7 @@ from typing import Callable
 
 from derive.analyses import approximation, claims, frequency, inversion, ports, power, sections
 from derive.analyses import budget, choose, drift
-from derive.analyses import operating_point, stress
+from derive.analyses import noise, operating_point, stress
 from derive.analyses import sensitivity, substitution, tolerance
 from derive.circuit.build import Circuit
 from derive.errors import NotAvailableYet
@@ -32,6 +32,7 @@ HANDLERS: dict = {
     "gain": ports.answer, "current": ports.answer,
     "power": power.answer,
     "operating_point": operating_point.answer, "stress": stress.answer,
+    "noise": noise.answer,
     "model": sections.model_handler, "twoport": sections.twoport_handler,
     "sensitivity": sensitivity.sensitivity, "tolerance": tolerance.tolerance,
     "solve": inversion.solve_request, "check": claims.check_request,

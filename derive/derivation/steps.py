@@ -104,7 +104,8 @@ class Figure:
     (``data``); :func:`derive.export.plots.draw` draws it. Charts: ``"sensitivity"``
     (``symbols``, ``values``), ``"histogram"`` (``counts``, ``edges``, ``quantity``,
     ``unit``, ``marks``), ``"bode"`` (``num``, ``den`` ascending numeric coefficients,
-    ``unit``)."""
+    ``unit``), ``"noise"`` (``f`` in Hz, ``total`` and ``parts`` name -> densities in
+    V/√Hz, ``band``)."""
     name: str
     caption: str
     chart: str

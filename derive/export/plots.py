@@ -1,5 +1,5 @@
 """Drawing of the plots (:class:`derive.derivation.steps.Figure`): sensitivities, tolerance
-spreads and Bode plots.
+spreads, Bode plots and noise densities.
 
 The analyses make the figures, holding only the numbers they need (a histogram is stored as
 counts and bin edges, not as the samples) and a chart; :func:`draw` draws one with
@@ -101,11 +101,31 @@ def _draw_bode(fig_: Figure, path: str) -> None:
     fig.savefig(path)
 
 
+def _draw_noise(fig_: Figure, path: str) -> None:
+    """Log-log output noise density (V/√Hz) against frequency: the total and the largest
+    contributions (``data``: ``f``, ``total``, ``parts`` name -> densities, ``band``), the
+    band of the request shaded."""
+    data = fig_.data
+    fig, ax = _new(6.4, 3.8)
+    ax.loglog(data["f"], data["total"], color="black", linewidth=1.8, label="total")
+    styles = ["--", "-.", ":", (0, (5, 2, 1, 2))]
+    for (name, ys), ls in zip(data["parts"].items(), styles):
+        ax.loglog(data["f"], ys, linestyle=ls, linewidth=1.2, label=name)
+    lo, hi = data["band"]
+    ax.axvspan(max(lo, data["f"][0]), hi, color="#9db4d3", alpha=0.25, label="band")
+    ax.set_xlabel("frequency / Hz")
+    ax.set_ylabel("noise density / (V/√Hz)")
+    ax.grid(True, which="both", alpha=0.3)
+    ax.legend(fontsize="small")
+    fig.tight_layout()
+    fig.savefig(path)
+
+
 def _drawings() -> dict:
     """The one table of figure charts and the function that draws each."""
     return {"sensitivity": lambda f, path: _draw_sensitivity(f.data, path),
             "histogram": lambda f, path: _draw_histogram(f.data, path),
-            "bode": _draw_bode}
+            "bode": _draw_bode, "noise": _draw_noise}
 
 
 def can_draw(figure) -> bool:

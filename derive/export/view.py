@@ -431,6 +431,23 @@ def _stress_items(stress) -> list:
     return items
 
 
+def _noise_items(n) -> list:
+    """rms over the band, the largest shares and the noise-equivalent bandwidth."""
+    lo, hi = n["band"]
+    band = f"{_eng(lo, 'Hz')} to {_eng(hi, 'Hz')}"
+    if n.get("rms") is None:
+        return [{"label": "noise", "math": "", "text": f"{band}: density in closed form "
+                 "only (some symbols have no nominal value)"}]
+    top = sorted(n["contributions"].items(), key=lambda kv: -kv[1]["share"])[:3]
+    text = f"{_eng(n['rms'], 'V')} rms over {band}"
+    if top:
+        text += "; largest: " + ", ".join(f"{k} {100 * v['share']:.3g} %" for k, v in top)
+    nb = n.get("noise_bandwidth")
+    if nb:
+        text += f"; noise-equivalent bandwidth {_eng(nb['value'], 'Hz')}"
+    return [{"label": "output noise", "math": "", "text": text}]
+
+
 def request_summary(record, r) -> list:
     """The answer of one request in a few lines: closed form where short, value with unit,
     tolerance band, the three largest sensitivities, verdicts, frequency figures."""
@@ -480,6 +497,8 @@ def request_summary(record, r) -> list:
         items += _operating_point_items(x["operating_point"])
     if "stress" in x:
         items += _stress_items(x["stress"])
+    if "noise" in x:
+        items += _noise_items(x["noise"])
     if "holds" in x:
         if x["holds"]:
             verdict = "holds (exact)"

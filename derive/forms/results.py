@@ -64,6 +64,11 @@ class RequestResult:
         """Jupyter: the request and one line per quantity (closed form and value)."""
         lines = [f"**{getattr(self.request, 'text', '')}**", ""]
         lines += [f"- {q._repr_latex_()}" for q in self.quantities.values()]
+        noise = self.extra.get("noise")
+        if noise and noise.get("rms") is not None:
+            lo, hi = noise["band"]
+            lines.append(f"- output noise {format_eng(noise['rms'], 'V')} rms from "
+                         f"{format_eng(lo, 'Hz')} to {format_eng(hi, 'Hz')}")
         lines += [f"- {n}" for n in self.notes]
         return "\n".join(lines) + "\n"
 

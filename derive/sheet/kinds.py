@@ -65,7 +65,8 @@ class Kind:
     gain_unit: str | None = None      # unit of 'gain from S to P' per unit of this source
     reactive: bool = False            # makes results functions of s
     rating_units: tuple = ()          # SHEET.md section 5: 'rated ...' units it takes
-    noise: str | None = None          # 'thermal' (4kTR) unless 'noiseless'
+    noise: str | None = None          # 'thermal' (4kTR, 4kTG) unless 'noiseless'; 'unknown':
+                                      # no noise model (find noise refuses it unless 'noiseless')
     resistor_code: bool = False       # R47 / 47R read as IEC 60062 resistor codes
     sheet: bool = True                # written on a sheet line (False: made by the circuit stage)
 
@@ -82,14 +83,15 @@ class Kind:
 _TABLE = (
     Kind("resistor", "resistor", "ohm", immittance="impedance", rating_units=("W", "V"),
          noise="thermal", resistor_code=True),
-    Kind("conductance", "conductance", "S", immittance="admittance"),
+    Kind("conductance", "conductance", "S", immittance="admittance", noise="thermal"),
     Kind("capacitor", "capacitor", "F", immittance="admittance", s_power=1, reactive=True,
          rating_units=("V",)),
     Kind("inductor", "inductor", "H", immittance="impedance", s_power=1, stamp="branch",
          reactive=True, rating_units=("V",)),
     Kind("impedance", "impedance", "ohm", immittance="impedance", stamp="branch",
-         reactive=True, resistor_code=True),
-    Kind("admittance", "admittance", "S", immittance="admittance", reactive=True),
+         reactive=True, resistor_code=True, noise="unknown"),
+    Kind("admittance", "admittance", "S", immittance="admittance", reactive=True,
+         noise="unknown"),
     Kind("vsource", "voltage source", "V", stamp="branch", source="voltage", gain_unit="V/V"),
     Kind("isource", "current source", "A", stamp="current", source="current", gain_unit="ohm"),
     Kind("nullor", "ideal op-amp", None, terminals=3, stamp="nullor", sheet=False),

@@ -341,8 +341,10 @@ class _Builder:
         article = "an" if noun[0] in "aeiou" else "a"
         if node.data == "noiseless":
             if kinds.kind(element.kind).noise is None:
-                raise _err(f"'noiseless' is for resistors, not {article} {noun}", word,
-                           hint="only resistors make thermal noise in the noise analysis")
+                raise _err(f"'noiseless' is for resistors (and conductances, impedances, "
+                           f"admittances), not {article} {noun}", word,
+                           hint="only resistors and conductances make thermal noise in the "
+                                "noise analysis")
             if element.noiseless:
                 raise _err(f"'noiseless' is given twice for '{element.name}'", word)
             element.noiseless = True
