@@ -74,33 +74,62 @@ class _Clock:
         setattr(owner, name, timed)
 
 
+# Every function that checks a displayed equation or a result against an independent
+# computation, as (module path, attribute path). The benchmark refuses to run when one is
+# missing (a renamed check would otherwise drop out of the verification time unnoticed).
+VERIFY_FUNCTIONS = [
+    ("derive.derivation.steps", "Step.verify"),             # every displayed equation
+    ("derive.derivation.steps", "compare"),
+    ("derive.derivation.steps", "equal"),
+    ("derive.derivation.nodal_steps", "random_solve_check"),  # exact solves at points
+    ("derive.derivation.nodal_steps", "Nodal.agrees_with_stamps"),
+    ("derive.derivation.nodal_steps", "check_rows"),          # KCL rows against the stamps
+    ("derive.derivation.nodal_steps", "det_check"),           # Cramer determinants
+    ("derive.derivation.port_steps", "through_agrees"),       # branch current forms
+    ("derive.derivation.port_steps", "cross_check_step"),     # vth = isc*rth step
+    ("derive.derivation.port_steps", "independent_value"),    # value at nominal values
+    ("derive.forms.select", "cross_check"),                   # vth = isc*rth of the ratios
+    ("derive.analyses.sensitivity", "agree"),
+]
+
+
+def _resolve(mod, path):
+    import importlib
+    owner = importlib.import_module(mod)
+    *head, name = path.split(".")
+    for h in head:
+        owner = getattr(owner, h)
+    if not callable(getattr(owner, name, None)):
+        raise SystemExit(f"bench_verify_ladders: {mod}.{path} not found; update "
+                         "VERIFY_FUNCTIONS to the current verification functions")
+    return owner, name
+
+
 def worker(case: str):
     import derive
-    from derive.derivation import port_steps as derivation
-    from derive.derivation import nodal_steps as derivation_nodal
-    from derive.forms import select as forms
-    from derive.analyses import sensitivity
-    from derive.derivation import steps
+    import derive.analyses.run  # noqa: F401  (every stage imported before wrapping)
 
     derive.derive_text(sheet_text("ladder2"))           # warm-up: imports, grammar
     clock = _Clock()
-    clock.wrap(steps.Step, "verify")
-    clock.wrap(steps, "equal")
-    if getattr(derivation, "equal", None) is not None:
-        derivation.equal = steps.equal
-    clock.wrap(derivation_nodal, "_random_solve_agrees")
-    clock.wrap(derivation_nodal.Nodal, "agrees_with_stamps")
-    clock.wrap(forms, "cross_check")
-    clock.wrap(sensitivity, "agree")
+    for mod, path in VERIFY_FUNCTIONS:
+        clock.wrap(*_resolve(mod, path))
     text = sheet_text(case)
+    c = time.process_time()
     t = time.perf_counter()
     rec = derive.derive_text(text, f"{case}.eqv")
     total = time.perf_counter() - t
+    cpu = time.process_time() - c
     verified = all(s.verified for r in rec.results for s in r.steps)
+    eqs = [e for r in rec.results for s in r.steps for e in s.equations]
+    methods = {}
+    for e in eqs:
+        key = f"{e.verified_by}" + (f"@{e.points}" if e.points else "")
+        methods[key] = methods.get(key, 0) + 1
     q = rec.results[0].quantities
     forms_used = {n: x.form for n, x in q.items()}
-    print("RESULT " + json.dumps(dict(total=total, verify=clock.total, calls=clock.calls,
-                                      verified=verified, forms=forms_used,
+    print("RESULT " + json.dumps(dict(total=total, cpu=cpu, verify=clock.total,
+                                      calls=clock.calls, verified=verified, forms=forms_used,
+                                      methods=methods,
                                       steps=sum(len(r.steps) for r in rec.results))))
 
 

@@ -329,6 +329,204 @@ def _algebraic_zero(d) -> bool:
     return False
 
 
+def count_ops_capped(e, limit: int) -> int:
+    """``min(sympy.count_ops(e), limit)``, without walking more of ``e`` than needed.
+
+    The same counting rules as :func:`sympy.count_ops` (sympy 1.x: NEG, DIV, SUB, ADD, MUL,
+    POW; the running count never decreases, so the walk stops once ``limit`` is reached);
+    anything but numbers, symbols, sums, products and powers is counted by
+    :func:`sympy.count_ops` itself.
+
+    >>> x, y = sympy.symbols('x y')
+    >>> e = (x - y) / (x + 2*y) ** 2 - 1 / x
+    >>> count_ops_capped(e, 400) == sympy.count_ops(e), count_ops_capped(e, 3)
+    (True, 3)
+    """
+    if not isinstance(e, sympy.Expr) or e.is_Relational:
+        return min(int(sympy.count_ops(e)), limit)
+    from sympy.core.function import _coeff_isneg
+    one, m1 = sympy.S.One, sympy.S.NegativeOne
+    total = 0
+    args = [e]
+    while args:
+        if total >= limit:
+            return limit
+        a = args.pop()
+        if a.is_Rational:
+            if a is not one:
+                total += int(a.p < 0) + int(a.q != 1)
+                continue
+        elif a.is_Mul:
+            if _coeff_isneg(a):
+                total += 1
+                a = a.as_two_terms()[1] if a.args[0] is m1 else -a
+            n, d = sympy.fraction(a)
+            if n.is_Integer:
+                total += 1 + bool(n < 0)
+                args.append(d)
+                continue
+            elif d is not one:
+                if not d.is_Integer:
+                    args.append(d)
+                total += 1
+                args.append(n)
+                continue
+        elif a.is_Add:
+            aargs = a.args
+            total += len(aargs) - 1
+            if total >= limit:
+                return limit
+            negs = 0
+            for ai in aargs:
+                if _coeff_isneg(ai):
+                    negs += 1
+                    args.append(-ai)
+                else:
+                    args.append(ai)
+            if negs == len(aargs):
+                total += 1
+            continue
+        if a.is_Pow and a.exp is m1:
+            total += 1
+            args.append(a.base)
+            continue
+        if a is sympy.E or (a.is_Pow and a.base is sympy.E):
+            return min(int(sympy.count_ops(e)), limit)
+        if a.is_Mul:
+            total += len(a.args) - 1
+        elif a.is_Pow:
+            total += 1
+        elif a.args and not a.is_Symbol:
+            return min(int(sympy.count_ops(e)), limit)   # functions etc.: sympy's own rules
+        if not a.is_Symbol:
+            args.extend(a.args)
+    return min(total, limit)
+
+
+def _rational_function(prog: "Program", k: int):
+    """Root ``k`` of ``prog`` as an exact rational function ``(num, den)`` of python-flint
+    ``fmpq_mpoly`` in the program's input symbols (no gcd is taken: an identity is decided
+    by cross-multiplication); ZeroDivisionError where a denominator is the zero polynomial."""
+    names = sorted(prog.inputs, key=str)
+    ctx = flint.fmpq_mpoly_ctx.get(tuple(f"x{i}" for i in range(max(1, len(names)))), "lex")
+    gens = ctx.gens()
+    one = ctx.constant(1)
+    vals = [None] * len(prog.ops)
+    for i, op in enumerate(prog.ops):
+        kind = op[0]
+        if kind == "in":
+            vals[i] = (gens[names.index(op[1])], one)
+        elif kind == "const":
+            vals[i] = (ctx.constant(op[1]), one)
+        elif kind == "add":
+            n, d = vals[op[1][0]]
+            for j in op[1][1:]:
+                n2, d2 = vals[j]
+                n, d = (n + n2, d) if d2 == d else (n * d2 + n2 * d, d * d2)
+            vals[i] = (n, d)
+        elif kind == "mul":
+            n, d = vals[op[1][0]]
+            for j in op[1][1:]:
+                n2, d2 = vals[j]
+                n, d = n * n2, d * d2
+            vals[i] = (n, d)
+        else:
+            (n, d), k2 = vals[op[1]], op[2]
+            if k2 < 0:
+                if n.is_zero():
+                    raise ZeroDivisionError("power of zero with a negative exponent")
+                n, d, k2 = d, n, -k2
+            vals[i] = (n ** k2, d ** k2)
+    n, d = vals[prog.out[k]]
+    if d.is_zero():
+        raise ZeroDivisionError("a denominator is identically zero")
+    return n, d
+
+
+def _cancels(a, b):
+    """Whether ``a - b`` cancels to zero as a rational function: True, False, or None where
+    it cannot be decided this way (not rational functions, a denominator identically zero).
+    Exact polynomial arithmetic in python-flint (the cross-multiplied numerators compared),
+    in place of ``sympy.cancel(sympy.together(a - b)) == 0`` (same answer, far faster)."""
+    try:
+        prog = Program([a, b])
+        na, da = _rational_function(prog, 0)
+        nb, db = _rational_function(prog, 1)
+    except (NotRational, ZeroDivisionError):
+        return None
+    return na * db == nb * da
+
+
+class RatioCheck:
+    """The solver's exact ratio (:class:`derive.solver.cramer.Ratio`) as the independent
+    side of a check, evaluated in its own ring: at a point, every ring variable gets the
+    value of its expression (``1/R`` for a conductance variable) and the ratio's numerator
+    and denominator are evaluated exactly (python-flint). Its sympy form
+    (:func:`derive.solver.convert.to_sympy`) is built only where a check needs it (the
+    exact route of :func:`compare` on small expressions)."""
+
+    def __init__(self, ratio):
+        from derive.solver import convert
+        self.ratio = ratio
+        self._expr = None
+        self._used = convert.used_vars(ratio)
+        vs = ratio.system.vars
+        self._prog = Program([vs[k].expr for k in self._used])
+        self._recip = [vs[k].kind == "recip" for k in self._used]
+
+    def expr(self):
+        if self._expr is None:
+            from derive.solver import convert
+            self._expr = convert.to_sympy(self.ratio)
+        return self._expr
+
+    def symbols(self) -> set:
+        return self._prog.symbols()
+
+    def ops_at_least(self, limit: int) -> bool:
+        """Whether the sympy form surely has at least ``limit`` operations (count_ops): a
+        lower bound from the factors of numerator and denominator (each factor a sum of
+        its terms: terms - 1 additions), without building the sympy form."""
+        if self._expr is not None:
+            return count_ops_capped(self._expr, limit) >= limit
+        from derive.solver import convert
+        num, den, _ctx, _syms, subs = convert.to_symbols(self.ratio)
+        if subs:                        # placeholders substituted back: sympy decides
+            return count_ops_capped(self.expr(), limit) >= limit
+        bound = 0
+        for p in (num, den):
+            if p.is_zero():
+                continue
+            if len(p) > 3000:
+                bound += len(p) - 1
+                continue
+            _c, factors = p.factor()
+            bound += sum(len(f) - 1 for f, _e in factors)
+        return bound >= limit
+
+    def at(self, point: dict):
+        """The ratio's exact value at ``point`` (Symbol -> rational) as ``fmpq``;
+        ZeroDivisionError where it is undefined."""
+        vals = self._prog.run(point)
+        nv = len(self.ratio.system.vars)
+        x = [flint.fmpq(0)] * nv
+        for k, v, r in zip(self._used, vals, self._recip):
+            if r:
+                if v == 0:
+                    raise ZeroDivisionError("a conductance of an infinite value")
+                v = 1 / v
+            x[k] = v
+        if nv == 0:
+            n, d = self.ratio.num.to_dict(), self.ratio.den.to_dict()
+            num = flint.fmpq(n.get((0,), 0)) if n else flint.fmpq(0)
+            den = flint.fmpq(d.get((0,), 1)) if d else flint.fmpq(1)
+        else:
+            num, den = self.ratio.num(*x), self.ratio.den(*x)
+        if den == 0:
+            raise ZeroDivisionError("the ratio's denominator vanishes")
+        return flint.fmpq(num) / flint.fmpq(den)
+
+
 def compare(a, b, defs: dict | None = None, points: int = POINTS,
             seed: int = 20261202) -> tuple:
     """(method, equal, points used) for the claim that ``a`` and ``b`` are the same function.
@@ -341,23 +539,46 @@ def compare(a, b, defs: dict | None = None, points: int = POINTS,
     Expressions with roots are evaluated by exact sympy substitution instead of flint.
     """
     defs = defs or {}
-    if not defs and sympy.count_ops(a) + sympy.count_ops(b) < EXACT_OPS:
-        try:
-            zero = sympy.cancel(sympy.together(a - b)) == 0
-        except Exception:
-            zero = None
+    ref = b if isinstance(b, RatioCheck) else None
+    if not defs:
+        ca = count_ops_capped(a, EXACT_OPS)
+        small = ca < EXACT_OPS
+        if small and ref is not None:
+            small = not ref.ops_at_least(EXACT_OPS - ca)
+            if small:
+                b, ref = ref.expr(), None
+        elif small:
+            small = ca + count_ops_capped(b, EXACT_OPS - ca) < EXACT_OPS
+    else:
+        small = False
+    if small:
+        zero = _cancels(a, b)
+        if zero is None:
+            try:
+                zero = sympy.cancel(sympy.together(a - b)) == 0
+            except Exception:
+                zero = None
         if zero:
             return "exact", True, None
         if zero is False and _is_rational_function(a) and _is_rational_function(b):
             return "exact", False, None
-    syms = _free(a, b, defs)
-    try:
-        prog = Program([a, b], defs)
-        run = lambda pt: prog.run(pt)
-        same = lambda va, vb: va == vb
-    except NotRational:
-        run = lambda pt: _sympy_point([a, b], defs, pt)
-        same = lambda va, vb: _algebraic_zero(va - vb)
+    if ref is not None:
+        try:
+            prog = Program([a], defs)
+            syms = (prog.symbols() | ref.symbols()) - set(defs)
+            run = lambda pt: [prog.run(pt)[0], ref.at(pt)]
+            same = lambda va, vb: va == vb
+        except NotRational:
+            b, ref = ref.expr(), None
+    if ref is None:
+        syms = _free(a, b, defs)
+        try:
+            prog = Program([a, b], defs)
+            run = lambda pt: prog.run(pt)
+            same = lambda va, vb: va == vb
+        except NotRational:
+            run = lambda pt: _sympy_point([a, b], defs, pt)
+            same = lambda va, vb: _algebraic_zero(va - vb)
     if not syms:
         try:
             va, vb = run({})
