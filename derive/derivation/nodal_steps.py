@@ -28,7 +28,7 @@ import sympy
 from derive.forms import select as forms
 from derive.sheet import kinds
 from derive.forms.elimination import entry_expr
-from derive.derivation.steps import ATTEMPTS, POINTS, Equation, Program, Step, random_point
+from derive.derivation.steps import ATTEMPTS, POINTS, Equation, Program, Step, draws
 
 MAX_CRAMER = 4        # unknowns up to which determinants are written out (symbolic
                       # determinants of larger systems are slow and unreadable)
@@ -330,9 +330,9 @@ def _kernel_det(nodal, A):
 
 def _draws(syms, seed, points):
     """Random rational points (bounded number of draws, see :mod:`derive.derivation.steps`)."""
-    rnd = random.Random(seed)
+    seq = draws(seed, syms)
     for _ in range(ATTEMPTS * points):
-        yield random_point(rnd, syms)
+        yield next(seq)
 
 
 def det_check(M, d, points=POINTS) -> tuple:

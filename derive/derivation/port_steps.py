@@ -70,7 +70,7 @@ def port_steps(ctx, req, out) -> list:
     return steps
 
 
-def _check(ctx, req, eq: Equation, ref, nodal_form=None):
+def check_result(ctx, req, eq: Equation, ref, nodal_form=None):
     """Verify ``eq.rhs`` against the solver's exact result ``ref`` (or, where the result was
     not expanded, an exact solve of the nodal equations at random rational points)."""
     if ref is not None:
@@ -150,11 +150,11 @@ def _reduction_steps(ctx, req, out, refs):
         base = bases[n]
         rhs = {"vth": E, "gain": E, "rth": Z}.get(base, E / Z if Z != 0 else None)
         eq = Equation(sympy.Symbol(n), rhs, defs=dict(defs))
-        eqs.append(_check(ctx, req, eq, refs[n], (None if refs[n] is not None
+        eqs.append(check_result(ctx, req, eq, refs[n], (None if refs[n] is not None
                                                   else _nodal_forms(ctx, req, base))))
         if q.expr is not None and (q.expr != rhs):
             e2 = Equation(sympy.Symbol(n), q.expr)
-            eqs.append(_check(ctx, req, e2, refs[n], (None if refs[n] is not None
+            eqs.append(check_result(ctx, req, e2, refs[n], (None if refs[n] is not None
                                                       else _nodal_forms(ctx, req, base))))
     what = (f"The port {req.port} now sees a single branch from {plus} to {minus}: its "
             "open-circuit voltage and its impedance are the results" if need_src else
@@ -395,7 +395,8 @@ def _zero_poly(p) -> bool:
 def cross_check_step(ctx, req):
     """The step ``vth = isc·rth``: the solver's three exact ratios (vth and rth as reported,
     isc from its own bordered determinants) evaluated exactly at random points
-    (:func:`derive.forms.select.product_identity_holds`, never multiplied out)."""
+    (:func:`derive.forms.select.product_identity_holds`, never multiplied out; the outcome
+    of :func:`derive.forms.select.cross_check` on the same ratios where it ran)."""
     if not forms.expandable(ctx):
         return []
     r = forms.exact_ratio(ctx, req, "rth")
@@ -404,11 +405,17 @@ def cross_check_step(ctx, req):
     v, i = (forms.exact_ratio(ctx, req, n) for n in ("vth", "isc"))
     V, I, R = (sympy.Symbol(n) for n in ("vth", "isc", "rth"))
     eq = Equation(V, I * R)
-    try:
-        ok = forms.product_identity_holds(v, [i, r])
-    except Exception:           # no usable point, or an error: not verified
-        ok = False
-    eq.mark("points", ok, forms.CHECK_POINTS)
+    # the same identity of the same three ratios was decided by forms.cross_check when
+    # the results were computed (it raises when it fails); its outcome is reused
+    n = ctx.cache.get(("vth = isc*rth holds", req.port))
+    if n is None:
+        try:
+            ok, n = forms.product_identity_holds(v, [i, r]), forms.CHECK_POINTS
+        except Exception:           # no usable point, or an error: not verified
+            ok = False
+    else:
+        ok = True
+    eq.mark("points", ok, n)
     return [Step("Cross-check: the open-circuit voltage equals the short-circuit current "
                  "times the resistance seen into the port (each found independently).",
                  [eq], kind="check")]

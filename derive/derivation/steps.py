@@ -280,6 +280,45 @@ def random_point(rnd: random.Random, syms) -> dict:
             for x in sorted(syms, key=str)}
 
 
+def _name(x) -> str:
+    """``str(x)`` of a symbol without the printer (a Dummy prints with a leading ``_``)."""
+    if isinstance(x, sympy.Dummy):
+        return "_" + x.name
+    if isinstance(x, sympy.Symbol):
+        return x.name
+    return str(x)
+
+
+_DRAWS: dict = {}           # (seed, names, inverse names) -> points drawn so far
+_DRAWS_KEPT = 256
+
+
+def draws(seed: int, syms, inverse=()):
+    """The repeatable sequence of random points of ``random.Random(seed)`` over ``syms``:
+    :func:`random_point` at every draw, except that symbols in ``inverse`` get ``1/n`` (n
+    in 1..10^6). The points are drawn once per (seed, symbols) and shared by every check
+    that asks for the same sequence (each check at the same points: one draw, one
+    conversion; the values are the same as drawing afresh)."""
+    order = sorted(syms, key=_name)
+    inv = tuple(sorted((_name(x) for x in inverse if x in syms)))
+    key = (seed, tuple(_name(x) for x in order), inv)
+    got = _DRAWS.get(key)
+    if got is None:
+        if len(_DRAWS) >= _DRAWS_KEPT:
+            _DRAWS.clear()
+        got = _DRAWS[key] = ([], random.Random(seed))
+    pts, rnd = got
+    invset = set(inverse)
+    i = 0
+    while True:
+        if i == len(pts):
+            pts.append({x: (sympy.Rational(1, rnd.randint(1, 10**6)) if x in invset else
+                            sympy.Rational(rnd.randint(1, 10**6), rnd.randint(1, 10**3)))
+                        for x in order})
+        yield pts[i]
+        i += 1
+
+
 def _free(a, b, defs) -> set:
     syms = set(a.free_symbols) | set(b.free_symbols)
     for v in defs.values():
@@ -403,40 +442,72 @@ def count_ops_capped(e, limit: int) -> int:
     return min(total, limit)
 
 
-def _rational_function(prog: "Program", k: int):
+class TooLarge(Exception):
+    """Exact cancellation would need polynomials beyond :data:`CANCEL_TERMS` terms."""
+
+
+CANCEL_TERMS = 20000    # terms of a polynomial in the exact cancellation, at most
+
+
+def _reduced(n, d):
+    g = n.gcd(d)
+    if not g.is_one() and not g.is_zero():
+        n, d = n / g, d / g
+    if len(n) > CANCEL_TERMS or len(d) > CANCEL_TERMS:
+        raise TooLarge
+    return n, d
+
+
+def _rational_function(prog: "Program", k: int, ring=None):
     """Root ``k`` of ``prog`` as an exact rational function ``(num, den)`` of python-flint
-    ``fmpq_mpoly`` in the program's input symbols (no gcd is taken: an identity is decided
-    by cross-multiplication); ZeroDivisionError where a denominator is the zero polynomial."""
-    names = sorted(prog.inputs, key=str)
-    ctx = flint.fmpq_mpoly_ctx.get(tuple(f"x{i}" for i in range(max(1, len(names)))), "lex")
+    ``fmpq_mpoly`` in the program's input symbols, cancelled after every operation;
+    ZeroDivisionError where a denominator is the zero polynomial, :class:`TooLarge` where
+    a polynomial exceeds :data:`CANCEL_TERMS` terms. ``ring`` = (context, {Symbol: index
+    of its generator}) computes in a given ring (KeyError for a symbol not in it)."""
+    if ring is None:
+        names = sorted(prog.inputs, key=str)
+        where = {x: i for i, x in enumerate(names)}
+        ctx = flint.fmpq_mpoly_ctx.get(tuple(f"x{i}" for i in range(max(1, len(names)))),
+                                       "lex")
+    else:
+        ctx, where = ring
     gens = ctx.gens()
     one = ctx.constant(1)
     vals = [None] * len(prog.ops)
     for i, op in enumerate(prog.ops):
         kind = op[0]
         if kind == "in":
-            vals[i] = (gens[names.index(op[1])], one)
+            vals[i] = (gens[where[op[1]]], one)
         elif kind == "const":
             vals[i] = (ctx.constant(op[1]), one)
         elif kind == "add":
             n, d = vals[op[1][0]]
             for j in op[1][1:]:
                 n2, d2 = vals[j]
-                n, d = (n + n2, d) if d2 == d else (n * d2 + n2 * d, d * d2)
-            vals[i] = (n, d)
+                if d2 == d:
+                    n = n + n2
+                elif d2.is_one():
+                    n = n + n2 * d
+                elif d.is_one():
+                    n, d = n * d2 + n2, d2
+                else:
+                    g = d.gcd(d2)
+                    a, b = d / g, d2 / g
+                    n, d = n * b + n2 * a, a * d2
+            vals[i] = _reduced(n, d)
         elif kind == "mul":
             n, d = vals[op[1][0]]
             for j in op[1][1:]:
                 n2, d2 = vals[j]
                 n, d = n * n2, d * d2
-            vals[i] = (n, d)
+            vals[i] = _reduced(n, d)
         else:
             (n, d), k2 = vals[op[1]], op[2]
             if k2 < 0:
                 if n.is_zero():
                     raise ZeroDivisionError("power of zero with a negative exponent")
                 n, d, k2 = d, n, -k2
-            vals[i] = (n ** k2, d ** k2)
+            vals[i] = _reduced(n ** k2, d ** k2)
     n, d = vals[prog.out[k]]
     if d.is_zero():
         raise ZeroDivisionError("a denominator is identically zero")
@@ -447,7 +518,9 @@ def _cancels(a, b):
     """Whether ``a - b`` cancels to zero as a rational function: True, False, or None where
     it cannot be decided this way (not rational functions, a denominator identically zero).
     Exact polynomial arithmetic in python-flint (the cross-multiplied numerators compared),
-    in place of ``sympy.cancel(sympy.together(a - b)) == 0`` (same answer, far faster)."""
+    in place of ``sympy.cancel(sympy.together(a - b)) == 0`` (the same answer, far faster;
+    sympy leaves e.g. ``-9/4 + 9/4`` uncancelled). :class:`TooLarge` where the polynomials
+    grow beyond :data:`CANCEL_TERMS` terms."""
     try:
         prog = Program([a, b])
         na, da = _rational_function(prog, 0)
@@ -469,10 +542,38 @@ class RatioCheck:
         from derive.solver import convert
         self.ratio = ratio
         self._expr = None
+        self._form = None
         self._used = convert.used_vars(ratio)
         vs = ratio.system.vars
         self._prog = Program([vs[k].expr for k in self._used])
         self._recip = [vs[k].kind == "recip" for k in self._used]
+        # symbols that stand alone behind a conductance variable (1/R): drawn as 1/n, so
+        # the ring is evaluated at integers (ten times faster than at fractions)
+        self._inverse = {vs[k].expr for k in self._used
+                         if vs[k].kind == "recip" and vs[k].expr.is_Symbol}
+        self._inverse -= {vs[k].expr for k in self._used if vs[k].kind != "recip"}
+        self.inverse = frozenset(self._inverse)
+        self._values: dict = {}
+
+    def _symbols_form(self):
+        if self._form is None:
+            from derive.solver import convert
+            self._form = convert.to_symbols(self.ratio)
+        return self._form
+
+    def cancels_with(self, a):
+        """Whether ``a`` equals the ratio as a rational function, decided exactly in the
+        ratio's own polynomial ring in the circuit symbols (cross-multiplied); None where
+        that cannot decide (placeholders, symbols outside the ring, not rational)."""
+        num, den, ctx, syms, subs = self._symbols_form()
+        if subs or len(set(map(str, syms))) != len(syms):
+            return None
+        try:
+            na, da = _rational_function(Program([a]), 0,
+                                        (ctx, {x: i for i, x in enumerate(syms)}))
+        except (NotRational, ZeroDivisionError, KeyError):
+            return None
+        return na * den == num * da
 
     def expr(self):
         if self._expr is None:
@@ -489,8 +590,7 @@ class RatioCheck:
         its terms: terms - 1 additions), without building the sympy form."""
         if self._expr is not None:
             return count_ops_capped(self._expr, limit) >= limit
-        from derive.solver import convert
-        num, den, _ctx, _syms, subs = convert.to_symbols(self.ratio)
+        num, den, _ctx, _syms, subs = self._symbols_form()
         if subs:                        # placeholders substituted back: sympy decides
             return count_ops_capped(self.expr(), limit) >= limit
         bound = 0
@@ -506,7 +606,23 @@ class RatioCheck:
 
     def at(self, point: dict):
         """The ratio's exact value at ``point`` (Symbol -> rational) as ``fmpq``;
-        ZeroDivisionError where it is undefined."""
+        ZeroDivisionError where it is undefined (values cached per point)."""
+        key = tuple(sorted(((str(k), v) for k, v in point.items()
+                            if k in self._prog.inputs), key=lambda kv: kv[0]))
+        if key in self._values:
+            got = self._values[key]
+            if got is None:
+                raise ZeroDivisionError("the ratio is undefined at this point")
+            return got
+        try:
+            got = self._at(point)
+        except ZeroDivisionError:
+            self._values[key] = None
+            raise
+        self._values[key] = got
+        return got
+
+    def _at(self, point: dict):
         vals = self._prog.run(point)
         nv = len(self.ratio.system.vars)
         x = [flint.fmpq(0)] * nv
@@ -539,20 +655,29 @@ def compare(a, b, defs: dict | None = None, points: int = POINTS,
     Expressions with roots are evaluated by exact sympy substitution instead of flint.
     """
     defs = defs or {}
-    ref = b if isinstance(b, RatioCheck) else None
+    ref = b_ref = b if isinstance(b, RatioCheck) else None
     if not defs:
         ca = count_ops_capped(a, EXACT_OPS)
         small = ca < EXACT_OPS
         if small and ref is not None:
             small = not ref.ops_at_least(EXACT_OPS - ca)
             if small:
+                try:
+                    zero = ref.cancels_with(a)
+                except TooLarge:
+                    zero = None
+                if zero is not None:
+                    return "exact", zero, None
                 b, ref = ref.expr(), None
         elif small:
             small = ca + count_ops_capped(b, EXACT_OPS - ca) < EXACT_OPS
     else:
         small = False
     if small:
-        zero = _cancels(a, b)
+        try:
+            zero = _cancels(a, b)
+        except TooLarge:          # too large to cancel: decided at random points
+            zero = "large"
         if zero is None:
             try:
                 zero = sympy.cancel(sympy.together(a - b)) == 0
@@ -562,6 +687,8 @@ def compare(a, b, defs: dict | None = None, points: int = POINTS,
             return "exact", True, None
         if zero is False and _is_rational_function(a) and _is_rational_function(b):
             return "exact", False, None
+        if zero == "large" and ref is None and isinstance(b_ref, RatioCheck):
+            b, ref = b_ref, b_ref
     if ref is not None:
         try:
             prog = Program([a], defs)
@@ -585,12 +712,12 @@ def compare(a, b, defs: dict | None = None, points: int = POINTS,
         except ZeroDivisionError:
             return "exact", False, None
         return "exact", bool(same(va, vb)), None
-    rnd = random.Random(seed)
+    seq = draws(seed, syms, ref.inverse if ref is not None else ())
     used = 0
     for _ in range(ATTEMPTS * points):
         if used == points:
             break
-        pt = random_point(rnd, syms)
+        pt = next(seq)
         try:
             va, vb = run(pt)
         except ZeroDivisionError:

@@ -152,12 +152,15 @@ def var_values(system, nominal: dict):
 def used_vars(ratio) -> list:
     """Indices of the ring variables that occur in the (cancelled) ratio."""
     nv = len(ratio.system.vars)
+    if not nv:
+        return []
     used = [False] * nv
     for p in (ratio.num, ratio.den):
-        for exps in p.to_dict():
-            for k in range(nv):
-                if exps[k]:
-                    used[k] = True
+        if p.is_zero():
+            continue
+        for k, d in enumerate(p.degrees()):     # flint: the degree in each variable
+            if d > 0:
+                used[k] = True
     return [k for k in range(nv) if used[k]]
 
 
