@@ -296,7 +296,9 @@ _DRAWS_KEPT = 256
 def draws(seed: int, syms, inverse=()):
     """The repeatable sequence of random points of ``random.Random(seed)`` over ``syms``:
     :func:`random_point` at every draw, except that symbols in ``inverse`` get ``1/n`` (n
-    in 1..10^6). The points are drawn once per (seed, symbols) and shared by every check
+    in 1..10^6, drawn from the seed, the draw's index and the symbol's name alone, so two
+    checks over different symbol sets share these values: a polynomial of the solver, det A
+    say, is then evaluated once per point for all of them). The points are drawn once per (seed, symbols) and shared by every check
     that asks for the same sequence (each check at the same points: one draw, one
     conversion; the values are the same as drawing afresh)."""
     order = sorted(syms, key=_name)
@@ -312,7 +314,8 @@ def draws(seed: int, syms, inverse=()):
     i = 0
     while True:
         if i == len(pts):
-            pts.append({x: (sympy.Rational(1, rnd.randint(1, 10**6)) if x in invset else
+            pts.append({x: (sympy.Rational(1, random.Random(f"{seed}/{i}/{_name(x)}")
+                                           .randint(1, 10**6)) if x in invset else
                             sympy.Rational(rnd.randint(1, 10**6), rnd.randint(1, 10**3)))
                         for x in order})
         yield pts[i]
@@ -530,6 +533,31 @@ def _cancels(a, b):
     return na * db == nb * da
 
 
+_POLY_VALUES: list = []     # [poly, variables it uses, {their values: value}], newest last
+_POLY_KEPT = 16
+
+
+def poly_value(p, x: list):
+    """``p(*x)`` for a python-flint polynomial, exactly; the value is kept per polynomial
+    (an equal polynomial counts as the same one) and per values of the variables it uses,
+    so the solver's shared polynomials (det A in vth and rth) are evaluated once a point."""
+    for entry in _POLY_VALUES:
+        q = entry[0]
+        if q is p or (len(q) == len(p) and q == p):
+            break
+    else:
+        used = tuple(k for k, d in enumerate(p.degrees()) if d > 0) if not p.is_zero() else ()
+        entry = [p, used, {}]
+        if len(_POLY_VALUES) >= _POLY_KEPT:
+            del _POLY_VALUES[0]
+        _POLY_VALUES.append(entry)
+    key = tuple(x[k] for k in entry[1])
+    got = entry[2].get(key)
+    if got is None:
+        got = entry[2][key] = p(*x)
+    return got
+
+
 class RatioCheck:
     """The solver's exact ratio (:class:`derive.solver.cramer.Ratio`) as the independent
     side of a check, evaluated in its own ring: at a point, every ring variable gets the
@@ -637,7 +665,7 @@ class RatioCheck:
             num = flint.fmpq(n.get((0,), 0)) if n else flint.fmpq(0)
             den = flint.fmpq(d.get((0,), 1)) if d else flint.fmpq(1)
         else:
-            num, den = self.ratio.num(*x), self.ratio.den(*x)
+            num, den = poly_value(self.ratio.num, x), poly_value(self.ratio.den, x)
         if den == 0:
             raise ZeroDivisionError("the ratio's denominator vanishes")
         return flint.fmpq(num) / flint.fmpq(den)

@@ -158,13 +158,22 @@ def product_identity_holds(lhs, factors, points: int = CHECK_POINTS, tries: int 
     ctx = lhs.num.context()
     nv = ctx.nvars()
     polys = [(lhs.num, lhs.den)] + [(f.num, f.den) for f in factors]
+    # a polynomial that occurs more than once (det A is the denominator of vth and rth) is
+    # evaluated once per point
+    flat = [p for pair in polys for p in pair]
+    first = []
+    for i, p in enumerate(flat):
+        first.append(next((j for j in range(i) if flat[j] is p or flat[j] == p), i))
     passed = 0
     for _ in range(tries):
         pt = [flint.fmpq(rnd.randint(1, _CHECK_RANGE)) for _ in range(nv)]
-        dens = [d(*pt) for _, d in polys]
+        vals = []
+        for i, p in enumerate(flat):
+            vals.append(vals[first[i]] if first[i] != i else p(*pt))
+        dens = vals[1::2]
         if any(d == 0 for d in dens):
             continue            # a denominator vanishes here: draw another point
-        nums = [n(*pt) for n, _ in polys]
+        nums = vals[0::2]
         left = nums[0] / dens[0]
         right = flint.fmpq(1)
         for n, d in zip(nums[1:], dens[1:]):
