@@ -49,7 +49,7 @@ def port_steps(ctx, req, out) -> list:
     # the solver's exact results, the independent side of the checks: evaluated in their
     # own ring at the check's points; their sympy form is built only where it is shown
     # (nodal steps) or a small check cancels it exactly
-    refs = {n: (RatioCheck(q.ratio) if q.ratio is not None else None)
+    refs = {n: (_reference(q.ratio) if q.ratio is not None else None)
             for n, q in out.quantities.items()}
     steps = []
     if req.quantity == "current":
@@ -337,6 +337,15 @@ def _nodal_port_steps(ctx, req, out, refs):
                               "the solver's short-circuit solution.", [eq, sc],
                               kind="result"))
     return steps
+
+
+def _reference(ratio):
+    """The solver's ratio as a check reference: evaluated in its ring, or (where a ring
+    variable stands for an expression that is not rational, a root) its sympy form."""
+    try:
+        return RatioCheck(ratio)
+    except NotRational:
+        return edge.to_sympy(ratio)
 
 
 def _sym(ref):
