@@ -55,11 +55,12 @@ def port_quantities(ctx, req) -> list:
         unit = gain_unit(ctx, req.source) if name == "gain" else quantities.unit(name)
         ratio = exact_ratio(ctx, req, name) if expandable(ctx) else None
         q = QuantityResult(name, None, None, unit, ratio=ratio)
+        readable = None
         if ratio is not None:
             q.value = edge.value_at(ratio, ctx.nominal)
             if ratio.terms() <= READABLE_TERMS:
-                q.expr = edge.to_sympy(ratio)
-        compact(ctx, req, q)
+                readable = ratio        # its sympy form, built only where it may be shown
+        compact(ctx, req, q, readable)
         if q.expr is None and ratio is not None and ratio.terms() <= LARGEST_EXPANDED:
             q.expr, q.form = edge.to_sympy(ratio), "expanded"
         if q.expr is None and not q.sequence:
@@ -187,17 +188,28 @@ def product_identity_holds(lhs, factors, points: int = CHECK_POINTS, tries: int 
                          f"with nonzero denominators found in {tries} draws")
 
 
-def compact(ctx, req, q):
-    """Attach the series-parallel or elimination-sequence form when it is better."""
+def compact(ctx, req, q, readable=None):
+    """Attach the series-parallel or elimination-sequence form when it is better.
+    ``readable``: a ratio whose expanded form is short enough to show; its sympy form is
+    built only when the nested form is not surely the shorter one."""
     from derive.forms import series_parallel as reduce
     from derive.forms import elimination as sequence
+    sp = reduce.port_form(ctx, req, q.name) if req.quantity != "current" else None
+    nested = None
+    if sp is not None:
+        defs, final = sp
+        nested = sequence.inline(defs, final) if _inline_size(defs, final) <= INLINE_LIMIT \
+            else None
+    shorter = None
+    if readable is not None:
+        if nested is not None and len(str(nested)) < edge.printed_length_at_least(readable):
+            shorter = True              # what the comparison below would find
+        else:
+            q.expr = edge.to_sympy(readable)
     if req.quantity != "current":
-        sp = reduce.port_form(ctx, req, q.name)
         if sp is not None:
-            defs, final = sp
-            nested = sequence.inline(defs, final) if _inline_size(defs, final) <= INLINE_LIMIT \
-                else None
-            if nested is not None and (q.expr is None or len(str(nested)) < len(str(q.expr))):
+            if nested is not None and (shorter or q.expr is None or
+                                       len(str(nested)) < len(str(q.expr))):
                 q.expr, q.form = nested, "series-parallel"
             elif q.expr is None:
                 q.form = "series-parallel"

@@ -118,6 +118,27 @@ def to_sympy(ratio) -> sympy.Expr:
     return e
 
 
+def printed_length_at_least(ratio) -> int:
+    """A lower bound of ``len(str(to_sympy(ratio)))`` without building the sympy form:
+    every term of every factor of the numerator and denominator prints the names of its
+    symbols, and the terms of a sum are separated by " + " or " - " (3 characters). 0 where
+    placeholders stand for compound values (their substitution may change the form)."""
+    num, den, _ctx, symbols, subs = to_symbols(ratio)
+    if subs:
+        return 0
+    names = [len(str(x)) for x in symbols]
+    total = 0
+    for p in (num, den):
+        if p.is_zero():
+            continue
+        factors = [p] if len(p) > 3000 else [f for f, _e in p.factor()[1]]
+        for f in factors:
+            total += 3 * (len(f) - 1)
+            for exps in f.monoms():
+                total += sum(n for n, e in zip(names, exps) if e)
+    return total
+
+
 _NOT_EXACT = object()   # var_values: some value is not a finite rational
 
 
