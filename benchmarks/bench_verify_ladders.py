@@ -1,31 +1,29 @@
 #!/usr/bin/env python
 """Whole-derivation timings and the share spent verifying steps, against a naive route.
 
-    python benchmarks/bench_verify.py [--quick] [--timeout S] [--json FILE]
+    python benchmarks/bench_verify_ladders.py [--repeat N] [--only CASES] [--timeout S] [--json FILE]
 
 Cases (every resistor symbolic, the circuits of bench_solver.py): ladders of 2..32 sections
 driven by a voltage source (``find thevenin at out``) and square grids of 3x3..6x6 nodes fed
-by a current source (``find resistance at out``). Each case runs in a fresh subprocess
-through the public API (``derive.derive_text``, timed with ``time.perf_counter``); inside it,
-the verification functions are wrapped (in this benchmark only) and their time summed,
-outermost calls only:
+by a current source (``find resistance at out``). Each case runs in fresh subprocesses (N of
+them, default 3; the fastest is kept, its verification time from the same run) through the
+public API (``derive.derive_text`` of the whole sheet -- parse, solve, forms, steps, every
+check -- timed with ``time.perf_counter`` and ``time.process_time``); inside it every
+function listed in ``VERIFY_FUNCTIONS`` (each check of a displayed equation or a result
+against an independent computation) is wrapped, in this benchmark only, and the time of the
+outermost calls is summed. A listed function that no longer exists stops the benchmark.
 
-  steps.Step.verify / steps.equal        every displayed equation
-  derivation_nodal._random_solve_agrees   exact solves of the nodal equations
-  derivation_nodal.Nodal.agrees_with_stamps, forms.cross_check, sensitivity.agree
-
-Printed per case: total time, verification time and its share, and the expected size of
-the expanded result. Targets, each printed as met / NOT met from this run's numbers:
+Printed per case: total time, verification time and share (wall-clock, then process cpu
+time of the same run), the forms chosen. Targets, each printed as met / NOT met from this
+run's numbers, once in wall-clock and once in cpu time (a loaded machine inflates the
+wall-clock times unevenly):
 
 1. verification <= half of the total on every case;
 2. total time monotone in size within each family (each case no faster than the one
    before it; a non-monotone step is listed);
-3. ladder 8 against a naive route measured in the same run: the KCL equations into
-   ``sympy.solve``, then ``sympy.cancel`` of the output voltage (vth only -- less than
-   derive does), ratio naive/derive >= 10x.
-
-Verification of step equations (steps.equal) is being rewritten elsewhere to evaluate in
-exact flint rationals; its time is reported here as measured.
+3. ladder 8 against a naive route measured in the same run (fastest of as many runs): the
+   KCL equations into ``sympy.solve``, then ``sympy.cancel`` of the output voltage (vth
+   only -- less than derive does), ratio naive/derive >= 10x.
 """
 from __future__ import annotations
 
