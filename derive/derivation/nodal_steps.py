@@ -28,7 +28,7 @@ import sympy
 from derive.forms import select as forms
 from derive.sheet import kinds
 from derive.forms.elimination import entry_expr
-from derive.derivation.steps import (ATTEMPTS, POINTS, Equation, Program, Step, random_point,
+from derive.derivation.steps import (ATTEMPTS, POINTS, Equation, Program, Step, draws,
                                      square_roots_away)
 
 MAX_CRAMER = 4        # unknowns up to which determinants are written out (symbolic
@@ -212,7 +212,7 @@ def stamped_rows(nodal) -> list:
     return out
 
 
-def _row_equations(nodal, items, offset) -> list:
+def check_rows(nodal, items, offset) -> list:
     """``lhs = rhs`` per KCL row / element law, each checked exactly against the
     corresponding row of the stamped system (``verified_by`` "system")."""
     rows = stamped_rows(nodal)
@@ -231,7 +231,7 @@ def _row_equations(nodal, items, offset) -> list:
 def equation_steps(nodal: Nodal) -> list:
     """KCL per node and the element laws, then the matrix form, every equation checked
     against the stamped system."""
-    eqs = _row_equations(nodal, nodal.kcl, 0)
+    eqs = check_rows(nodal, nodal.kcl, 0)
     text = ("Kirchhoff's current law at each node other than the reference node "
             f"{nodal.circuit.ground} (current leaving through elements = current driven in "
             "by sources), with node voltages " +
@@ -241,7 +241,7 @@ def equation_steps(nodal: Nodal) -> list:
                 table=[["node", "elements at the node"]] + rows)]
     if nodal.laws:
         out.append(Step("The element laws of the elements that carry an unknown current:",
-                        _row_equations(nodal, nodal.laws, len(nodal.kcl)),
+                        check_rows(nodal, nodal.laws, len(nodal.kcl)),
                         [n for *_, n in nodal.laws], kind="nodal"))
     x = sympy.Matrix(nodal.unknowns)
     eq = Equation(sympy.MatMul(nodal.A, x, evaluate=False), nodal.b)
@@ -287,7 +287,7 @@ def cramer_step(nodal: Nodal, name, form, b, expected, why: str, tag: str = "") 
         kd = _kernel_det(nodal, A)
         eq = Equation(nodal.det_sym, nodal.d0, check=kd)
         if kd is None:
-            ok, n = _det_check(A, nodal.d0)
+            ok, n = det_check(A, nodal.d0)
             eq.mark("points" if n is not None else "exact", ok, n)
         eqs.append(eq)
     det_sym, d0 = nodal.det_sym, nodal.d0
@@ -302,7 +302,7 @@ def cramer_step(nodal: Nodal, name, form, b, expected, why: str, tag: str = "") 
         defs[sym] = di
         sub[nodal.unknowns[i]] = sym / det_sym
         eq = Equation(sym, di)          # against det(Ai) of exact rational matrices
-        ok, n = _det_check(Ai, di)
+        ok, n = det_check(Ai, di)
         eq.mark("points" if n is not None else "exact", ok, n)
         eqs.append(eq)
     via = form.xreplace(sub)
@@ -331,12 +331,12 @@ def _kernel_det(nodal, A):
 
 def _draws(syms, seed, points):
     """Random rational points (bounded number of draws, see :mod:`derive.derivation.steps`)."""
-    rnd = random.Random(seed)
+    seq = draws(seed, syms)
     for _ in range(ATTEMPTS * points):
-        yield random_point(rnd, syms)
+        yield next(seq)
 
 
-def _det_check(M, d, points=POINTS) -> tuple:
+def det_check(M, d, points=POINTS) -> tuple:
     """(agrees, points used): ``d`` against python-flint's determinant of ``M`` evaluated
     at random rational points (exact ``fmpq`` arithmetic)."""
     try:

@@ -28,7 +28,8 @@ from derive.solver import convert as edge
 from derive.forms import select as forms
 from derive.forms import series_parallel as reduce
 from derive.derivation.nodal_steps import Nodal, cramer_step, equation_steps
-from derive.derivation.steps import Equation, NotRational, Program, Step, exact_value, fmpq_of, to_float, to_rational
+from derive.derivation.steps import (Equation, NotRational, Program, RatioCheck, Step,
+                                     exact_value, fmpq_of, to_float, to_rational)
 from derive.sheet.quantities import twin
 from derive.sheet.units import format_eng
 
@@ -45,7 +46,10 @@ class StepFailed(AssertionError):
 
 def port_steps(ctx, req, out) -> list:
     """The verified steps of a ``_basic`` request result ``out``."""
-    refs = {n: (edge.to_sympy(q.ratio) if q.ratio is not None else None)
+    # the solver's exact results, the independent side of the checks: evaluated in their
+    # own ring at the check's points; their sympy form is built only where it is shown
+    # (nodal steps) or a small check cancels it exactly
+    refs = {n: (_reference(q.ratio) if q.ratio is not None else None)
             for n, q in out.quantities.items()}
     steps = []
     if req.quantity == "current":
@@ -54,7 +58,7 @@ def port_steps(ctx, req, out) -> list:
         red = _reduction_steps(ctx, req, out, refs)
         steps += red if red is not None else _nodal_port_steps(ctx, req, out, refs)
         if req.quantity in ("thevenin", "norton"):
-            steps += _cross_check(ctx, req)
+            steps += cross_check_step(ctx, req)
     for q in out.quantities.values():
         steps.append(_value_step(ctx, req, q))
     failed = [st for st in steps if not st.verify()]
@@ -66,7 +70,7 @@ def port_steps(ctx, req, out) -> list:
     return steps
 
 
-def _check(ctx, req, eq: Equation, ref, nodal_form=None):
+def check_result(ctx, req, eq: Equation, ref, nodal_form=None):
     """Verify ``eq.rhs`` against the solver's exact result ``ref`` (or, where the result was
     not expanded, an exact solve of the nodal equations at random rational points)."""
     if ref is not None:
@@ -146,11 +150,11 @@ def _reduction_steps(ctx, req, out, refs):
         base = bases[n]
         rhs = {"vth": E, "gain": E, "rth": Z}.get(base, E / Z if Z != 0 else None)
         eq = Equation(sympy.Symbol(n), rhs, defs=dict(defs))
-        eqs.append(_check(ctx, req, eq, refs[n], (None if refs[n] is not None
+        eqs.append(check_result(ctx, req, eq, refs[n], (None if refs[n] is not None
                                                   else _nodal_forms(ctx, req, base))))
         if q.expr is not None and (q.expr != rhs):
             e2 = Equation(sympy.Symbol(n), q.expr)
-            eqs.append(_check(ctx, req, e2, refs[n], (None if refs[n] is not None
+            eqs.append(check_result(ctx, req, e2, refs[n], (None if refs[n] is not None
                                                       else _nodal_forms(ctx, req, base))))
     what = (f"The port {req.port} now sees a single branch from {plus} to {minus}: its "
             "open-circuit voltage and its impedance are the results" if need_src else
@@ -316,7 +320,7 @@ def _nodal_port_steps(ctx, req, out, refs):
     for n in names:
         base = twin(n)
         q = out.quantities.get(n)
-        ref = (refs.get(n) if refs.get(n) is not None else _ref(q)) if q is not None \
+        ref = (_sym(refs.get(n)) if refs.get(n) is not None else _ref(q)) if q is not None \
             else _exact(ctx, req, n)
         if base in ("vth", "gain", "rth"):
             form, b = _nodal_forms(ctx, req, base)
@@ -346,6 +350,20 @@ def _nodal_port_steps(ctx, req, out, refs):
     return steps
 
 
+def _reference(ratio):
+    """The solver's ratio as a check reference: evaluated in its ring, or (where a ring
+    variable stands for an expression that is not rational, a root) its sympy form."""
+    try:
+        return RatioCheck(ratio)
+    except NotRational:
+        return edge.to_sympy(ratio)
+
+
+def _sym(ref):
+    """A check reference as the sympy expression that a nodal step shows."""
+    return ref.expr() if isinstance(ref, RatioCheck) else ref
+
+
 def _ref(q):
     """The closed form of a result, or (sequence, result) where only a sequence exists."""
     return q.expr if q.expr is not None else (list(q.sequence), q.in_sequence)
@@ -359,11 +377,11 @@ def _current_steps(ctx, req, out, refs):
     nodal = _nodal(ctx, begin=True)
     e = ctx.circuit.element(req.element)
     q = out.quantities["current"]
-    ref = refs["current"] if refs["current"] is not None else _ref(q)
+    ref = _sym(refs["current"]) if refs["current"] is not None else _ref(q)
     form = nodal.current(e.name).xreplace(nodal.src_values)
     ends = f"from {e.nodes[0]} to {e.nodes[1]}" if e.kind != "nullor" else ""
     cur = Equation(sympy.Symbol("current"), form)
-    cur.mark("system", _through_agrees(nodal, e.name, form))
+    cur.mark("system", through_agrees(nodal, e.name, form))
     steps = [Step(f"Current through {e.name} in its reference direction ({ends}), in terms "
                   "of the nodal unknowns:", [cur], [e.name], kind="port")]
     steps += equation_steps(nodal)
@@ -372,7 +390,7 @@ def _current_steps(ctx, req, out, refs):
     return steps
 
 
-def _through_agrees(nodal, name, form) -> bool:
+def through_agrees(nodal, name, form) -> bool:
     """The element's current in the unknowns equals the stamped system's own linear form
     of that current (:meth:`derive.solver.stamping.System.through`)."""
     from derive.forms.elimination import entry_expr
@@ -394,15 +412,30 @@ def _zero_poly(p) -> bool:
 
 
 # ------------------------------------------------------------------ checks, values
-def _cross_check(ctx, req):
+def cross_check_step(ctx, req):
+    """The step ``vth = isc·rth``: the solver's three exact ratios (vth and rth as reported,
+    isc from its own bordered determinants) evaluated exactly at random points
+    (:func:`derive.forms.select.product_identity_holds`, never multiplied out; the outcome
+    of :func:`derive.forms.select.cross_check` on the same ratios where it ran)."""
     if not forms.expandable(ctx):
         return []
     r = forms.exact_ratio(ctx, req, "rth")
     if r.is_zero:
         return []
-    v, i, z = (_exact(ctx, req, n) for n in ("vth", "isc", "rth"))
+    v, i = (forms.exact_ratio(ctx, req, n) for n in ("vth", "isc"))
     V, I, R = (sympy.Symbol(n) for n in ("vth", "isc", "rth"))
-    eq = Equation(V, I * R, check=V, defs={V: v, I: i, R: z})
+    eq = Equation(V, I * R)
+    # the same identity of the same three ratios was decided by forms.cross_check when
+    # the results were computed (it raises when it fails); its outcome is reused
+    n = ctx.cache.get(("vth = isc*rth holds", req.port))
+    if n is None:
+        try:
+            ok, n = forms.product_identity_holds(v, [i, r]), forms.CHECK_POINTS
+        except Exception:           # no usable point, or an error: not verified
+            ok = False
+    else:
+        ok = True
+    eq.mark("points", ok, n)
     return [Step("Cross-check: the open-circuit voltage equals the short-circuit current "
                  "times the resistance seen into the port (each found independently).",
                  [eq], kind="check")]
@@ -461,6 +494,15 @@ def _nodal_value(ctx, req, name, nominal):
         return None
 
 
+def independent_value(ctx, req, q, nominal):
+    """(value, method): ``q`` at nominal values independently of its displayed form -- the
+    solver's ratio there (``"exact"``), else an exact nodal solve there (``"system"``)."""
+    indep = _ratio_value(q.ratio, nominal)
+    if indep is not None:
+        return indep, "exact"
+    return _nodal_value(ctx, req, q.name, nominal), "system"
+
+
 def _value_step(ctx, req, q) -> Step:
     nominal = ctx.nominal
     used = set(q.expr.free_symbols) if q.expr is not None else set()
@@ -490,9 +532,7 @@ def _value_step(ctx, req, q) -> Step:
     q.value = to_float(exact)
     shown = format_eng(q.value, q.unit)
     # an independent exact value: the solver's ratio, else an exact nodal solve at nominal
-    indep, method = _ratio_value(q.ratio, nominal), "exact"
-    if indep is None:
-        indep, method = _nodal_value(ctx, req, q.name, nominal), "system"
+    indep, method = independent_value(ctx, req, q, nominal)
     if indep is not None and indep != exact:
         raise StepFailed(f"value of {q.name} at nominal values disagrees with an independent "
                          f"exact computation ({exact} against {indep})")
@@ -520,7 +560,7 @@ def power_steps(ctx, req, out) -> list:
     v_form = nodal.v(a) - nodal.v(b)
     i_form = nodal.current(e.name).xreplace(nodal.src_values)
     cur = Equation(sympy.Symbol(f"i_{e.name}"), i_form)
-    cur.mark("system", _through_agrees(nodal, e.name, i_form))
+    cur.mark("system", through_agrees(nodal, e.name, i_form))
     volt = Equation(sympy.Symbol(f"v_{e.name}"), v_form, definition=True)
     p = sympy.Symbol("power")
     steps = [Step(f"Power absorbed by {e.name} (passive sign convention: positive when "

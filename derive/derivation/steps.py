@@ -375,6 +375,48 @@ def random_point(rnd: random.Random, syms) -> dict:
             for x in sorted(syms, key=str)}
 
 
+def _name(x) -> str:
+    """``str(x)`` of a symbol without the printer (a Dummy prints with a leading ``_``)."""
+    if isinstance(x, sympy.Dummy):
+        return "_" + x.name
+    if isinstance(x, sympy.Symbol):
+        return x.name
+    return str(x)
+
+
+_DRAWS: dict = {}           # (seed, names, inverse names) -> points drawn so far
+_DRAWS_KEPT = 256
+
+
+def draws(seed: int, syms, inverse=()):
+    """The repeatable sequence of random points of ``random.Random(seed)`` over ``syms``:
+    :func:`random_point` at every draw, except that symbols in ``inverse`` get ``1/n`` (n
+    in 1..10^6, drawn from the seed, the draw's index and the symbol's name alone, so two
+    checks over different symbol sets share these values: a polynomial of the solver, det A
+    say, is then evaluated once per point for all of them). The points are drawn once per (seed, symbols) and shared by every check
+    that asks for the same sequence (each check at the same points: one draw, one
+    conversion; the values are the same as drawing afresh)."""
+    order = sorted(syms, key=_name)
+    inv = tuple(sorted((_name(x) for x in inverse if x in syms)))
+    key = (seed, tuple(_name(x) for x in order), inv)
+    got = _DRAWS.get(key)
+    if got is None:
+        if len(_DRAWS) >= _DRAWS_KEPT:
+            _DRAWS.clear()
+        got = _DRAWS[key] = ([], random.Random(seed))
+    pts, rnd = got
+    invset = set(inverse)
+    i = 0
+    while True:
+        if i == len(pts):
+            pts.append({x: (sympy.Rational(1, random.Random(f"{seed}/{i}/{_name(x)}")
+                                           .randint(1, 10**6)) if x in invset else
+                            sympy.Rational(rnd.randint(1, 10**6), rnd.randint(1, 10**3)))
+                        for x in order})
+        yield pts[i]
+        i += 1
+
+
 def _free(a, b, defs) -> set:
     syms = set(a.free_symbols) | set(b.free_symbols)
     for v in defs.values():
@@ -424,6 +466,306 @@ def _algebraic_zero(d) -> bool:
     return False
 
 
+def count_ops_capped(e, limit: int) -> int:
+    """``min(sympy.count_ops(e), limit)``, without walking more of ``e`` than needed.
+
+    The same counting rules as :func:`sympy.count_ops` (sympy 1.x: NEG, DIV, SUB, ADD, MUL,
+    POW; the running count never decreases, so the walk stops once ``limit`` is reached);
+    anything but numbers, symbols, sums, products and powers is counted by
+    :func:`sympy.count_ops` itself.
+
+    >>> x, y = sympy.symbols('x y')
+    >>> e = (x - y) / (x + 2*y) ** 2 - 1 / x
+    >>> count_ops_capped(e, 400) == sympy.count_ops(e), count_ops_capped(e, 3)
+    (True, 3)
+    """
+    if not isinstance(e, sympy.Expr) or e.is_Relational:
+        return min(int(sympy.count_ops(e)), limit)
+    from sympy.core.function import _coeff_isneg
+    one, m1 = sympy.S.One, sympy.S.NegativeOne
+    total = 0
+    args = [e]
+    while args:
+        if total >= limit:
+            return limit
+        a = args.pop()
+        if a.is_Rational:
+            if a is not one:
+                total += int(a.p < 0) + int(a.q != 1)
+                continue
+        elif a.is_Mul:
+            if _coeff_isneg(a):
+                total += 1
+                a = a.as_two_terms()[1] if a.args[0] is m1 else -a
+            n, d = sympy.fraction(a)
+            if n.is_Integer:
+                total += 1 + bool(n < 0)
+                args.append(d)
+                continue
+            elif d is not one:
+                if not d.is_Integer:
+                    args.append(d)
+                total += 1
+                args.append(n)
+                continue
+        elif a.is_Add:
+            aargs = a.args
+            total += len(aargs) - 1
+            if total >= limit:
+                return limit
+            negs = 0
+            for ai in aargs:
+                if _coeff_isneg(ai):
+                    negs += 1
+                    args.append(-ai)
+                else:
+                    args.append(ai)
+            if negs == len(aargs):
+                total += 1
+            continue
+        if a.is_Pow and a.exp is m1:
+            total += 1
+            args.append(a.base)
+            continue
+        if a is sympy.E or (a.is_Pow and a.base is sympy.E):
+            return min(int(sympy.count_ops(e)), limit)
+        if a.is_Mul:
+            total += len(a.args) - 1
+        elif a.is_Pow:
+            total += 1
+        elif a.args and not a.is_Symbol:
+            return min(int(sympy.count_ops(e)), limit)   # functions etc.: sympy's own rules
+        if not a.is_Symbol:
+            args.extend(a.args)
+    return min(total, limit)
+
+
+class TooLarge(Exception):
+    """Exact cancellation would need polynomials beyond :data:`CANCEL_TERMS` terms."""
+
+
+CANCEL_TERMS = 20000    # terms of a polynomial in the exact cancellation, at most
+
+
+def _reduced(n, d):
+    g = n.gcd(d)
+    if not g.is_one() and not g.is_zero():
+        n, d = n / g, d / g
+    if len(n) > CANCEL_TERMS or len(d) > CANCEL_TERMS:
+        raise TooLarge
+    return n, d
+
+
+def _rational_function(prog: "Program", k: int, ring=None):
+    """Root ``k`` of ``prog`` as an exact rational function ``(num, den)`` of python-flint
+    ``fmpq_mpoly`` in the program's input symbols, cancelled after every operation;
+    ZeroDivisionError where a denominator is the zero polynomial, :class:`TooLarge` where
+    a polynomial exceeds :data:`CANCEL_TERMS` terms. ``ring`` = (context, {Symbol: index
+    of its generator}) computes in a given ring (KeyError for a symbol not in it)."""
+    if ring is None:
+        names = sorted(prog.inputs, key=str)
+        where = {x: i for i, x in enumerate(names)}
+        ctx = flint.fmpq_mpoly_ctx.get(tuple(f"x{i}" for i in range(max(1, len(names)))),
+                                       "lex")
+    else:
+        ctx, where = ring
+    gens = ctx.gens()
+    one = ctx.constant(1)
+    vals = [None] * len(prog.ops)
+    for i, op in enumerate(prog.ops):
+        kind = op[0]
+        if kind == "in":
+            vals[i] = (gens[where[op[1]]], one)
+        elif kind == "const":
+            vals[i] = (ctx.constant(op[1]), one)
+        elif kind == "add":
+            n, d = vals[op[1][0]]
+            for j in op[1][1:]:
+                n2, d2 = vals[j]
+                if d2 == d:
+                    n = n + n2
+                elif d2.is_one():
+                    n = n + n2 * d
+                elif d.is_one():
+                    n, d = n * d2 + n2, d2
+                else:
+                    g = d.gcd(d2)
+                    a, b = d / g, d2 / g
+                    n, d = n * b + n2 * a, a * d2
+            vals[i] = _reduced(n, d)
+        elif kind == "mul":
+            n, d = vals[op[1][0]]
+            for j in op[1][1:]:
+                n2, d2 = vals[j]
+                n, d = n * n2, d * d2
+            vals[i] = _reduced(n, d)
+        else:
+            (n, d), k2 = vals[op[1]], op[2]
+            if k2 < 0:
+                if n.is_zero():
+                    raise ZeroDivisionError("power of zero with a negative exponent")
+                n, d, k2 = d, n, -k2
+            vals[i] = _reduced(n ** k2, d ** k2)
+    n, d = vals[prog.out[k]]
+    if d.is_zero():
+        raise ZeroDivisionError("a denominator is identically zero")
+    return n, d
+
+
+def _cancels(a, b):
+    """Whether ``a - b`` cancels to zero as a rational function: True, False, or None where
+    it cannot be decided this way (not rational functions, a denominator identically zero).
+    Exact polynomial arithmetic in python-flint (the cross-multiplied numerators compared),
+    in place of ``sympy.cancel(sympy.together(a - b)) == 0`` (the same answer, far faster;
+    sympy leaves e.g. ``-9/4 + 9/4`` uncancelled). :class:`TooLarge` where the polynomials
+    grow beyond :data:`CANCEL_TERMS` terms."""
+    try:
+        prog = Program([a, b])
+        na, da = _rational_function(prog, 0)
+        nb, db = _rational_function(prog, 1)
+    except (NotRational, ZeroDivisionError):
+        return None
+    return na * db == nb * da
+
+
+_POLY_VALUES: list = []     # [poly, variables it uses, {their values: value}], newest last
+_POLY_KEPT = 16
+
+
+def poly_value(p, x: list):
+    """``p(*x)`` for a python-flint polynomial, exactly; the value is kept per polynomial
+    (an equal polynomial counts as the same one) and per values of the variables it uses,
+    so the solver's shared polynomials (det A in vth and rth) are evaluated once a point."""
+    for entry in _POLY_VALUES:
+        q = entry[0]
+        if q is p or (len(q) == len(p) and q == p):
+            break
+    else:
+        used = tuple(k for k, d in enumerate(p.degrees()) if d > 0) if not p.is_zero() else ()
+        entry = [p, used, {}]
+        if len(_POLY_VALUES) >= _POLY_KEPT:
+            del _POLY_VALUES[0]
+        _POLY_VALUES.append(entry)
+    key = tuple(x[k] for k in entry[1])
+    got = entry[2].get(key)
+    if got is None:
+        got = entry[2][key] = p(*x)
+    return got
+
+
+class RatioCheck:
+    """The solver's exact ratio (:class:`derive.solver.cramer.Ratio`) as the independent
+    side of a check, evaluated in its own ring: at a point, every ring variable gets the
+    value of its expression (``1/R`` for a conductance variable) and the ratio's numerator
+    and denominator are evaluated exactly (python-flint). Its sympy form
+    (:func:`derive.solver.convert.to_sympy`) is built only where a check needs it (the
+    exact route of :func:`compare` on small expressions)."""
+
+    def __init__(self, ratio):
+        from derive.solver import convert
+        self.ratio = ratio
+        self._expr = None
+        self._form = None
+        self._used = convert.used_vars(ratio)
+        vs = ratio.system.vars
+        self._prog = Program([vs[k].expr for k in self._used])
+        self._recip = [vs[k].kind == "recip" for k in self._used]
+        # symbols that stand alone behind a conductance variable (1/R): drawn as 1/n, so
+        # the ring is evaluated at integers (ten times faster than at fractions)
+        self._inverse = {vs[k].expr for k in self._used
+                         if vs[k].kind == "recip" and vs[k].expr.is_Symbol}
+        self._inverse -= {vs[k].expr for k in self._used if vs[k].kind != "recip"}
+        self.inverse = frozenset(self._inverse)
+        self._values: dict = {}
+
+    def _symbols_form(self):
+        if self._form is None:
+            from derive.solver import convert
+            self._form = convert.to_symbols(self.ratio)
+        return self._form
+
+    def cancels_with(self, a):
+        """Whether ``a`` equals the ratio as a rational function, decided exactly in the
+        ratio's own polynomial ring in the circuit symbols (cross-multiplied); None where
+        that cannot decide (placeholders, symbols outside the ring, not rational)."""
+        num, den, ctx, syms, subs = self._symbols_form()
+        if subs or len(set(map(str, syms))) != len(syms):
+            return None
+        try:
+            na, da = _rational_function(Program([a]), 0,
+                                        (ctx, {x: i for i, x in enumerate(syms)}))
+        except (NotRational, ZeroDivisionError, KeyError):
+            return None
+        return na * den == num * da
+
+    def expr(self):
+        if self._expr is None:
+            from derive.solver import convert
+            self._expr = convert.to_sympy(self.ratio)
+        return self._expr
+
+    def symbols(self) -> set:
+        return self._prog.symbols()
+
+    def ops_at_least(self, limit: int) -> bool:
+        """Whether the sympy form surely has at least ``limit`` operations (count_ops): a
+        lower bound from the factors of numerator and denominator (each factor a sum of
+        its terms: terms - 1 additions), without building the sympy form."""
+        if self._expr is not None:
+            return count_ops_capped(self._expr, limit) >= limit
+        num, den, _ctx, _syms, subs = self._symbols_form()
+        if subs:                        # placeholders substituted back: sympy decides
+            return count_ops_capped(self.expr(), limit) >= limit
+        bound = 0
+        for p in (num, den):
+            if p.is_zero():
+                continue
+            if len(p) > 3000:
+                bound += len(p) - 1
+                continue
+            _c, factors = p.factor()
+            bound += sum(len(f) - 1 for f, _e in factors)
+        return bound >= limit
+
+    def at(self, point: dict):
+        """The ratio's exact value at ``point`` (Symbol -> rational) as ``fmpq``;
+        ZeroDivisionError where it is undefined (values cached per point)."""
+        key = tuple(sorted(((str(k), v) for k, v in point.items()
+                            if k in self._prog.inputs), key=lambda kv: kv[0]))
+        if key in self._values:
+            got = self._values[key]
+            if got is None:
+                raise ZeroDivisionError("the ratio is undefined at this point")
+            return got
+        try:
+            got = self._at(point)
+        except ZeroDivisionError:
+            self._values[key] = None
+            raise
+        self._values[key] = got
+        return got
+
+    def _at(self, point: dict):
+        vals = self._prog.run(point)
+        nv = len(self.ratio.system.vars)
+        x = [flint.fmpq(0)] * nv
+        for k, v, r in zip(self._used, vals, self._recip):
+            if r:
+                if v == 0:
+                    raise ZeroDivisionError("a conductance of an infinite value")
+                v = 1 / v
+            x[k] = v
+        if nv == 0:
+            n, d = self.ratio.num.to_dict(), self.ratio.den.to_dict()
+            num = flint.fmpq(n.get((0,), 0)) if n else flint.fmpq(0)
+            den = flint.fmpq(d.get((0,), 1)) if d else flint.fmpq(1)
+        else:
+            num, den = poly_value(self.ratio.num, x), poly_value(self.ratio.den, x)
+        if den == 0:
+            raise ZeroDivisionError("the ratio's denominator vanishes")
+        return flint.fmpq(num) / flint.fmpq(den)
+
+
 def compare(a, b, defs: dict | None = None, points: int = POINTS,
             seed: int = 20261202) -> tuple:
     """(method, equal, points used) for the claim that ``a`` and ``b`` are the same function.
@@ -436,35 +778,69 @@ def compare(a, b, defs: dict | None = None, points: int = POINTS,
     Expressions with roots are evaluated by exact sympy substitution instead of flint.
     """
     defs = defs or {}
-    if not defs and sympy.count_ops(a) + sympy.count_ops(b) < EXACT_OPS:
+    ref = b_ref = b if isinstance(b, RatioCheck) else None
+    if not defs:
+        ca = count_ops_capped(a, EXACT_OPS)
+        small = ca < EXACT_OPS
+        if small and ref is not None:
+            small = not ref.ops_at_least(EXACT_OPS - ca)
+            if small:
+                try:
+                    zero = ref.cancels_with(a)
+                except TooLarge:
+                    zero = None
+                if zero is not None:
+                    return "exact", zero, None
+                b, ref = ref.expr(), None
+        elif small:
+            small = ca + count_ops_capped(b, EXACT_OPS - ca) < EXACT_OPS
+    else:
+        small = False
+    if small:
         try:
-            zero = sympy.cancel(sympy.together(a - b)) == 0
-        except Exception:
-            zero = None
+            zero = _cancels(a, b)
+        except TooLarge:          # too large to cancel: decided at random points
+            zero = "large"
+        if zero is None:
+            try:
+                zero = sympy.cancel(sympy.together(a - b)) == 0
+            except Exception:
+                zero = None
         if zero:
             return "exact", True, None
         if zero is False and _is_rational_function(a) and _is_rational_function(b):
             return "exact", False, None
-    syms = _free(a, b, defs)
-    try:
-        prog = Program([a, b], defs)
-        run = lambda pt: prog.run(pt)
-        same = lambda va, vb: va == vb
-    except NotRational:
-        run = lambda pt: _sympy_point([a, b], defs, pt)
-        same = lambda va, vb: _algebraic_zero(va - vb)
+        if zero == "large" and ref is None and isinstance(b_ref, RatioCheck):
+            b, ref = b_ref, b_ref
+    if ref is not None:
+        try:
+            prog = Program([a], defs)
+            syms = (prog.symbols() | ref.symbols()) - set(defs)
+            run = lambda pt: [prog.run(pt)[0], ref.at(pt)]
+            same = lambda va, vb: va == vb
+        except NotRational:
+            b, ref = ref.expr(), None
+    if ref is None:
+        syms = _free(a, b, defs)
+        try:
+            prog = Program([a, b], defs)
+            run = lambda pt: prog.run(pt)
+            same = lambda va, vb: va == vb
+        except NotRational:
+            run = lambda pt: _sympy_point([a, b], defs, pt)
+            same = lambda va, vb: _algebraic_zero(va - vb)
     if not syms:
         try:
             va, vb = run({})
         except ZeroDivisionError:
             return "exact", False, None
         return "exact", bool(same(va, vb)), None
-    rnd = random.Random(seed)
+    seq = draws(seed, syms, ref.inverse if ref is not None else ())
     used = 0
     for _ in range(ATTEMPTS * points):
         if used == points:
             break
-        pt = random_point(rnd, syms)
+        pt = next(seq)
         try:
             va, vb = run(pt)
         except ZeroDivisionError:

@@ -212,8 +212,10 @@ def _bad(v) -> bool:
 
 
 def inline(seq, final):
-    """The sequence substituted back into one expression (for short sequences)."""
-    e = final
-    for s, x in reversed(seq):
-        e = e.xreplace({s: x})
-    return e
+    """The sequence substituted back into one expression (for short sequences): each
+    intermediate built once from the ones before it (one pass, not one walk of the growing
+    expression per name)."""
+    env = {}
+    for s, x in seq:
+        env[s] = x.xreplace(env) if env else x
+    return final.xreplace(env) if env else final

@@ -57,11 +57,12 @@ def port_quantities(ctx, req) -> list:
         unit = gain_unit(ctx, req.source) if name == "gain" else quantities.unit(name)
         ratio = exact_ratio(ctx, req, name) if expandable(ctx) else None
         q = QuantityResult(name, None, None, unit, ratio=ratio)
+        readable = None
         if ratio is not None:
             q.value = edge.value_at(ratio, ctx.nominal)
             if ratio.terms() <= READABLE_TERMS:
-                q.expr = edge.to_sympy(ratio)
-        compact(ctx, req, q)
+                readable = ratio        # its sympy form, built only where it may be shown
+        compact(ctx, req, q, readable)
         if q.expr is None and ratio is not None and ratio.terms() <= LARGEST_EXPANDED:
             q.expr, q.form = edge.to_sympy(ratio), "expanded"
         if q.expr is None and not q.sequence:
@@ -153,6 +154,7 @@ def cross_check(ctx, req):
     vth = exact_ratio(ctx, req, "vth")
     if isc is None or not product_identity_holds(vth, [isc, rth]):
         raise AssertionError(f"internal check failed: vth != isc*rth at port {req.port}")
+    ctx.cache[("vth = isc*rth holds", req.port)] = CHECK_POINTS    # points it passed at
     return True
 
 
@@ -191,13 +193,22 @@ def product_identity_holds(lhs, factors, points: int = CHECK_POINTS, tries: int 
     ctx = lhs.num.context()
     nv = ctx.nvars()
     polys = [(lhs.num, lhs.den)] + [(f.num, f.den) for f in factors]
+    # a polynomial that occurs more than once (det A is the denominator of vth and rth) is
+    # evaluated once per point
+    flat = [p for pair in polys for p in pair]
+    first = []
+    for i, p in enumerate(flat):
+        first.append(next((j for j in range(i) if flat[j] is p or flat[j] == p), i))
     passed = 0
     for _ in range(tries):
         pt = [flint.fmpq(rnd.randint(1, _CHECK_RANGE)) for _ in range(nv)]
-        dens = [d(*pt) for _, d in polys]
+        vals = []
+        for i, p in enumerate(flat):
+            vals.append(vals[first[i]] if first[i] != i else p(*pt))
+        dens = vals[1::2]
         if any(d == 0 for d in dens):
             continue            # a denominator vanishes here: draw another point
-        nums = [n(*pt) for n, _ in polys]
+        nums = vals[0::2]
         left = nums[0] / dens[0]
         right = flint.fmpq(1)
         for n, d in zip(nums[1:], dens[1:]):
@@ -211,17 +222,28 @@ def product_identity_holds(lhs, factors, points: int = CHECK_POINTS, tries: int 
                          f"with nonzero denominators found in {tries} draws")
 
 
-def compact(ctx, req, q):
-    """Attach the series-parallel or elimination-sequence form when it is better."""
+def compact(ctx, req, q, readable=None):
+    """Attach the series-parallel or elimination-sequence form when it is better.
+    ``readable``: a ratio whose expanded form is short enough to show; its sympy form is
+    built only when the nested form is not surely the shorter one."""
     from derive.forms import series_parallel as reduce
     from derive.forms import elimination as sequence
+    sp = reduce.port_form(ctx, req, q.name) if req.quantity != "current" else None
+    nested = None
+    if sp is not None:
+        defs, final = sp
+        nested = sequence.inline(defs, final) if _inline_size(defs, final) <= INLINE_LIMIT \
+            else None
+    shorter = None
+    if readable is not None:
+        if nested is not None and len(str(nested)) < edge.printed_length_at_least(readable):
+            shorter = True              # what the comparison below would find
+        else:
+            q.expr = edge.to_sympy(readable)
     if req.quantity != "current":
-        sp = reduce.port_form(ctx, req, q.name)
         if sp is not None:
-            defs, final = sp
-            nested = sequence.inline(defs, final) if _inline_size(defs, final) <= INLINE_LIMIT \
-                else None
-            if nested is not None and (q.expr is None or len(str(nested)) < len(str(q.expr))):
+            if nested is not None and (shorter or q.expr is None or
+                                       len(str(nested)) < len(str(q.expr))):
                 q.expr, q.form = nested, "series-parallel"
             elif q.expr is None:
                 q.form = "series-parallel"

@@ -118,6 +118,27 @@ def to_sympy(ratio) -> sympy.Expr:
     return e
 
 
+def printed_length_at_least(ratio) -> int:
+    """A lower bound of ``len(str(to_sympy(ratio)))`` without building the sympy form:
+    every term of every factor of the numerator and denominator prints the names of its
+    symbols, and the terms of a sum are separated by " + " or " - " (3 characters). 0 where
+    placeholders stand for compound values (their substitution may change the form)."""
+    num, den, _ctx, symbols, subs = to_symbols(ratio)
+    if subs:
+        return 0
+    names = [len(str(x)) for x in symbols]
+    total = 0
+    for p in (num, den):
+        if p.is_zero():
+            continue
+        factors = [p] if len(p) > 3000 else [f for f, _e in p.factor()[1]]
+        for f in factors:
+            total += 3 * (len(f) - 1)
+            for exps in f.monoms():
+                total += sum(n for n, e in zip(names, exps) if e)
+    return total
+
+
 _NOT_EXACT = object()   # var_values: some value is not a finite rational
 
 
@@ -152,12 +173,15 @@ def var_values(system, nominal: dict):
 def used_vars(ratio) -> list:
     """Indices of the ring variables that occur in the (cancelled) ratio."""
     nv = len(ratio.system.vars)
+    if not nv:
+        return []
     used = [False] * nv
     for p in (ratio.num, ratio.den):
-        for exps in p.to_dict():
-            for k in range(nv):
-                if exps[k]:
-                    used[k] = True
+        if p.is_zero():
+            continue
+        for k, d in enumerate(p.degrees()):     # flint: the degree in each variable
+            if d > 0:
+                used[k] = True
     return [k for k in range(nv) if used[k]]
 
 
