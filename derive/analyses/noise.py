@@ -19,7 +19,7 @@ from flint import fmpq_poly
 
 from derive.derivation.nodal_steps import random_solve_check
 from derive.derivation.noise_steps import density_step, nodal_of, source_steps
-from derive.derivation.port_steps import StepFailed
+from derive.derivation.port_steps import require_verified
 from derive.derivation.steps import Equation, Figure, Step
 from derive.errors import SheetError
 from derive.forms import band as bands
@@ -276,11 +276,6 @@ def answer(ctx, req) -> RequestResult:
     if model.noiseless:
         out.notes.append("taken as noiseless: " + ", ".join(n for n, _ in model.noiseless))
     out.extra["noise"] = noise
-    failed = [st for st in steps if not st.verify()]
-    if failed:
-        st = failed[0]
-        bad = [e for e in st.equations if not e.verified]
-        raise StepFailed(f"internal check failed in the derivation of {req.text!r}: "
-                         f"{st.text} ({bad[0].lhs} = {bad[0].rhs})", steps)
+    require_verified(steps, req)
     out.steps = steps
     return out

@@ -44,6 +44,18 @@ class StepFailed(AssertionError):
         self.steps = list(steps or [])
 
 
+def require_verified(steps: list, req) -> None:
+    """Verify every step; the first one that fails stops the request with its equation
+    (an internal error: a derived result disagreed with its independent check)."""
+    failed = [st for st in steps if not st.verify()]
+    if failed:
+        st = failed[0]
+        bad = [e for e in st.equations if not e.verified]
+        where = f" ({bad[0].lhs} = {bad[0].rhs})" if bad else ""
+        raise StepFailed(f"internal check failed in the derivation of {req.text!r}: "
+                         f"{st.text}{where}", steps)
+
+
 def port_steps(ctx, req, out) -> list:
     """The verified steps of a ``_basic`` request result ``out``."""
     # the solver's exact results, the independent side of the checks: evaluated in their
@@ -61,12 +73,7 @@ def port_steps(ctx, req, out) -> list:
             steps += cross_check_step(ctx, req)
     for q in out.quantities.values():
         steps.append(_value_step(ctx, req, q))
-    failed = [st for st in steps if not st.verify()]
-    if failed:
-        st = failed[0]
-        bad = [e for e in st.equations if not e.verified]
-        raise StepFailed(f"internal check failed in the derivation of {req.text!r}: "
-                         f"{st.text} ({bad[0].lhs} = {bad[0].rhs})", steps)
+    require_verified(steps, req)
     return steps
 
 
@@ -590,11 +597,6 @@ def power_steps(ctx, req, out) -> list:
                           "holds at DC (s = 0: capacitors open, inductors shorted).",
                           kind="power"))
     steps.append(_value_step(ctx, req, q))
-    failed = [st for st in steps if not st.verify()]
-    if failed:
-        st = failed[0]
-        bad = [x for x in st.equations if not x.verified]
-        raise StepFailed(f"internal check failed in the derivation of {req.text!r}: "
-                         f"{st.text} ({bad[0].lhs} = {bad[0].rhs})", steps)
+    require_verified(steps, req)
     return steps
 
