@@ -336,6 +336,24 @@ def _draws(syms, seed, points):
         yield next(seq)
 
 
+def _sampled(syms, seed: int, points: int, agrees) -> tuple:
+    """(agrees, points used) of ``agrees(point)`` at random rational points: a point where
+    it divides by zero is redrawn (a bounded number of times), one disagreement fails, and
+    with no usable point the check fails; without symbols one evaluation decides."""
+    used = 0
+    for pt in _draws(syms, seed, points):
+        try:
+            ok = agrees(pt)
+        except ZeroDivisionError:
+            continue
+        if not ok:
+            return False, None
+        used += 1
+        if used == points or not syms:
+            break
+    return used > 0, (used if syms else None)
+
+
 def det_check(M, d, points=POINTS) -> tuple:
     """(agrees, points used): ``d`` against python-flint's determinant of ``M`` evaluated
     at random rational points (exact ``fmpq`` arithmetic)."""
@@ -345,18 +363,11 @@ def det_check(M, d, points=POINTS) -> tuple:
         roots = square_roots_away(entries)      # sqrt(x): checked where x is a square
         prog = Program([e.xreplace(roots) for e in entries] if roots else entries)
         syms = prog.symbols()
-        used = 0
-        for pt in _draws(syms, 3, points):
-            try:
-                vals = prog.run(pt)
-            except ZeroDivisionError:
-                continue
-            if flint.fmpq_mat(n, n, vals[:-1]).det() != vals[-1]:
-                return False, None
-            used += 1
-            if used == points or not syms:
-                break
-        return used > 0, (used if syms else None)
+
+        def agrees(pt):
+            vals = prog.run(pt)
+            return flint.fmpq_mat(n, n, vals[:-1]).det() == vals[-1]
+        return _sampled(syms, 3, points, agrees)
     except Exception:
         return False, None
 
@@ -396,28 +407,19 @@ def random_solve_check(nodal, form, b, expected, points=2, defs=None, over=None)
         exp_prog = Program([expected], defs)
         syms = (sys_prog.symbols() | form_prog.symbols() | exp_prog.symbols()) - \
             set(nodal.unknowns)
-        used = 0
-        for pt in _draws(syms, 11, points):
-            try:
-                vals = sys_prog.run(pt)
-                M = flint.fmpq_mat(n, n, vals[:n * n])
-                got = []
-                for k in range(len(rhs)):
-                    col = vals[n * n + k * n: n * n + (k + 1) * n]
-                    x = M.solve(flint.fmpq_mat(n, 1, col))
-                    env = dict(pt)
-                    env.update({u: x[i, 0] for i, u in enumerate(nodal.unknowns)})
-                    got.append(form_prog.run(env)[k])
-                got = got[0] if over is None else got[0] / got[1]
-                want = exp_prog.run(pt)[0]
-            except ZeroDivisionError:
-                continue
-            if got != want:
-                return False, None
-            used += 1
-            if used == points or not syms:
-                break
-        return used > 0, (used if syms else None)
+        def agrees(pt):
+            vals = sys_prog.run(pt)
+            M = flint.fmpq_mat(n, n, vals[:n * n])
+            got = []
+            for k in range(len(rhs)):
+                col = vals[n * n + k * n: n * n + (k + 1) * n]
+                x = M.solve(flint.fmpq_mat(n, 1, col))
+                env = dict(pt)
+                env.update({u: x[i, 0] for i, u in enumerate(nodal.unknowns)})
+                got.append(form_prog.run(env)[k])
+            got = got[0] if over is None else got[0] / got[1]
+            return got == exp_prog.run(pt)[0]
+        return _sampled(syms, 11, points, agrees)
     except Exception:
         return False, None
 
