@@ -455,14 +455,10 @@ def _ratio_value(ratio, nominal):
         return None
     vals = []
     for v in ratio.system.vars:
-        x = v.expr.xreplace(nominal)
-        if not x.is_Rational:
+        x = edge.var_value(v, nominal)
+        if x is None or x is edge.NOT_EXACT:
             return None
-        if v.kind == "recip":
-            if x == 0:
-                return None
-            x = 1 / x
-        vals.append(fmpq_of(x))
+        vals.append(x)
     if vals:
         num, den = ratio.num(*vals), ratio.den(*vals)
     else:

@@ -266,14 +266,10 @@ def _s_polys(ratio: Ratio, nominal: dict):
         if k not in used:
             values[v.name] = fmpq(0)
             continue
-        x = v.expr.xreplace(nominal)
-        if not x.is_Rational:
+        x = edge.var_value(v, nominal)
+        if x is None or x is edge.NOT_EXACT:
             return None
-        if v.kind == "recip":
-            if x == 0:
-                return None
-            x = 1 / x
-        values[v.name] = fmpq(int(x.p), int(x.q))
+        values[v.name] = x
 
     def uni(p):
         q = p.subs(values) if values else p

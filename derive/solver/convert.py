@@ -139,22 +139,22 @@ def printed_length_at_least(ratio) -> int:
     return total
 
 
-_NOT_EXACT = object()   # var_values: some value is not a finite rational
+NOT_EXACT = object()    # var_value/var_values: some value is not a finite rational
 
 
-def _var_value(v, nominal: dict):
+def var_value(v, nominal: dict):
     """Exact value (flint fmpq) of one ring variable at nominal values; None where a symbol
-    behind it has no nominal value (or it is ``s``); _NOT_EXACT where the value is not a
+    behind it has no nominal value (or it is ``s``); NOT_EXACT where the value is not a
     finite rational (a resistance of nominal 0, a root)."""
     x = v.expr.xreplace(nominal)
     if not x.is_number:
         return None
     if v.kind == "recip":
         if x == 0:
-            return _NOT_EXACT
+            return NOT_EXACT
         x = 1 / x
     if not x.is_Rational:
-        return _NOT_EXACT
+        return NOT_EXACT
     return flint.fmpq(int(x.p), int(x.q))
 
 
@@ -163,8 +163,8 @@ def var_values(system, nominal: dict):
     variable has no value (a symbol without nominal, or ``s``)."""
     vals = []
     for v in system.vars:
-        x = _var_value(v, nominal)
-        if x is None or x is _NOT_EXACT:
+        x = var_value(v, nominal)
+        if x is None or x is NOT_EXACT:
             return x
         vals.append(x)
     return vals
@@ -232,12 +232,12 @@ def value_at(ratio, nominal: dict):
     vals = [flint.fmpq(0)] * len(system.vars)
     closed_form = False
     for k in used:
-        x = _var_value(system.vars[k], nominal)
+        x = var_value(system.vars[k], nominal)
         if x is None:
             if not _aliased(system, k):
                 return None        # a symbol of this result without nominal value
             closed_form = True
-        elif x is _NOT_EXACT:
+        elif x is NOT_EXACT:
             closed_form = True
         else:
             vals[k] = x
