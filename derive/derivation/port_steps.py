@@ -29,7 +29,7 @@ from derive.forms import select as forms
 from derive.forms import series_parallel as reduce
 from derive.derivation.nodal_steps import Nodal, cramer_step, equation_steps
 from derive.derivation.steps import (Equation, NotRational, Program, RatioCheck, Step,
-                                     exact_value, fmpq_of, to_float, to_rational)
+                                     exact_value, to_float, to_rational)
 from derive.sheet.quantities import twin
 from derive.sheet.units import format_eng
 
