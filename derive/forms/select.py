@@ -235,15 +235,25 @@ def compact(ctx, req, q, readable=None):
         nested = sequence.inline(defs, final) if _inline_size(defs, final) <= INLINE_LIMIT \
             else None
     shorter = None
+    lengths: dict = {}
+
+    def nested_len():
+        """The printed length of the nested form, read off its named pieces (the length
+        of the text with every name replaced by its expression: printing the nested sympy
+        expression itself costs more than all the rest of a small ladder); computed once,
+        and only when compared."""
+        if "n" not in lengths:
+            lengths["n"] = _inline_size(defs, final)
+        return lengths["n"]
     if readable is not None:
-        if nested is not None and len(str(nested)) < edge.printed_length_at_least(readable):
+        if nested is not None and nested_len() < edge.printed_length_at_least(readable):
             shorter = True              # what the comparison below would find
         else:
             q.expr = edge.to_sympy(readable)
     if req.quantity != "current":
         if sp is not None:
             if nested is not None and (shorter or q.expr is None or
-                                       len(str(nested)) < len(str(q.expr))):
+                                       nested_len() < len(str(q.expr))):
                 q.expr, q.form = nested, "series-parallel"
             elif q.expr is None:
                 q.form = "series-parallel"
@@ -269,10 +279,11 @@ def _inline_size(defs, final) -> int:
     """Length of the expression with every name substituted back (without building it)."""
     size = {}
     for s, e in defs:
-        txt = len(str(e))
-        size[s] = txt + sum((size[x] - len(str(x))) * str(e).count(str(x))
-                            for x in e.free_symbols if x in size)
+        text = str(e)                       # printed once per expression
+        size[s] = len(text) + sum((size[x] - len(str(x))) * text.count(str(x))
+                                  for x in e.free_symbols if x in size)
         if size[s] > 10 * INLINE_LIMIT:
             size[s] = 10 * INLINE_LIMIT
-    return len(str(final)) + sum((size[x] - len(str(x))) * str(final).count(str(x))
-                                 for x in final.free_symbols if x in size)
+    text = str(final)
+    return len(text) + sum((size[x] - len(str(x))) * text.count(str(x))
+                           for x in final.free_symbols if x in size)
