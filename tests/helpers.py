@@ -29,3 +29,14 @@ def same(a, b) -> bool:
 
 def sym(names: str):
     return sympy.symbols(names)
+
+
+# Reference circuits as (kind, name, node+, node-, value) tuples for the numpy nodal solves
+# written in test_power.py and test_operating_point.py: a divider (vth = 8 V, common
+# practice) and a bridge with a current source.
+DIVIDER_PARTS = [("V", "V1", "a", "gnd", 10), ("R", "R1", "a", "b", 1000),
+                 ("R", "R2", "b", "gnd", 4000)]
+BRIDGE_PARTS = [("V", "V1", "a", "gnd", 12), ("R", "R1", "a", "b", 1000),
+                ("R", "R2", "b", "gnd", 2200), ("R", "R3", "a", "c", 3300),
+                ("R", "R4", "c", "gnd", 4700), ("R", "R5", "b", "c", 560),
+                ("I", "I1", "gnd", "c", 0.002)]

@@ -17,7 +17,7 @@ import sympy
 
 import derive
 from derive.cli import main
-from tests.helpers import run
+from tests.helpers import BRIDGE_PARTS, DIVIDER_PARTS, run
 
 
 # ------------------------------------------------------------------ independent reference
@@ -134,12 +134,7 @@ def test_tellegen_and_every_value_on_random_circuits(seed):
 
 
 # ------------------------------------------------------------------ divider and bridge
-DIVIDER = [("V", "V1", "a", "gnd", 10), ("R", "R1", "a", "b", 1000),
-           ("R", "R2", "b", "gnd", 4000)]
-BRIDGE = [("V", "V1", "a", "gnd", 12), ("R", "R1", "a", "b", 1000),
-          ("R", "R2", "b", "gnd", 2200), ("R", "R3", "a", "c", 3300),
-          ("R", "R4", "c", "gnd", 4700), ("R", "R5", "b", "c", 560),
-          ("I", "I1", "gnd", "c", 0.002)]
+DIVIDER, BRIDGE = DIVIDER_PARTS, BRIDGE_PARTS
 
 
 def test_divider_closed_forms_and_values():

@@ -16,7 +16,7 @@ import sympy
 
 import derive
 from derive.cli import main
-from tests.helpers import run
+from tests.helpers import BRIDGE_PARTS, DIVIDER_PARTS, run
 
 
 # ------------------------------------------------------------------ independent reference
@@ -108,12 +108,7 @@ def sheet_of(elements):
     return "\n".join(lines) + "\n"
 
 
-DIVIDER = [("V", "V1", "a", "gnd", 10), ("R", "R1", "a", "b", 1000),
-           ("R", "R2", "b", "gnd", 4000)]
-BRIDGE = [("V", "V1", "a", "gnd", 12), ("R", "R1", "a", "b", 1000),
-          ("R", "R2", "b", "gnd", 2200), ("R", "R3", "a", "c", 3300),
-          ("R", "R4", "c", "gnd", 4700), ("R", "R5", "b", "c", 560),
-          ("I", "I1", "gnd", "c", 0.002)]
+DIVIDER, BRIDGE = DIVIDER_PARTS, BRIDGE_PARTS
 DEPENDENT = [("V", "V1", "a", "gnd", 5), ("R", "R1", "a", "b", 1000),
              ("R", "R2", "b", "gnd", 2000), ("E", "E1", "x", "gnd", (3, "b", "gnd")),
              ("R", "R3", "x", "y", 500), ("R", "R4", "y", "gnd", 1500),

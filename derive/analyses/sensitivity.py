@@ -37,6 +37,7 @@ Sensitivities are always taken with every symbol symbolic (a ``numeric`` line or
 from __future__ import annotations
 
 import dataclasses
+import functools
 from dataclasses import dataclass, field
 from typing import Optional
 
@@ -265,6 +266,12 @@ def _rational_cached(e):
 
 
 RAW_OPS = 150           # above this size, no sympy derivative is taken for comparison
+
+
+@functools.lru_cache(maxsize=16)
+def _ops(e) -> int:
+    """``sympy.count_ops`` of a closed form, counted once (it is asked once per part)."""
+    return sympy.count_ops(e)
 TOO_LONG = "too long"    # _rational_derivative: the expanded derivative is longer than the budget
 
 
@@ -388,7 +395,7 @@ def derivative(form: Form, x: sympy.Symbol, taken: Optional[set] = None):
     intermediate that depends on x gets a derivative entry after the original entries.
     """
     if not form.defs:
-        if sympy.count_ops(form.final) > RAW_OPS:
+        if _ops(form.final) > RAW_OPS:
             fast = _rational_derivative(form.final, x)
             if fast is not None and fast is not TOO_LONG:
                 # large: the flint quotient rule alone (sympy's own derivative of a large
