@@ -927,3 +927,131 @@ def answer(ctx, req, inner) -> RequestResult:
         result.steps.append(step)
         q.approximation = a
     return result
+
+
+# ---------------------------------------------------------------- check Q equals EXPR within E%
+def _point_words(pb: Problem, u, w) -> tuple:
+    """(symbol -> exact value, frequency in Hz as a float or None) of a point (u, omega)."""
+    xv = pb.xpoint(u)
+    point = {pb.syms[j]: sympy.Rational(int(xv[k].p), int(xv[k].q))
+             for k, j in enumerate(pb.xs)}
+    f = None if w is None else float(Fraction(int(w.p), int(w.q))) / (2 * math.pi)
+    return point, f
+
+
+def _sympy_err2(q_expr, claim, point: dict, w):
+    """The squared relative error |claim − Q|²/|Q|² at one point, in exact sympy arithmetic
+    from the two original expressions (independent of the polynomial rings above); None
+    where Q is 0 or either side is undefined there."""
+    env = dict(point)
+    if w is not None:
+        env[S] = sympy.I * sympy.Rational(int(w.p), int(w.q))
+    try:
+        vq = sympy.expand_complex(sympy.together(q_expr.xreplace(env)))
+        vc = sympy.expand_complex(sympy.together(claim.xreplace(env)))
+    except ZeroDivisionError:
+        return None
+    if vq.has(sympy.zoo, sympy.nan) or vc.has(sympy.zoo, sympy.nan):
+        return None
+    qr, qi = sympy.re(vq), sympy.im(vq)
+    q2 = qr ** 2 + qi ** 2
+    if q2 == 0:
+        return None
+    dr, di = sympy.re(vc) - qr, sympy.im(vc) - qi
+    e = (dr ** 2 + di ** 2) / q2
+    return e if e.is_Rational else None
+
+
+def within_claim(ctx, req, name: str, q, q_expr, claim) -> dict:
+    """``check Q equals EXPR within E% [from F1 to F2]``: the largest relative error of the
+    claim against the exact Q over the tolerance box (and band), established by
+    :func:`establish` exactly as an ``approximately within`` bound. A dict: ``holds``,
+    ``bound`` (the largest error, rounded up; for a failing claim the error at the worst
+    point found), ``proven``, ``method``, ``points``, ``worst`` (the point, its frequency,
+    its error), ``band``, the verdict in words (``verdict``) and the step (``step``)."""
+    within = float(req.within)
+    loc = req.name_locs.get("within", req.loc)
+    m1, m2 = sympy.Symbol("_Q_exact"), sympy.Symbol("_Q_claim")
+    defs = ([*q.sequence, (m1, q.in_sequence)] if q.expr is None and q.sequence
+            else [(m1, q_expr)]) + [(m2, claim)]
+    rq, rc = sens.rational(m1, defs), sens.rational(m2, defs)
+    if rq is None or rc is None:
+        raise SheetError(f"'within' needs {name} and the claim as rational functions of their "
+                         "symbols (no roots or other functions)", loc.line, loc.col)
+    (num, den, syms), (cn, cd, _syms) = rq, rc
+    missing = sorted(str(x) for x in syms if x != S and x not in ctx.nominal)
+    if missing:
+        raise SheetError(f"'within' needs nominal values of: {', '.join(missing)}",
+                         loc.line, loc.col)
+    band = tuple(req.band) if req.band else DEFAULT_APPROXIMATION_BAND
+    if req.band and S not in syms:
+        b = req.name_locs.get("band", loc)
+        raise SheetError(f"{name} and the claim do not depend on s: a band has no meaning "
+                         "here", b.line, b.col)
+    box = tolerance.box_of(ctx, [x for x in syms if x != S])
+    pb = Problem(num, den, syms, ctx.nominal, box, band)
+    sc = Screen(pb)
+    cand = Candidate(pb, None, None, "the claim", polys=(cn, cd))
+    b = establish(pb, sc, cand)
+    holds = b.value <= within
+    u, w = b.worst if b.worst else ([0] * len(pb.tol), None)
+    if pb.band is not None and w is None:
+        w = _exact_omegas(pb)[0]
+    point, freq = _point_words(pb, u, w)
+    worst_e2 = Exact(pb, cand).err2(u, [w])[0]
+    independent = _sympy_err2(q_expr, claim, point, w)
+    over = f"{_band_words(pb)}"
+    at = ", ".join(f"{x} = {float(v):.6g}" for x, v in sorted(point.items(), key=lambda kv:
+                                                                  str(kv[0])))
+    if freq is not None:
+        from derive.sheet.units import format_eng
+        at += (", " if at else "") + "f = " + format_eng(freq, "Hz", digits=4)
+    lhs = sympy.Symbol("epsilon_max")
+    if b.err2 is None:                       # 0 in a denominator inside the box
+        holds = False
+        verdict = (f"does not hold within {_percent(within)}: {name} or the claim's "
+                   f"denominator is 0 at a point of the box ({at}), so the relative error is "
+                   "unbounded")
+        eq = Equation(lhs, sympy.oo)
+        eq.mark("exact", worst_e2 is None and independent is None)
+        bound = None
+    elif holds:
+        bound = _bound_up(b.value)
+        verdict = (f"holds within {_percent(within)} (proven): the largest relative error "
+                   f"is {_percent(b.value)} {over}" if b.proven else
+                   f"holds within {_percent(within)} at all {b.points} searched points (not "
+                   f"proven): the largest relative error found is {_percent(b.value)} {over}")
+        eq = Equation(lhs, bound)
+        ok = _recheck(pb, cand, b, bound) and independent is not None and \
+            independent <= sympy.Rational(Fraction(float(bound))) ** 2
+        eq.mark("exact" if b.proven else "points", ok, None if b.proven else b.points)
+    else:
+        bound = sympy.Float(math.sqrt(float(Fraction(int(worst_e2.p), int(worst_e2.q)))), 4)
+        verdict = (f"does not hold within {_percent(within)}: the relative error is "
+                   f"{_percent(float(bound))} at {at or 'nominal values'} (exact evaluation"
+                   + (", the largest over the box: proven" if b.proven else
+                      f"; the largest of {b.points} searched points") + ")")
+        eq = Equation(sympy.Symbol("epsilon_worst"), bound)
+        lim = sympy.Rational(Fraction(within)) ** 2
+        ok = independent is not None and worst_e2 is not None and \
+            independent == sympy.Rational(int(worst_e2.p), int(worst_e2.q)) and independent > lim
+        eq.mark("exact", ok)
+    text = (f"The claim against the exact {name}: the magnitude of the relative error "
+            f"({name}_claimed − {name})/{name}, largest {over}, established "
+            + ("by a proof" if b.proven else "by a search") + f" ({b.method}); at the worst "
+            f"point found ({at or 'nominal values'}) it is rechecked in exact arithmetic from "
+            f"the two expressions. Verdict: {verdict}.")
+    step = Step(text, [eq], kind="check")
+    step.verify()
+    worst = {"point": {str(x): float(v) for x, v in point.items()},
+             "error": (math.sqrt(float(Fraction(int(worst_e2.p), int(worst_e2.q))))
+                       if worst_e2 is not None else None)}
+    if freq is not None:
+        worst["frequency"] = freq
+    worst_f = worst["error"]
+    return {"holds": bool(holds), "within": within,
+            "bound": (b.value if holds else worst_f) if bound is not None else None,
+            "max_error": b.value if math.isfinite(b.value) else None,
+            "proven": bool(b.proven), "method_word": method_word(b), "method": b.method,
+            "points": b.points, "worst": worst, "verdict": verdict, "step": step,
+            **_band_entry(pb)}

@@ -8,6 +8,12 @@ A claim that does not hold gets a counterexample point (nominal values where giv
 relative error at nominal values, and a diagnosis: a dimension error naming the offending
 term, a constant factor or a sign, or a single symbol whose limit (0 or infinity) makes the
 claim agree with Q. :func:`check_lines` backs ``derive check``.
+
+``check Q equals EXPR within E% [from F1 to F2]`` asks whether a short hand-written formula
+stays within relative error E of Q over the whole tolerance box (and band): the bound is
+established as for ``approximately within``
+(:func:`derive.analyses.approximation.within_claim`); the verdict says "proven" or "at all
+N searched points (not proven)", and a failing claim gives the worst point found.
 """
 from __future__ import annotations
 
@@ -19,6 +25,7 @@ from derive.forms import results as analysis
 from derive.circuit import dimensions
 from derive.circuit.build import S, key_of
 from derive.sheet.expressions import to_sympy
+from derive.analyses import approximation
 from derive.analyses.inversion import quantity_of
 from derive.forms.text import to_text
 from derive.analyses.inversion import derived_equation
@@ -207,6 +214,9 @@ def check_request(ctx, req) -> analysis.RequestResult:
     dim_error, dim_note = dimension_verdict(ctx, req, q.unit, q_expr)
     if dim_error:
         holds = False
+    if getattr(req, "within", None) is not None and not dim_error:
+        return _within_request(ctx, req, name, q, q_expr, claim, steps, holds, method,
+                               dim_note)
     counter, rel, diagnosis = None, None, None
     if not holds:
         rnd = random.Random(11)
@@ -260,6 +270,36 @@ def check_request(ctx, req) -> analysis.RequestResult:
     return out
 
 
+def _within_request(ctx, req, name, q, q_expr, claim, steps, exact, method, dim_note):
+    """``check Q equals EXPR within E%``: the verdict is the largest relative error of the
+    claim over the tolerance box (and band) against E
+    (:func:`derive.analyses.approximation.within_claim`); a claim that equals Q exactly holds
+    without a search."""
+    within = float(req.within)
+    if exact:
+        verdict = (f"holds within {within * 100:.3g} % (proven): the claim equals {name} "
+                   "exactly, so its relative error is 0 everywhere")
+        w = {"holds": True, "within": within, "bound": 0.0, "max_error": 0.0, "proven": True,
+             "method_word": "proven", "method": "exact: " + method, "points": 0,
+             "worst": None, "verdict": verdict}
+    else:
+        w = approximation.within_claim(ctx, req, name, q, q_expr, claim)
+        steps.append(w.pop("step"))
+        verdict = w["verdict"]
+    diagnosis = None if w["holds"] else verdict
+    if not exact:
+        # what the claim leaves out, in limits: the assumption a short formula makes
+        w["assumption"] = diagnose(q_expr, claim, name, ctx.nominal)
+    steps.append(Step(f"The claim {verdict} ({dim_note}).", kind="check"))
+    for st in steps:
+        st.verify()
+    out = analysis.RequestResult(req, steps=steps)
+    out.extra.update({"holds": bool(w["holds"]), "counterexample": None,
+                      "diagnosis": diagnosis, "relative_error": None,
+                      "method": w["method"], "dimensions": dim_note, "within": w})
+    return out
+
+
 NO_CLAIMS = "no check claims in the sheet"
 
 
@@ -272,7 +312,9 @@ def check_lines(record):
         holds = r.extra.get("holds", False)
         ok = ok and holds
         line = f"{'PASS' if holds else 'FAIL'} line {r.request.loc.line}: {r.request.text}"
-        if not holds:
+        if r.extra.get("within"):               # a bound: say how it was established
+            line += f" — {r.extra['within']['verdict']}"
+        elif not holds:
             line += f" — {r.extra.get('diagnosis')}"
             if r.extra.get("relative_error") is not None:
                 line += f" (relative error at nominal {r.extra['relative_error']:.3g})"

@@ -79,14 +79,15 @@ def handler_of(req) -> Handler:
 
     ``find Q`` goes to the handler of its quantity word; ``find ANALYSIS of Q``, ``solve``,
     ``check`` and ``choose`` to the handler of the analysis or statement, and need Q itself
-    in the table too. ``approximately within`` wraps the handler of Q: the handler keyed
-    ``"approximately"`` gets it as ``inner``.
+    in the table too. ``find Q ... approximately within`` wraps the handler of Q: the handler
+    keyed ``"approximately"`` gets it as ``inner`` (``check Q equals EXPR within E%`` is a
+    ``check``: its bound is read by the check handler).
     """
     kind = req.analysis or (None if req.statement == "find" else req.statement)
     fn = _lookup(req.quantity, req)
     if kind is not None:
         fn = _lookup(kind, req)
-    if getattr(req, "within", None) is not None:
+    if getattr(req, "within", None) is not None and req.statement == "find":
         wrap = _lookup("approximately", req, req.name_locs.get("within", req.loc))
         fn = functools.partial(wrap, inner=fn)
     return fn

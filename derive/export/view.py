@@ -499,7 +499,10 @@ def request_summary(record, r) -> list:
         items += _stress_items(x["stress"])
     if "noise" in x:
         items += _noise_items(x["noise"])
-    if "holds" in x:
+    if x.get("within"):                 # check ... within E%: the bound and its method
+        w = x["within"]
+        items.append({"label": "claim", "math": "", "text": w["verdict"]})   # with its method
+    elif "holds" in x:
         if x["holds"]:
             verdict = "holds (exact)"
         elif x["holds"] is False:

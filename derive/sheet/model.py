@@ -230,9 +230,11 @@ class Request:
     Section 5 fields: ``symbols`` (with ``symbol_locs``), ``series`` and ``target`` of
     ``choose R1, R2 from E24 for Q = 1.2 V`` (the target a :class:`Quantity`, unit None
     or the quantity's unit); ``band`` the (low, high) frequencies in Hz of ``find noise at
-    P from F1 to F2`` or of ``approximately within E% from F1 to F2`` (None where not
-    written: see :data:`DEFAULT_APPROXIMATION_BAND`); ``within`` the relative error bound of
-    ``approximately within 1%`` (Fraction(1, 100)).
+    P from F1 to F2``, of ``approximately within E% from F1 to F2`` or of ``check Q equals
+    EXPR within E% from F1 to F2`` (None where not written: see
+    :data:`DEFAULT_APPROXIMATION_BAND`); ``within`` the relative error bound of
+    ``approximately within 1%`` or of ``check Q equals EXPR within 1%`` (Fraction(1, 100);
+    the statement tells the two apart).
     """
     statement: str
     quantity: str
@@ -252,7 +254,8 @@ class Request:
     target: Optional[Quantity] = None
     band: Optional[tuple] = None
     within: Optional[Fraction] = None
-    # also in name_locs: 'series', 'target', 'band', 'within' (the word 'approximately')
+    # also in name_locs: 'series', 'target', 'band', 'within' (the word 'approximately',
+    # or 'within' of a check)
 
 
 @dataclass

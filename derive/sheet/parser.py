@@ -613,7 +613,24 @@ class _Builder:
             req.name_locs["solve_for"] = loc
         elif statement == "check":
             req.claim = self._expr(rest[1])
+            if len(rest) > 2 and isinstance(rest[2], Tree) and rest[2].data == "claim_within":
+                self._claim_within(req, rest[2])
         return req
+
+    def _claim_within(self, req: Request, node: Tree) -> None:
+        """``check Q equals EXPR within E% [from F1 to F2]``: the bound and band."""
+        word, number = node.children[0], node.children[1]
+        has_percent = any(isinstance(c, Token) and c.type == "PERCENT" for c in node.children)
+        within = self._percent(number, has_percent, "the error bound",
+                               "check gain from Vin to out equals -R2/R1 within 1%")
+        if not 0 < within < 1:
+            raise _err("the error bound is more than 0% and less than 100%", number)
+        req.within = within
+        req.name_locs["within"] = _loc(word)
+        band = [c for c in node.children if isinstance(c, Tree)]
+        if band:
+            req.band = self._band(band[0])
+            req.name_locs["band"] = _loc(band[0])
 
     def _noise_request(self, stmt: Tree, text: str, rest) -> Request:
         req = Request("find", "noise", text, _loc(stmt))

@@ -17,7 +17,8 @@ A *request word* is what follows ``find`` (``thevenin``, ``vth``, ``gain``, ``mo
   ``"element"`` (``power in X``), ``"circuit"`` (requests of the whole circuit) or
   ``"result"`` (a result name only, never a request word);
 * ``analyses``: which of ``find sensitivity of``/``tolerance``/``drift``/``budget``,
-  ``solve``, ``check``, ``choose`` and ``approximately within`` take it;
+  ``solve``, ``check``, ``choose``, ``approximately within`` and ``within`` (``check Q
+  equals EXPR within E%``) take it;
 * ``frequency``: ``"bode"`` (frequency annotation with Bode figures), ``"annotate"``
   (annotation without figures) or ``None``;
 * ``tex``: its LaTeX name in records, where it has a typeset one.
@@ -55,7 +56,7 @@ class UnknownQuantity(DeriveError, KeyError):
 
 #: every analysis a quantity may be taken by
 ANALYSES = ("sensitivity", "tolerance", "solve", "check", "drift", "budget", "choose",
-            "approximately")
+            "approximately", "within")
 _SCALAR = frozenset(ANALYSES)
 _GROUP = frozenset(("sensitivity", "tolerance", "drift", "budget"))
 _NONE = frozenset()
