@@ -381,9 +381,10 @@ def _real_at_nominal(c: Circuit) -> None:
     """A value that is not a real number at nominal values (``sqrt(x)`` with x < 0) is
     refused at its element: every number, sensitivity and tolerance of it would be complex."""
     nominal = c.nominal_values()
+    known = set(nominal)
     for e in c.elements:
         if e.value is None or not e.value.free_symbols or \
-                not e.value.free_symbols <= set(nominal):
+                not e.value.free_symbols <= known:
             continue
         v = e.value.xreplace(nominal)
         if v.is_number and v.is_extended_real is False and v.is_finite:

@@ -68,11 +68,11 @@ def _path(adj, start, goal):
 
 def check_topology(elements, ground, ground_loc=None) -> list:
     """Validate the graph; return the node names (ground first, then in order of mention)."""
-    nodes = [ground]
+    seen = {ground: None}               # insertion order: ground, then order of mention
     for e in elements:
         for n in e.nodes:
-            if n not in nodes:
-                nodes.append(n)
+            seen.setdefault(n, None)
+    nodes = list(seen)
     touched = {n for e in elements for n in e.nodes}
     if ground not in touched:
         loc = ground_loc or elements[0].loc

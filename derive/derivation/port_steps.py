@@ -24,7 +24,9 @@ from __future__ import annotations
 import flint
 import sympy
 
+from derive.circuit.build import S
 from derive.solver import convert as edge
+from derive.solver import sparse
 from derive.forms import select as forms
 from derive.forms import series_parallel as reduce
 from derive.derivation.nodal_steps import Nodal, cramer_step, equation_steps
@@ -83,6 +85,9 @@ def check_result(ctx, req, eq: Equation, ref, nodal_form=None):
     if ref is not None:
         eq.check = ref
         return eq
+    if nodal_form == "sparse":
+        eq.mark("system", *_sparse_check(ctx, req, eq))
+        return eq
     from derive.derivation.nodal_steps import random_solve_check
     nodal = _nodal(ctx)
     if len(nodal_form) == 4:        # isc: open-circuit voltage over resistance seen
@@ -93,6 +98,80 @@ def check_result(ctx, req, eq: Equation, ref, nodal_form=None):
     form, b = nodal_form
     eq.mark("system", *random_solve_check(nodal, form, b, eq.rhs, defs=eq.defs))
     return eq
+
+
+SPARSE_NODES = 200      # larger networks of two-terminal elements: sparse exact solves
+
+
+def _sparse(ctx) -> bool:
+    """Whether the checks of a port quantity use exact sparse nodal solves written from the
+    elements (:func:`derive.solver.sparse.nodal_solve`, linear on chains) instead of the
+    dense nodal matrix (O(n^2) memory)."""
+    if "sparse" not in ctx.cache:
+        c = ctx.circuit
+        ctx.cache["sparse"] = len(c.nodes) > SPARSE_NODES and sparse.two_terminal(c)
+    return ctx.cache["sparse"]
+
+
+def _sparse_value(ctx, req, name, point, subs):
+    """The port quantity ``name`` at one point (Symbol -> exact value) by sparse exact
+    nodal solves: ``vth``/``gain`` the open-circuit voltage (every source, or the gain's
+    source at 1), ``rth`` the voltage of a 1 A test current with the sources zeroed,
+    ``isc`` their ratio."""
+    c = ctx.circuit
+    plus, minus = ctx.port(req.port)
+    sv = point.get(S)
+    base = twin(name)
+    if base == "isc":
+        v = _sparse_value(ctx, req, "vth", point, subs)
+        r = _sparse_value(ctx, req, "rth", point, subs)
+        if r == 0:
+            raise ZeroDivisionError("the resistance seen is 0 here")
+        return v / r
+    if base == "rth":
+        x = sparse.nodal_solve(c, point, subs, sv, sources="none", inject=(plus, minus))
+    else:
+        x = sparse.nodal_solve(c, point, subs, sv,
+                               sources=req.source if base == "gain" else "all")
+    return x[plus] - x[minus]
+
+
+def _sparse_check(ctx, req, eq) -> tuple:
+    """(agrees, points): ``eq.rhs`` (through its named intermediates, in exact rational
+    arithmetic) against exact sparse nodal solves of the circuit at random rational points
+    (undefined points redrawn a bounded number of times)."""
+    from derive.derivation.steps import ATTEMPTS, POINTS, draws
+    subs = ctx.numeric_subs()
+    prog = Program([eq.rhs], eq.defs)
+    syms = set(prog.symbols())
+    for e in ctx.circuit.elements:
+        if e.value is not None:
+            syms |= (e.value.xreplace(subs) if subs else e.value).free_symbols
+    syms -= set(eq.defs)
+    name = str(eq.lhs)
+    used = 0
+    seq = draws(20261203, syms)
+    for _ in range(ATTEMPTS * POINTS):
+        pt = next(seq)
+        try:
+            got = prog.run(pt)[0]
+            want = _sparse_value(ctx, req, name, pt, subs)
+        except ZeroDivisionError:
+            continue
+        if got != want:
+            return False, None
+        used += 1
+        if used == POINTS:
+            break
+    return used > 0, used
+
+
+def _forms_for(ctx, req, base, ref):
+    """What :func:`check_result` checks against where the solver's ratio ``ref`` is
+    missing: ``"sparse"`` (sparse exact solves) or the nodal forms of the quantity."""
+    if ref is not None:
+        return None
+    return "sparse" if _sparse(ctx) else _nodal_forms(ctx, req, base)
 
 
 def _inline(e, defs):
@@ -124,10 +203,38 @@ def _nodal_forms(ctx, req, base):
 
 
 # ------------------------------------------------------------------ reduction
+LISTED = 12        # an equivalent of more elements is named by its first and last ones
+
+
 def _label(b) -> str:
-    if b.members == [b.name]:
+    m = b.members
+    if len(m) == 1 and m.last == b.name:
         return b.name
-    return "the equivalent of " + ", ".join(b.members[:-1]) + " and " + b.members[-1]
+    if len(m) > LISTED:             # bounded text per step: a long chain stays linear
+        return f"the equivalent of {m.head[0]}, {m.head[1]}, …, {m.last} ({len(m)} elements)"
+    names = list(m)
+    return "the equivalent of " + ", ".join(names[:-1]) + " and " + names[-1]
+
+
+def _involved(*parts) -> list:
+    """The elements a move involves: every member of its parts, or, beyond ``LISTED`` in
+    all, the members of the parts of at most ``LISTED`` members (the element joined to a
+    long chain): each step lists a bounded number of elements."""
+    if sum(len(p.members) for p in parts) <= LISTED:
+        return [n for p in parts for n in p.members]
+    return [n for p in parts if len(p.members) <= LISTED for n in p.members]
+
+
+def _move_equation(lhs, rhs, check, defs, also=()) -> Equation:
+    """An equation of one move, checked in O(1): against the reducer's own definitions of
+    the move's new intermediates (``check`` and ``also``), one level deep, in the names of
+    the two parts (an identity in those names, so it holds whatever they stand for); only
+    where that fails, against the whole chain of definitions (which then decides)."""
+    local = {x: defs[x] for x in (check, *also) if isinstance(x, sympy.Symbol) and x in defs}
+    eq = Equation(lhs, rhs, check=check, defs=local)
+    if eq.run_check():
+        return eq
+    return Equation(lhs, rhs, check=check, defs=defs)
 
 
 def _reduction_steps(ctx, req, out, refs):
@@ -157,12 +264,11 @@ def _reduction_steps(ctx, req, out, refs):
         base = bases[n]
         rhs = {"vth": E, "gain": E, "rth": Z}.get(base, E / Z if Z != 0 else None)
         eq = Equation(sympy.Symbol(n), rhs, defs=dict(defs))
-        eqs.append(check_result(ctx, req, eq, refs[n], (None if refs[n] is not None
-                                                  else _nodal_forms(ctx, req, base))))
+        eqs.append(check_result(ctx, req, eq, refs[n], _forms_for(ctx, req, base, refs[n])))
         if q.expr is not None and (q.expr != rhs):
             e2 = Equation(sympy.Symbol(n), q.expr)
-            eqs.append(check_result(ctx, req, e2, refs[n], (None if refs[n] is not None
-                                                      else _nodal_forms(ctx, req, base))))
+            eqs.append(check_result(ctx, req, e2, refs[n], _forms_for(ctx, req, base,
+                                                                      refs[n])))
     what = (f"The port {req.port} now sees a single branch from {plus} to {minus}: its "
             "open-circuit voltage and its impedance are the results" if need_src else
             f"The port {req.port} now sees a single impedance between {plus} and {minus}")
@@ -216,10 +322,10 @@ def _move_step(m, env, defs) -> Step:
     if kind == "drop":
         b = parts[0]
         return Step(f"Nothing else connects at node {m['node']}, so {_label(b)} carries no "
-                    "current and does not affect the port; it is removed.", [], b.members,
+                    "current and does not affect the port; it is removed.", [], _involved(b),
                     kind="reduction")
     x, y = parts
-    members = x.members + y.members
+    members = _involved(x, y)
     if kind == "series":
         if x.b != m["node"]:
             x = x.flipped()
@@ -232,12 +338,11 @@ def _move_step(m, env, defs) -> Step:
                         f"whatever {_label(t)} is; {_label(t)} is absorbed.", [], members,
                         kind="reduction")
         zl = _zname(r, defs)
-        eqs = [Equation(zl, x.Z + y.Z, check=r.Z, defs=_with(defs, zl, r.Z))] \
-            if r.Z in defs else []
+        eqs = [_move_equation(zl, x.Z + y.Z, r.Z, defs)] if r.Z in defs else []
         ex, ey = x.E.xreplace(env), y.E.xreplace(env)
         el = r.E.xreplace(env)
         if ex != 0 and ey != 0 and el in defs:
-            eqs.append(Equation(_vname(r, el, defs), ex + ey, check=el, defs=defs))
+            eqs.append(_move_equation(_vname(r, el, defs), ex + ey, el, defs, also=(zl,)))
         if not eqs:
             return Step(f"{_label(x)} and {_label(y)} are in series: nothing else connects at "
                         f"node {m['node']}, so they form one branch: open-circuit voltage "
@@ -259,8 +364,8 @@ def _move_step(m, env, defs) -> Step:
         lhs = _vname(r, el, defs)
         return Step(f"Source transformation: the current source {_label(i)} ({k}) in parallel "
                     f"with {_label(t)} {between} becomes a voltage source in series with "
-                    f"{_label(t)}.", [Equation(lhs, t.E.xreplace(env) - k * t.Z,
-                                               check=el, defs=defs)], members,
+                    f"{_label(t)}.", [_move_equation(lhs, t.E.xreplace(env) - k * t.Z,
+                                                     el, defs)], members,
                     kind="reduction")
     if reduce.is_open(x) or reduce.is_open(y):
         o, k = (x, y) if reduce.is_open(x) else (y, x)
@@ -274,8 +379,8 @@ def _move_step(m, env, defs) -> Step:
                     f"{_label(o)} does not affect the port and is removed.", [], members,
                     kind="reduction")
     zl = _zname(r, defs)
-    d = _with(defs, zl, r.Z)
-    eqs = [Equation(zl, x.Z * y.Z / (x.Z + y.Z), check=r.Z, defs=d)]
+    d = defs if zl in defs else _with(defs, zl, r.Z)
+    eqs = [_move_equation(zl, x.Z * y.Z / (x.Z + y.Z), r.Z, d)]
     ex, ey = x.E.xreplace(env), y.E.xreplace(env)
     text = f"{_label(x)} and {_label(y)} are in parallel {between}"
     if ex != 0 or ey != 0:
@@ -287,7 +392,7 @@ def _move_step(m, env, defs) -> Step:
                 "transforms back into a voltage source behind the parallel impedance")
         el = r.E.xreplace(env)
         lhs = _vname(r, el, defs)
-        eqs.append(Equation(lhs, zl * (ex / x.Z + ey / y.Z), check=el, defs=d))
+        eqs.append(_move_equation(lhs, zl * (ex / x.Z + ey / y.Z), el, d, also=(zl,)))
     return Step(text + ".", eqs, members, kind="reduction")
 
 
@@ -424,7 +529,7 @@ def cross_check_step(ctx, req):
     isc from its own bordered determinants) evaluated exactly at random points
     (:func:`derive.forms.select.product_identity_holds`, never multiplied out; the outcome
     of :func:`derive.forms.select.cross_check` on the same ratios where it ran)."""
-    if not forms.expandable(ctx):
+    if forms.long_reducible(ctx, req, "rth") or not forms.expandable(ctx):
         return []
     r = forms.exact_ratio(ctx, req, "rth")
     if r.is_zero:
@@ -472,6 +577,12 @@ def _ratio_value(ratio, nominal):
 
 def _nodal_value(ctx, req, name, nominal):
     """The quantity at nominal values from an exact solve of the nodal equations there."""
+    if _sparse(ctx) and req.quantity != "current" and twin(name) in ("vth", "rth", "gain",
+                                                                     "isc"):
+        try:
+            return to_rational(_sparse_value(ctx, req, name, nominal, ctx.numeric_subs()))
+        except (ZeroDivisionError, KeyError):
+            return None
     nodal = _nodal(ctx)
     base = twin(name)
     if base == "isc":

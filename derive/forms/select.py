@@ -37,6 +37,23 @@ def expandable(ctx) -> bool:
     return ctx.cache["expandable"]
 
 
+LONG_NODES = 200     # a reducible network with more nodes is not expanded (see below)
+
+
+def long_reducible(ctx, req, name) -> bool:
+    """Whether ``name`` of ``req`` comes from a network of more than ``LONG_NODES`` nodes
+    that reduces by series and parallel moves: its exact form is then the reduction's
+    sequence of named intermediates, in time and memory linear in the network, and the
+    expanded ratio is not formed (a chain of N resistors would expand into N terms of N
+    variables, O(N^2)), nor the stamped system (a ring of N variables stores every
+    monomial with N exponents: O(N^2) memory); the steps are checked by sparse exact
+    solves instead."""
+    if len(ctx.circuit.nodes) <= LONG_NODES or req.quantity == "current":
+        return False
+    from derive.forms import series_parallel as reduce
+    return reduce.port_form(ctx, req, name) is not None
+
+
 def gain_unit(ctx, source):
     e = ctx.circuit.element(source)
     return kinds.kind(e.kind).gain_unit
@@ -55,7 +72,8 @@ def port_quantities(ctx, req) -> list:
     out = []
     for name in names_for(req):
         unit = gain_unit(ctx, req.source) if name == "gain" else quantities.unit(name)
-        ratio = exact_ratio(ctx, req, name) if expandable(ctx) else None
+        ratio = exact_ratio(ctx, req, name) if not long_reducible(ctx, req, name) and \
+            expandable(ctx) else None
         q = QuantityResult(name, None, None, unit, ratio=ratio)
         readable = None
         if ratio is not None:
@@ -69,7 +87,8 @@ def port_quantities(ctx, req) -> list:
             raise SheetError(f"no closed form of {name} could be derived", req.loc.line, req.loc.col)
         undefined_at_nominal(ctx, q)
         out.append(q)
-    if req.quantity in ("thevenin", "norton") and expandable(ctx):
+    if req.quantity in ("thevenin", "norton") and out[0].ratio is not None and \
+            expandable(ctx):
         cross_check(ctx, req)
     return out
 
@@ -232,8 +251,8 @@ def compact(ctx, req, q, readable=None):
     nested = None
     if sp is not None:
         defs, final = sp
-        nested = sequence.inline(defs, final) if _inline_size(defs, final) <= INLINE_LIMIT \
-            else None
+        nested = sequence.inline(defs, final) if len(defs) <= INLINE_DEFS and \
+            _inline_size(defs, final) <= INLINE_LIMIT else None
     shorter = None
     lengths: dict = {}
 
@@ -271,6 +290,7 @@ def compact(ctx, req, q, readable=None):
 
 
 INLINE_LIMIT = 20000        # characters: the JSON contract's "unreasonably large"
+INLINE_DEFS = 400           # longer sequences stay sequences (inlining a chain is O(N^2))
 READABLE_TERMS = 400        # expanded forms up to this many terms are shown as such
 LARGEST_EXPANDED = 3000     # beyond this the expanded form is never written out
 

@@ -17,12 +17,59 @@ reduced this way (they go to nodal analysis).
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+import heapq
+import itertools
+from dataclasses import dataclass
 
 import sympy
 
 from derive.circuit.build import S
 from derive.sheet import kinds, quantities
+
+
+class Members:
+    """The elements a branch stands for, in order, as a join of two parts (so a merge costs
+    O(1) and a chain of N merges O(N) memory, not O(N^2)): its ``count``, its first names
+    (``head``, up to two) and its last, and every name on iteration (flattened then).
+
+    >>> m = Members.join(Members.of("R1"), Members.join(Members.of("R2"), Members.of("R3")))
+    >>> len(m), list(m), m.head, m.last
+    (3, ['R1', 'R2', 'R3'], ('R1', 'R2'), 'R3')
+    """
+    __slots__ = ("parts", "count", "head", "last")
+
+    def __init__(self, parts, count, head, last):
+        self.parts, self.count, self.head, self.last = parts, count, head, last
+
+    @staticmethod
+    def of(name: str) -> "Members":
+        return Members((name,), 1, (name,), name)
+
+    @staticmethod
+    def join(x: "Members", y: "Members") -> "Members":
+        return Members((x, y), x.count + y.count, (x.head + y.head)[:2], y.last)
+
+    def __len__(self) -> int:
+        return self.count
+
+    def __iter__(self):
+        stack = [self]
+        while stack:
+            m = stack.pop()
+            if isinstance(m, str):
+                yield m
+            else:
+                stack.extend(reversed(m.parts))
+
+    def __eq__(self, other) -> bool:
+        if isinstance(other, (list, tuple)):
+            return len(other) == self.count and list(self) == list(other)
+        return isinstance(other, Members) and list(self) == list(other)
+
+    __hash__ = None
+
+    def __repr__(self) -> str:
+        return f"Members({list(self) if self.count <= 12 else self.count})"
 
 
 @dataclass
@@ -33,7 +80,17 @@ class Branch:
     E: sympy.Expr = sympy.Integer(0)     # Thévenin voltage (a relative to b, open)
     Z: sympy.Expr = sympy.Integer(0)     # impedance
     K: sympy.Expr = None                 # current a->b of an ideal current branch
-    members: list = field(default_factory=list)
+    members: Members = None
+
+    def __post_init__(self):
+        if self.members is None:
+            self.members = Members((), 0, (), None)
+        elif not isinstance(self.members, Members):     # a list of names
+            names = list(self.members)
+            m = None
+            for n in names:
+                m = Members.of(n) if m is None else Members.join(m, Members.of(n))
+            self.members = m if m is not None else Members((), 0, (), None)
 
     @property
     def ideal_current(self) -> bool:
@@ -77,21 +134,22 @@ def is_open(b: Branch) -> bool:
 def parallel(x: Branch, y: Branch, name) -> Branch:
     if y.a != x.a:
         y = y.flipped()
+    both = Members.join(x.members, y.members)
     if x.ideal_current and y.ideal_current:
-        return Branch(name, x.a, x.b, K=x.K + y.K, Z=sympy.oo, members=x.members + y.members)
+        return Branch(name, x.a, x.b, K=x.K + y.K, Z=sympy.oo, members=both)
     if x.ideal_current or y.ideal_current:
         i, t = (x, y) if x.ideal_current else (y, x)
-        return Branch(name, t.a, t.b, t.E - i.K * t.Z, t.Z, members=x.members + y.members)
+        return Branch(name, t.a, t.b, t.E - i.K * t.Z, t.Z, members=both)
     for o, k in ((x, y), (y, x)):       # an open (infinite impedance, no source) drops out
         if is_open(o):
-            return Branch(name, k.a, k.b, k.E, k.Z, members=x.members + y.members)
+            return Branch(name, k.a, k.b, k.E, k.Z, members=both)
     if x.Z == 0:
-        return Branch(name, x.a, x.b, x.E, x.Z, members=x.members + y.members)
+        return Branch(name, x.a, x.b, x.E, x.Z, members=both)
     if y.Z == 0:
-        return Branch(name, y.a, y.b, y.E, y.Z, members=x.members + y.members)
+        return Branch(name, y.a, y.b, y.E, y.Z, members=both)
     den = x.Z + y.Z
     return Branch(name, x.a, x.b, (x.E * y.Z + y.E * x.Z) / den, x.Z * y.Z / den,
-                  members=x.members + y.members)
+                  members=both)
 
 
 def series(x: Branch, y: Branch, mid, name) -> Branch:
@@ -99,11 +157,12 @@ def series(x: Branch, y: Branch, mid, name) -> Branch:
         x = x.flipped()
     if y.a != mid:
         y = y.flipped()
+    both = Members.join(x.members, y.members)
     if x.ideal_current:
-        return Branch(name, x.a, y.b, K=x.K, Z=sympy.oo, members=x.members + y.members)
+        return Branch(name, x.a, y.b, K=x.K, Z=sympy.oo, members=both)
     if y.ideal_current:
-        return Branch(name, x.a, y.b, K=y.K, Z=sympy.oo, members=x.members + y.members)
-    return Branch(name, x.a, y.b, x.E + y.E, x.Z + y.Z, members=x.members + y.members)
+        return Branch(name, x.a, y.b, K=y.K, Z=sympy.oo, members=both)
+    return Branch(name, x.a, y.b, x.E + y.E, x.Z + y.Z, members=both)
 
 
 class Namer:
@@ -139,52 +198,112 @@ class Namer:
 
 
 def reduce_to_port(branches, plus, minus, namer: Namer | None = None):
-    """(branch between plus and minus, moves) or (None, moves) if not reducible."""
-    live = list(branches)
+    """(branch between plus and minus, moves) or (None, moves) if not reducible.
+
+    The moves are those of the plain rule, in its order: while a move is possible, two
+    branches between the same nodes combine in parallel (the pair whose later branch comes
+    first in the list of live branches, new branches appended at its end); otherwise, at the
+    first node (in order of first appearance along the list) other than the port's that one
+    branch touches, the branch is dropped, or two branches touch, they combine in series.
+    Branches that start and end at one node are removed. Each move costs O(1) amortised
+    (heaps of candidate pairs and nodes, checked when taken), so a chain of N elements
+    reduces in O(N log N) time and O(N) memory."""
     moves = []
     namer = namer or Namer()
+    seqs = itertools.count()
+    live: dict = {}                      # seq -> branch, in list order
+    seq_of: dict = {}                    # id(branch) -> seq
+    by_pair: dict = {}                   # frozenset of the two nodes -> seqs, ascending
+    at: dict = {}                        # node -> {seq: 0 (its a side) or 1 (its b side)}
+    pair_heap: list = []                 # (second seq of a pair, tie, key)
+    node_heap: list = []                 # (position, node)
+    ports = (plus, minus)
 
-    def new_name():
-        return namer.branch_name()
+    def position(n):
+        inc = at[n]
+        k = min(inc)
+        return (k, inc[k])
 
-    changed = True
-    while changed:
-        changed = False
-        live = [b for b in live if b.a != b.b]
-        pairs = {}
-        for b in live:
-            k = frozenset((b.a, b.b))
-            if k in pairs:
-                x = pairs[k]
-                nb = namer.named(parallel(x, b, new_name()))
-                live = [z for z in live if z is not x and z is not b] + [nb]
-                moves.append({"move": "parallel", "parts": [x, b], "result": nb})
-                changed = True
+    def touch(n):
+        inc = at.get(n)
+        if inc and n not in ports and len(inc) <= 2:
+            heapq.heappush(node_heap, (position(n), n))
+
+    def add(b):
+        if b.a == b.b:                   # a loop carries no current into the network
+            return
+        k = next(seqs)
+        live[k] = b
+        seq_of[id(b)] = k
+        key = frozenset((b.a, b.b))
+        lst = by_pair.setdefault(key, [])
+        lst.append(k)
+        if len(lst) >= 2:
+            heapq.heappush(pair_heap, (lst[1], k, key))
+        at.setdefault(b.a, {})[k] = 0
+        at.setdefault(b.b, {})[k] = 1
+        touch(b.a)
+        touch(b.b)
+
+    def remove(b):
+        k = seq_of.pop(id(b))
+        del live[k]
+        key = frozenset((b.a, b.b))
+        lst = by_pair[key]
+        lst.remove(k)
+        if len(lst) >= 2:
+            heapq.heappush(pair_heap, (lst[1], k, key))
+        elif not lst:
+            del by_pair[key]
+        for n in (b.a, b.b):
+            del at[n][k]
+            if not at[n]:
+                del at[n]
+        touch(b.a)
+        touch(b.b)
+
+    for b in branches:
+        add(b)
+    while True:
+        move = None
+        while pair_heap:
+            second, _tie, key = pair_heap[0]
+            lst = by_pair.get(key)
+            if lst is not None and len(lst) >= 2 and lst[1] == second:
+                move = ("parallel", live[lst[0]], live[lst[1]], None)
                 break
-            pairs[k] = b
-        if changed:
-            continue
-        ends = {}
-        for b in live:
-            for n in (b.a, b.b):
-                ends.setdefault(n, []).append(b)
-        for n, bs in ends.items():
-            if n in (plus, minus):
-                continue
-            if len(bs) == 1:
-                live = [z for z in live if z is not bs[0]]
-                moves.append({"move": "drop", "parts": bs, "result": None, "node": n})
-                changed = True
-                break
-            if len(bs) == 2:
-                x, y = bs
-                nb = namer.named(series(x, y, n, new_name()))
-                live = [z for z in live if z is not x and z is not y] + [nb]
-                moves.append({"move": "series", "parts": [x, y], "result": nb, "node": n})
-                changed = True
-                break
-    if len(live) == 1 and {live[0].a, live[0].b} == {plus, minus}:
-        b = live[0] if live[0].a == plus else live[0].flipped()
+            heapq.heappop(pair_heap)
+        if move is None:
+            while node_heap:
+                pos, n = node_heap[0]
+                inc = at.get(n)
+                if inc and len(inc) <= 2 and position(n) == pos:
+                    bs = [live[k] for k in sorted(inc)]
+                    move = ("drop", bs[0], None, n) if len(bs) == 1 else \
+                        ("series", bs[0], bs[1], n)
+                    break
+                heapq.heappop(node_heap)
+        if move is None:
+            break
+        kind, x, y, n = move
+        if kind == "parallel":
+            remove(x)
+            remove(y)
+            nb = namer.named(parallel(x, y, namer.branch_name()))
+            add(nb)
+            moves.append({"move": "parallel", "parts": [x, y], "result": nb})
+        elif kind == "drop":
+            remove(x)
+            moves.append({"move": "drop", "parts": [x], "result": None, "node": n})
+        else:
+            remove(x)
+            remove(y)
+            nb = namer.named(series(x, y, n, namer.branch_name()))
+            add(nb)
+            moves.append({"move": "series", "parts": [x, y], "result": nb, "node": n})
+    rest = list(live.values())
+    if len(rest) == 1 and {rest[0].a, rest[0].b} == {plus, minus}:
+        b = rest[0] if rest[0].a == plus else rest[0].flipped()
         return b, moves
     return None, moves
 

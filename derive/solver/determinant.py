@@ -415,6 +415,9 @@ def _det_expand(m: SparseMatrix, plan):
     return D if _perm_sign(order) > 0 else -D
 
 
+DENSE_ESTIMATE = 400        # larger matrices are estimated by a sparse LU (scipy)
+
+
 def estimate_det_terms(m: SparseMatrix) -> float:
     """Cheap estimate of the number of terms of ``det(m)``, without expanding it.
 
@@ -437,24 +440,44 @@ def estimate_det_terms(m: SparseMatrix) -> float:
     n = m.n
     if n == 0:
         return 1.0
-    signed = np.zeros((n, n))
-    absval = np.zeros((n, n))
+    entries = []                         # (i, j, signed value, absolute value)
     zpattern = True
     for i, r in enumerate(m.rows):
         for j, v in r.items():
             cs = [int(c) for c in v.coeffs()]
-            signed[i, j] = float(sum(cs))
-            absval[i, j] = float(sum(abs(c) for c in cs))
+            entries.append((i, j, float(sum(cs)), float(sum(abs(c) for c in cs))))
             if i == j:
                 zpattern = zpattern and all(c > 0 for c in cs)
             else:
                 zpattern = zpattern and all(c < 0 for c in cs)
+    if n > DENSE_ESTIMATE:               # sparse LU: linear in a chain, no n x n array
+        from scipy.sparse import csc_matrix
+        from scipy.sparse.linalg import splu
+        rows = np.array([e[0] for e in entries], dtype=int)
+        cols = np.array([e[1] for e in entries], dtype=int)
+        signed = csc_matrix((np.array([e[2] for e in entries]), (rows, cols)), shape=(n, n))
+        absval = csc_matrix((np.array([e[3] for e in entries]), (rows, cols)), shape=(n, n))
 
-    def _absdet(a):
-        s, ld = np.linalg.slogdet(a)
-        if s == 0:
-            return 0.0
-        return math.exp(ld) if ld < 700 else math.inf
+        def _absdet(a):
+            try:
+                d = splu(a).U.diagonal()
+            except RuntimeError:         # exactly singular
+                return 0.0
+            if not np.all(d):
+                return 0.0
+            ld = float(np.sum(np.log(np.abs(d))))
+            return math.exp(ld) if ld < 700 else math.inf
+    else:
+        signed = np.zeros((n, n))
+        absval = np.zeros((n, n))
+        for i, j, sv, av in entries:
+            signed[i, j], absval[i, j] = sv, av
+
+        def _absdet(a):
+            s, ld = np.linalg.slogdet(a)
+            if s == 0:
+                return 0.0
+            return math.exp(ld) if ld < 700 else math.inf
 
     est = _absdet(signed)
     if not zpattern:
