@@ -3,7 +3,9 @@
 :data:`HANDLERS` is the one table from request kind to the function that answers it; the
 kind of ``find Q`` is its quantity word, of ``find ANALYSIS of Q`` the analysis, of ``solve``
 and ``check`` the statement. :func:`run` is the whole run, in order: the circuit
-transformation (``replace`` statements: model substitution), then for every request its
+transformation (``replace`` statements: model substitution), the up-front refusal of a
+sheet estimated to need more than about 1 GB (:mod:`derive.forms.footprint`), then for
+every request its
 handler (which gives the quantities and the derivation steps) and the post-steps applied to
 every result (frequency analysis, substitution notes). A request kind that is not in the
 table is refused, with its location, by :func:`handler_of`.
@@ -19,6 +21,7 @@ from derive.analyses import noise, operating_point, stress
 from derive.analyses import sensitivity, substitution, tolerance
 from derive.circuit.build import Circuit
 from derive.errors import NotAvailableYet
+from derive.forms import footprint
 # the results types live in derive.forms.results; re-exported for callers of this module
 from derive.forms.results import Context, Options, QuantityResult, RequestResult
 
@@ -54,6 +57,7 @@ def run(circuit: Circuit, options: Options | None = None) -> list:
     circuit = substitution.substitute(circuit, options)          # ``replace`` statements
     substituted = bool(getattr(circuit, "model_substitutions", None))
     ctx = Context(circuit, options)
+    footprint.refuse_runaway(ctx)                                # > about 1 GB: refused
     results = []
     for req in circuit.requests:
         answer = handler_of(req)

@@ -100,7 +100,7 @@ def check_result(ctx, req, eq: Equation, ref, nodal_form=None):
     return eq
 
 
-SPARSE_NODES = 200      # larger networks of two-terminal elements: sparse exact solves
+SPARSE_ELEMENTS = 200   # larger networks of two-terminal elements: sparse exact solves
 
 
 def _sparse(ctx) -> bool:
@@ -109,7 +109,7 @@ def _sparse(ctx) -> bool:
     dense nodal matrix (O(n^2) memory)."""
     if "sparse" not in ctx.cache:
         c = ctx.circuit
-        ctx.cache["sparse"] = len(c.nodes) > SPARSE_NODES and sparse.two_terminal(c)
+        ctx.cache["sparse"] = len(c.elements) > SPARSE_ELEMENTS and sparse.two_terminal(c)
     return ctx.cache["sparse"]
 
 
@@ -617,6 +617,14 @@ def independent_value(ctx, req, q, nominal):
     return _nodal_value(ctx, req, q.name, nominal), "system"
 
 
+def _short(v, chars: int = 24) -> bool:
+    """Whether the exact value ``v`` prints in at most ``chars`` characters (its size read
+    off the bit lengths first: a value of thousands of digits is never printed here)."""
+    if v.is_Rational and abs(int(v.p)).bit_length() + int(v.q).bit_length() > 4 * chars:
+        return False
+    return len(str(v)) <= chars
+
+
 def _value_step(ctx, req, q) -> Step:
     nominal = ctx.nominal
     used = set(q.expr.free_symbols) if q.expr is not None else set()
@@ -651,7 +659,7 @@ def _value_step(ctx, req, q) -> Step:
         raise StepFailed(f"value of {q.name} at nominal values disagrees with an independent "
                          f"exact computation ({exact} against {indep})")
     eqs = []        # no independent value (e.g. a resistance of nominal 0): shown, not claimed
-    if indep is not None and len(str(exact)) <= 24:
+    if indep is not None and _short(exact):
         eq = Equation(sympy.Symbol(q.name), exact)
         eq.mark(method, indep == exact)
         eqs.append(eq)

@@ -37,18 +37,18 @@ def expandable(ctx) -> bool:
     return ctx.cache["expandable"]
 
 
-LONG_NODES = 200     # a reducible network with more nodes is not expanded (see below)
+LONG_ELEMENTS = 200  # a reducible network of more elements is not expanded (see below)
 
 
 def long_reducible(ctx, req, name) -> bool:
-    """Whether ``name`` of ``req`` comes from a network of more than ``LONG_NODES`` nodes
+    """Whether ``name`` of ``req`` comes from a network of more than ``LONG_ELEMENTS`` elements
     that reduces by series and parallel moves: its exact form is then the reduction's
     sequence of named intermediates, in time and memory linear in the network, and the
     expanded ratio is not formed (a chain of N resistors would expand into N terms of N
     variables, O(N^2)), nor the stamped system (a ring of N variables stores every
     monomial with N exponents: O(N^2) memory); the steps are checked by sparse exact
     solves instead."""
-    if len(ctx.circuit.nodes) <= LONG_NODES or req.quantity == "current":
+    if len(ctx.circuit.elements) <= LONG_ELEMENTS or req.quantity == "current":
         return False
     from derive.forms import series_parallel as reduce
     return reduce.port_form(ctx, req, name) is not None

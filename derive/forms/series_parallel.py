@@ -148,6 +148,8 @@ def parallel(x: Branch, y: Branch, name) -> Branch:
     if y.Z == 0:
         return Branch(name, y.a, y.b, y.E, y.Z, members=both)
     den = x.Z + y.Z
+    if x.E == 0 and y.E == 0:           # no source: 0 without asking sympy about den
+        return Branch(name, x.a, x.b, sympy.Integer(0), x.Z * y.Z / den, members=both)
     return Branch(name, x.a, x.b, (x.E * y.Z + y.E * x.Z) / den, x.Z * y.Z / den,
                   members=both)
 
