@@ -218,11 +218,12 @@ def _label(b) -> str:
 
 def _involved(*parts) -> list:
     """The elements a move involves: every member of its parts, or, beyond ``LISTED`` in
-    all, the members of the parts of at most ``LISTED`` members (the element joined to a
-    long chain): each step lists a bounded number of elements."""
+    all, the members of its shorter part when that has at most ``LISTED`` (the element
+    joined to a long chain): each step lists at most ``LISTED`` elements."""
     if sum(len(p.members) for p in parts) <= LISTED:
         return [n for p in parts for n in p.members]
-    return [n for p in parts if len(p.members) <= LISTED for n in p.members]
+    short = min(parts, key=lambda p: len(p.members))
+    return list(short.members) if len(short.members) <= LISTED else []
 
 
 def _move_equation(lhs, rhs, check, defs, also=()) -> Equation:
