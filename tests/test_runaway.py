@@ -261,3 +261,31 @@ find vth at p
     assert float(x["a"]) == 5.0
     assert float(x["b"]) == pytest.approx(vb, rel=1e-12)
     assert float(x["c"]) == pytest.approx(vc, rel=1e-12)
+
+
+def test_a_long_chain_with_two_sources_gives_the_superposition_of_the_handbook():
+    # a 12 V source drives a chain of 600 resistors (i ohm) into a 47 kohm load; 1 mA is
+    # injected at the chain's middle node n300. By hand (superposition, handbook divider
+    # and parallel rules): vth = 12·RL/(S + RL) + 1 mA·(S1 ∥ (S2 + RL))·RL/(S2 + RL),
+    # rth = S ∥ RL, isc = vth/rth, gain = RL/(S + RL), with S1 = 1 + ... + 300,
+    # S2 = 301 + ... + 600, S = S1 + S2
+    n = 600
+    lines = ["voltage source Vs between n0 and gnd = 12 V",
+             "current source I1 from gnd to n300 = 1 mA"]
+    lines += [f"resistor R{i} between n{i - 1} and n{i} = {i} ohm" for i in range(1, n + 1)]
+    lines += [f"resistor RL between n{n} and gnd = 47 kohm", f"port p between n{n} and gnd",
+              "find thevenin at p", "find norton at p", "find gain from Vs to p"]
+    rec = derive.derive_text("\n".join(lines) + "\n", "chain.eqv")
+    S1, S2, RL = Fraction(300 * 301, 2), Fraction(600 * 601 - 300 * 301, 2), Fraction(47000)
+    S = S1 + S2
+    vth = 12 * RL / (S + RL) + Fraction(1, 1000) * (S1 * (S2 + RL) / (S + RL)) * RL / (S2 + RL)
+    rth = S * RL / (S + RL)
+    want = {"vth": vth, "rth": rth, "isc": vth / rth, "rn": rth, "gain": RL / (S + RL)}
+    for r in rec.results:
+        assert all(st.verified for st in r.steps)
+        for k, q in r.quantities.items():
+            assert q.form == "series-parallel"
+            value = next(st for st in r.steps if st.kind == "value"
+                         and st.equations and str(st.equations[0].lhs) == k)
+            assert value.equations[0].rhs == sympy.Rational(want[k].numerator,
+                                                            want[k].denominator), k
