@@ -26,6 +26,8 @@ from derive.circuit import dimensions
 from derive.circuit.build import S, key_of
 from derive.sheet.expressions import to_sympy
 from derive.analyses import approximation
+from derive.errors import SheetError
+from derive.sheet import quantities
 from derive.analyses.inversion import quantity_of
 from derive.forms.text import to_text
 from derive.analyses.inversion import derived_equation
@@ -275,6 +277,9 @@ def _within_request(ctx, req, name, q, q_expr, claim, steps, exact, method, dim_
     claim over the tolerance box (and band) against E
     (:func:`derive.analyses.approximation.within_claim`); a claim that equals Q exactly holds
     without a search."""
+    if not quantities.accepts("within", req.quantity):
+        loc = req.name_locs.get("within", req.loc)
+        raise SheetError(f"'within' is not offered for {req.quantity}", loc.line, loc.col)
     within = float(req.within)
     if exact:
         verdict = (f"holds within {within * 100:.3g} % (proven): the claim equals {name} "
