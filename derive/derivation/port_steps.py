@@ -211,7 +211,8 @@ def _label(b) -> str:
     if len(m) == 1 and m.last == b.name:
         return b.name
     if len(m) > LISTED:             # bounded text per step: a long chain stays linear
-        return f"the equivalent of {m.head[0]}, {m.head[1]}, …, {m.last} ({len(m)} elements)"
+        return (f"the equivalent of {len(m)} elements ({m.head[0]}, {m.head[1]}, …, {m.last}, "
+                "in the order of the moves above)")
     names = list(m)
     return "the equivalent of " + ", ".join(names[:-1]) + " and " + names[-1]
 
