@@ -88,6 +88,12 @@ def _seed(text: str) -> int:
     return _whole(text, "the seed", 0)
 
 
+def _digits(text: str) -> int:
+    """``--digits``: significant figures of computed values, 1 to 15."""
+    from derive.sheet.units import MAX_DIGITS
+    return _whole(text, "the number of significant figures", 1, MAX_DIGITS)
+
+
 def _terms(text: str) -> float:
     """``--max-terms``: a positive number (``inf`` lifts the limit)."""
     try:
@@ -122,6 +128,9 @@ def _parser() -> argparse.ArgumentParser:
         sp.add_argument("--distribution", choices=("uniform", "normal"), default="uniform",
                         help="parts spread uniformly within tolerance, or normally with the "
                              "tolerance as 3 sigma")
+        sp.add_argument("--digits", type=_digits, default=4, metavar="N",
+                        help="significant figures of computed values (1 to 15, default 4); "
+                             "entered values stay as entered")
 
     r = sub.add_parser("record", help="write the design-calculation record")
     common(r)
@@ -215,7 +224,7 @@ def _run(args, stdin_data: Optional[bytes] = None) -> int:
         from derive.export.formats import gives_verdict as select
     rec = derive_text(text, name, symbolic=symbolic, max_terms=args.max_terms,
                       mc_samples=args.samples, mc_seed=args.seed,
-                      mc_distribution=args.distribution, select=select)
+                      mc_distribution=args.distribution, select=select, digits=args.digits)
     if args.command == "record":
         fmt = _format_of(args)
         from derive.export.formats import render

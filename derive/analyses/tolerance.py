@@ -34,6 +34,7 @@ from derive.forms.results import Context, RequestResult
 from derive.errors import SheetError
 from derive.analyses import sensitivity as _sens     # module object: the two modules import each other
 from derive.derivation.steps import Figure, Step
+from derive.sheet.units import format_value
 
 QUANTILES = (0.00135, 0.99865)
 MAX_BOXES = 256
@@ -646,26 +647,30 @@ def spread_of(ctx: Context, a, req) -> tuple:
            "monte_carlo": mc,
            "monotone": {str(x): m for x, m in mono.items()},
            "contributions": {str(x): c for x, c in rows}}
-    u = f" {unit}" if unit else ""
+    d = opts.digits
+
+    def v(x):
+        return format_value(x, unit, d)
     table = [["symbol", "tolerance", "S at nominal", f"|dQ/dx|·|x0|·t ({unit or '-'})",
               "share of worst case", "on the box"]]
     sval = {s.symbol: s.s_value for s in a.sens}
     for x, c in sorted(rows, key=lambda r: -r[1]):
         t = ctx.circuit.symbols[str(x)].tolerance
-        table.append([str(x), f"±{float(t) * 100:g} %", _sens._g(sval.get(x)), f"{c:.6g}",
-                      f"{(c / wc * 100 if wc else 0):.1f} %", mono.get(x, "")])
+        table.append([str(x), f"±{float(t) * 100:g} %", _sens.g(sval.get(x), d),
+                      format_value(c, None, d),
+                      f"{format_value(c / wc * 100 if wc else 0, None, d)} %", mono.get(x, "")])
     steps = [
-        Step(f"Linear worst case: {name} = {q0:.6g}{u} ± Σ|d{name}/dx|·|x0|·t = ± {wc:.6g}{u}, "
-             f"so {q0 - wc:.6g} to {q0 + wc:.6g}{u} (first order in the tolerances).",
+        Step(f"Linear worst case: {name} = {v(q0)} ± Σ|d{name}/dx|·|x0|·t = ± {v(wc)}, "
+             f"so {v(q0 - wc)} to {v(q0 + wc)} (first order in the tolerances).",
              kind="tolerance", table=table),
-        Step(f"Root-sum-square: ± sqrt(Σ(d{name}/dx·x0·t)²) = ± {rss:.6g}{u}, so "
-             f"{q0 - rss:.6g} to {q0 + rss:.6g}{u}.", kind="tolerance"),
-        Step(f"Extreme values over the box of tolerances: {lo:.6g} to {hi:.6g}{u}. "
+        Step(f"Root-sum-square: ± sqrt(Σ(d{name}/dx·x0·t)²) = ± {v(rss)}, so "
+             f"{v(q0 - rss)} to {v(q0 + rss)}.", kind="tolerance"),
+        Step(f"Extreme values over the box of tolerances: {v(lo)} to {v(hi)}. "
              f"Method: {method}.", kind="tolerance"),
         Step(f"Monte Carlo: {mc['samples']} samples, seed {mc['seed']}, {dist} within "
              f"tolerance{' (tolerance = 3σ)' if dist == 'normal' else ''}: mean "
-             f"{mc['mean']:.6g}{u}, standard deviation {mc['std']:.6g}{u}, 0.135 %/99.865 % "
-             f"quantiles {mc['low']:.6g} and {mc['high']:.6g}{u}.", kind="tolerance"),
+             f"{v(mc['mean'])}, standard deviation {v(mc['std'])}, 0.135 %/99.865 % "
+             f"quantiles {v(mc['low'])} and {v(mc['high'])}.", kind="tolerance"),
     ]
     for st in steps:
         st.verify()

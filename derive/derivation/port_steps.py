@@ -31,7 +31,7 @@ from derive.derivation.nodal_steps import Nodal, cramer_step, equation_steps
 from derive.derivation.steps import (Equation, NotRational, Program, RatioCheck, Step,
                                      exact_value, to_float, to_rational)
 from derive.sheet.quantities import twin
-from derive.sheet.units import format_eng
+from derive.sheet.units import format_exact, format_value
 
 
 
@@ -506,6 +506,14 @@ def independent_value(ctx, req, q, nominal):
     return _nodal_value(ctx, req, q.name, nominal), "system"
 
 
+def _nominal_text(val, unit, digits) -> str:
+    """A symbol's nominal value: as entered where it is a rational number, else computed."""
+    if isinstance(val, sympy.Rational):
+        from fractions import Fraction
+        return format_exact(Fraction(int(val.p), int(val.q)), unit)
+    return format_value(to_float(val), unit, digits)
+
+
 def _value_step(ctx, req, q) -> Step:
     nominal = ctx.nominal
     used = set(q.expr.free_symbols) if q.expr is not None else set()
@@ -518,8 +526,8 @@ def _value_step(ctx, req, q) -> Step:
         si = info.get(str(s))
         val = nominal.get(s)
         rows.append([si.display if si else str(s),
-                     format_eng(to_float(val), si.unit if si else None) if val is not None
-                     else "none (kept symbolic)"])
+                     _nominal_text(val, si.unit if si else None, ctx.options.digits)
+                     if val is not None else "none (kept symbolic)"])
     if q.value is None and getattr(q, "undefined", None):
         return Step(q.undefined[0].upper() + q.undefined[1:] + ".", [], kind="value",
                     table=rows)
@@ -530,10 +538,10 @@ def _value_step(ctx, req, q) -> Step:
     exact = exact_value(q.expr, nominal) if q.expr is not None else \
         exact_value(q.in_sequence, nominal, dict(q.sequence))
     if exact is None:       # not a rational value (complex, roots): shown, nothing claimed
-        shown = str(q.value) if isinstance(q.value, complex) else format_eng(q.value, q.unit)
+        shown = format_value(q.value, q.unit, ctx.options.digits)
         return Step(f"At nominal values: {q.name} = {shown}.", [], kind="value", table=rows)
     q.value = to_float(exact)
-    shown = format_eng(q.value, q.unit)
+    shown = format_value(q.value, q.unit, ctx.options.digits)
     # an independent exact value: the solver's ratio, else an exact nodal solve at nominal
     indep, method = independent_value(ctx, req, q, nominal)
     if indep is not None and indep != exact:

@@ -1,0 +1,92 @@
+"""``--digits N`` / ``derive_text(digits=N)``: computed values in every rendering with N
+significant figures (engineering notation, SI prefix, unit); entered values as entered."""
+import json
+
+import pytest
+
+from derive import derive_text
+from derive.cli import main
+
+# A divider: Vs = 10 V, R1 = 1 kΩ ±1 %, R2 = 4 kΩ ±1 %, vth = Vs·R2/(R1 + R2) = 8 V.
+# Worked by hand: dvth/dR1 = -Vs·R2/(R1+R2)² = -1.6e-3 V/Ω, times R1·t = 10 Ω: 16 mV;
+# dvth/dR2 = Vs·R1/(R1+R2)² = 0.4e-3 V/Ω, times R2·t = 40 Ω: 16 mV. Linear worst case
+# ±32 mV (7.968 V to 8.032 V), RSS ±16·√2 mV = ±22.6274 mV. True extremes (vth falls with R1,
+# rises with R2): 10·3960/4970 = 7.967807 V and 10·4040/5030 = 8.031809 V.
+SHEET = """voltage source Vs between a and gnd = 10 V
+resistor R1 between a and b = 1 kohm ±1%
+resistor R2 between b and gnd = 4 kohm ±1%
+port out between b and gnd
+find vth at out
+find tolerance of vth at out
+"""
+
+
+def _md(digits):
+    return derive_text(SHEET, "d.eqv", digits=digits, mc_samples=2000).to_markdown()
+
+
+def test_six_digits_reach_prose_summary_and_tables():
+    md = _md(6)
+    assert "7.96800 V to 8.03200 V" in md              # linear worst case
+    assert "± 22.6274 mV" in md                        # RSS
+    assert "7.96781 V to 8.03181 V" in md              # true extremes, prose and summary
+    assert "= 8.00000 V" in md                         # the value in the summary
+    assert "| R1 | 1 kΩ |" in md and "| R2 | 4 kΩ |" in md   # entered values as entered
+
+
+def test_default_is_four_digits_and_entered_values_stay():
+    md = _md(4)
+    assert "7.968 V to 8.032 V" in md and "± 22.63 mV" in md
+    assert "7.968 V to 8.032 V (extreme values, nominal 8.000 V)" in md
+    assert "| R1 | 1 kΩ |" in md
+    assert ":.6g" not in md and "7.96781 V" not in md
+
+
+def test_two_digits():
+    md = _md(2)
+    assert "= 8.0 V" in md and "± 23 mV" in md and "8.000 V" not in md
+
+
+@pytest.mark.parametrize("bad", [0, -1, 16, 2.5, "4", True])
+def test_api_refuses_a_bad_number_of_digits(bad):
+    with pytest.raises(ValueError, match="significant figures"):
+        derive_text(SHEET, digits=bad)
+
+
+@pytest.mark.parametrize("bad", ["0", "-3", "2.5", "16", "many"])
+def test_cli_refuses_a_bad_number_of_digits(tmp_path, capsys, bad):
+    p = tmp_path / "d.eqv"
+    p.write_text(SHEET)
+    assert main(["record", str(p), "--digits", bad]) == 2
+    err = capsys.readouterr().err
+    assert "--digits" in err and ("significant figures" in err or "whole number" in err)
+
+
+def test_cli_digits_in_record_and_json_unchanged(tmp_path, capsys):
+    p = tmp_path / "d.eqv"
+    p.write_text(SHEET)
+    assert main(["record", str(p), "--digits", "6", "--samples", "2000"]) == 0
+    assert "7.96781 V to 8.03181 V" in capsys.readouterr().out
+    out = tmp_path / "r.json"
+    assert main(["record", str(p), "--digits", "2", "--samples", "2000", "-o", str(out)]) == 0
+    spread = [r for r in json.loads(out.read_text())["results"] if "spread" in r][0]["spread"]
+    assert spread["low"] == pytest.approx(39600 / 4970, rel=1e-12)   # JSON: full floats
+
+
+def test_code_comment_follows_digits(tmp_path, capsys):
+    sheet = ("voltage source Vin between a and gnd = 1 V\n"
+             "resistor R1 between a and n = 10 kohm ±1%\n"
+             "resistor R2 between n and out = 100 kohm ±1%\n"
+             "opamp U1 inputs gnd, n output out gain A\n"
+             "nominal A = 100000 ±50%\n"
+             "port o between out and gnd\n"
+             "find gain from Vin to o approximately within 1%\n")
+    p = tmp_path / "a.eqv"
+    p.write_text(sheet)
+    assert main(["code", str(p), "--digits", "2"]) == 0
+    two = [l for l in capsys.readouterr().out.splitlines() if "relative error at most" in l]
+    assert main(["code", str(p), "--digits", "5"]) == 0
+    five = [l for l in capsys.readouterr().out.splitlines() if "relative error at most" in l]
+    assert two and five and two != five
+    # the bound is 0.0224 % (docs/language.md: -R2/R1 within 0.0224 %), at 2 and 5 figures
+    assert "at most 0.022 %" in two[0] and "at most 0.0224" in five[0]
