@@ -259,6 +259,81 @@ def analyse_quantity(q, nominal) -> tuple:
     return d, step, coeffs
 
 
+RESPONSE_WORDS = {"f0": ("natural frequency", "f0"), "w0": ("natural frequency", "ω0"),
+                  "Q": ("quality factor", "Q")}
+
+
+def _order_words(den) -> str:
+    """How a denominator polynomial in s (ascending coefficients) is built, in words: its
+    order, the poles at the origin, and its factors in s where it factors over the
+    symbols (each named when short)."""
+    poly = sum(c * S**i for i, c in enumerate(den))
+    order = len(den) - 1
+    zeros_at_origin = next(i for i, c in enumerate(den) if c != 0)
+    words = f"of order {order} in s"
+    if zeros_at_origin:
+        words += f" ({zeros_at_origin} pole{'s' if zeros_at_origin > 1 else ''} at s = 0)"
+    if order <= 2 or sympy.count_ops(poly) > 400:
+        return words
+    try:
+        _, factors = sympy.factor_list(sympy.expand(poly))
+    except (sympy.PolynomialError, NotImplementedError):
+        return words
+    parts = []
+    for f, m in factors:
+        d = sympy.degree(f, S) if f.has(S) else 0
+        if d == 0:
+            continue
+        text = str(f)
+        parts += [f"order {d}" + (f" ({text})" if len(text) <= 60 else "")] * int(m)
+    if len(parts) > 1:
+        words += "; it factors into " + ", ".join(parts[:-1]) + " and " + parts[-1]
+    return words
+
+
+def response_quantity(q, word: str, loc):
+    """The quantity ``f0``, ``w0`` or ``Q`` of result ``q`` (a ``QuantityResult`` in s) as a
+    ``QuantityResult`` of its own, read from the second-order denominator of ``q``'s
+    normalised rational form (:func:`rational_form`: 1 + a1 s + a2 s², ω0 = 1/sqrt(a2),
+    Q = sqrt(a2)/a1, f0 = ω0/(2π)). A located error where ``q`` does not depend on s,
+    where its denominator is of another order (said, with its factors in s), or where Q is
+    infinite."""
+    import dataclasses
+
+    from derive.errors import SheetError
+    from derive.sheet import quantities
+    noun, sym = RESPONSE_WORDS[word]
+    what = f"the {noun} {sym}"
+    where = (getattr(loc, "line", 0), getattr(loc, "col", 0))
+    if q.expr is None:
+        raise SheetError(f"{what} of {q.name} needs its closed form, and {q.name} is given "
+                         "only as a sequence of named intermediates", *where,
+                         hint="keep fewer symbols symbolic (--symbolic or a 'numeric' line)")
+    if S not in q.expr.free_symbols:
+        raise SheetError(f"{q.name} does not depend on s (no capacitor, inductor or s in it), "
+                         f"so it has no {noun} {sym}", *where)
+    f = rational_form(q.expr)
+    den = f["denominator"]
+    if f["w0"] is None:
+        words = _order_words(den)
+        hint = ("a first-order denominator has a corner frequency (a plain 'find' of the "
+                "result shows it); f0, w0 and Q belong to a second-order one"
+                if len(den) - 1 == 1 else
+                "each second-order factor has its own f0 and Q: ask for them at a port after "
+                "that section" if "factors into" in words else
+                "f0, w0 and Q are those of a second-order denominator 1 + a1·s + a2·s²")
+        raise SheetError(f"{what} of {q.name} needs a second-order denominator, and the "
+                         f"denominator of {q.name} is {words}", *where, hint=hint)
+    if word == "Q" and f["Q"] is None:
+        raise SheetError(f"the quality factor of {q.name} is infinite: its denominator has no "
+                         "s term (no damping)", *where)
+    expr = {"w0": f["w0"], "f0": f["w0"] / (2 * sympy.pi), "Q": f["Q"]}[word]
+    return dataclasses.replace(q, name=word, expr=expr, unit=quantities.unit(word),
+                               value=None, ratio=None, sequence=[], in_sequence=None,
+                               form="second-order denominator", notes=[], validity=[],
+                               approximation=None)
+
+
 def _independent(expr) -> dict:
     """ω0, Q and ωc again, from Taylor coefficients of the denominator at s = 0 taken by
     differentiation (not from the polynomial coefficients that :func:`rational_form`

@@ -45,6 +45,7 @@ import flint
 import sympy
 
 from derive.solver import convert as edge
+from derive.analyses import frequency
 from derive.forms import select as forms
 from derive.forms.results import Context, RequestResult
 from derive.circuit.build import S as LAPLACE_S
@@ -474,13 +475,17 @@ def _check_scalar(req):
 def analysed(ctx: Context, req) -> list:
     """Every member of the request's quantity with its ranked sensitivities (cached)."""
     _check_scalar(req)
-    key = ("sensitivity", req.quantity, req.port, req.element, req.source)
+    response = getattr(req, "response", None)
+    key = ("sensitivity", req.quantity, req.port, req.element, req.source, response)
     if key in ctx.cache:
         return ctx.cache[key]
     fctx = full_context(ctx)
     nominal = ctx.nominal
     out = []
     for q in forms.port_quantities(fctx, req):
+        if response is not None:     # f0, w0 or Q of the result's second-order denominator
+            q = frequency.response_quantity(q, response,
+                                            req.name_locs.get("response", req.loc))
         form = form_of(q)
         if LAPLACE_S in form.base_symbols():
             raise SheetError(f"{q.name} depends on the Laplace variable s: sensitivities and "

@@ -89,6 +89,9 @@ def interval(expr, env: dict, memo: dict | None = None):
     elif expr.is_Number:
         v = float(expr)
         r = (v, v) if expr.is_Integer and abs(v) < 2 ** 52 else _widen(v, v)
+    elif expr.is_NumberSymbol:          # pi (f0 = ω0/2π), E: a float widened by two ulps
+        v = float(expr)
+        r = _widen(v, v)
     elif expr.is_Add or expr.is_Mul:
         parts = [interval(a, env, memo) for a in expr.args]
         if any(p is None for p in parts):
@@ -379,7 +382,7 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1,
               "local searches, scipy L-BFGS-B, per limit)"
               + (f"; the other parts proven monotone and set at their corners"
                  if len(free) < len(box) else "")
-              + ("" if bounded else "; WARNING: boundedness of Q on the box is not proven (a "
+              + ("" if bounded else "; WARNING: boundedness of the quantity on the box is not proven (a "
                  "denominator may vanish inside it), so Q may be unbounded there and these "
                  "limits are only the extremes found"))
     return best[1], best[-1], method, mono
@@ -651,7 +654,7 @@ def spread_of(ctx: Context, a, req) -> tuple:
 
     def v(x):
         return format_value(x, unit, d)
-    table = [["symbol", "tolerance", "S at nominal", f"|dQ/dx|·|x0|·t ({unit or '-'})",
+    table = [["symbol", "tolerance", "S at nominal", f"|d{name}/dx|·|x0|·t ({unit or '-'})",
               "share of worst case", "on the box"]]
     sval = {s.symbol: s.s_value for s in a.sens}
     for x, c in sorted(rows, key=lambda r: -r[1]):

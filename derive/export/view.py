@@ -13,6 +13,7 @@ import sympy
 
 from derive.export.printing import equation_lines, to_latex, visual_len
 from derive.sheet import kinds as element_kinds
+from derive.sheet import quantities
 from derive.sheet.units import DEFAULT_DIGITS, format_eng, format_exact, format_value
 
 # Extra-low voltage limits of IEC 61140 (from memory): 50 V a.c. r.m.s., 120 V ripple-free
@@ -296,6 +297,8 @@ def _unit_of(record, name):
         q = r.quantities.get(name)
         if q is not None and q.unit:
             return q.unit
+    if name in quantities.QUANTITIES and quantities.unit(name):
+        return quantities.unit(name)
     return _QUANTITY_UNIT.get(name)
 
 
@@ -472,7 +475,8 @@ def request_summary(record, r) -> list:
                       key=lambda kv: (kv[1].get("rank") or 1e9, kv[0]))[:3]
         parts = [f"{k} {_plain(v['value'], d)}" for k, v in sens
                  if v.get("value") is not None]
-        items.append({"label": "largest normalized sensitivities (x/Q)(dQ/dx)",
+        of = x.get("sensitivity_of") or "Q"
+        items.append({"label": f"largest normalized sensitivities (x/{of})(d{of}/dx)",
                       "math": "", "text": ", ".join(parts)})
     items += review_items(x, d)
     if "operating_point" in x:
