@@ -41,6 +41,11 @@ class Record:
         from derive.export.markdown import record_markdown
         return record_markdown(self, template_dir)
 
+    def to_text(self) -> str:
+        """The plain-text summary that ``derive record`` prints on a terminal."""
+        from derive.export.terminal import record_text
+        return record_text(self)
+
     def to_latex(self) -> str:
         """The LaTeX source of the record."""
         from derive.export.formats import render

@@ -12,6 +12,7 @@ import re
 import sympy
 
 from derive.export.printing import equation_lines, to_latex, visual_len
+from derive.forms.text import to_text
 from derive.sheet import kinds as element_kinds
 from derive.sheet import quantities
 from derive.sheet.units import DEFAULT_DIGITS, format_eng, format_exact, format_value
@@ -328,37 +329,47 @@ def _frequency_items(record, r, q):
     if not f or q.expr is None:
         return []
     d = digits_of(record)
-    parts = []
+    parts, plain = [], []
     if f.get("f0_value") is not None:
         parts.append(r"f_0 = \text{%s}" % _eng(f["f0_value"], "Hz", d))
+        plain.append(f"f0 = {_eng(f['f0_value'], 'Hz', d)}")
     if f.get("w0_value") is not None:
         parts.append(r"\omega_0 = \text{%s}" % _eng(f["w0_value"], "rad/s", d))
+        plain.append(f"ω0 = {_eng(f['w0_value'], 'rad/s', d)}")
     if f.get("Q_value") is not None:
         parts.append(r"Q = %s" % _plain(f["Q_value"], d))
+        plain.append(f"Q = {_plain(f['Q_value'], d)}")
     if f.get("f_corner_value") is not None:
         parts.append(r"f_c = \text{%s}" % _eng(f["f_corner_value"], "Hz", d))
+        plain.append(f"fc = {_eng(f['f_corner_value'], 'Hz', d)}")
     s = sympy.Symbol("s")
     try:
         dc = sympy.cancel(q.expr).subs(s, 0)
         dc = dc.xreplace(record.circuit.nominal_values()) if dc.is_finite is not False else None
         if dc is not None and dc.is_number and dc.is_finite:
-            parts.append(r"\text{DC gain} = %s" % _plain(float(dc), d)
-                         if q.unit in ("V/V", "A/A") else
+            ratio = q.unit in ("V/V", "A/A")
+            parts.append(r"\text{DC gain} = %s" % _plain(float(dc), d) if ratio else
                          r"\text{at DC} = \text{%s}" % _eng(float(dc), q.unit, d))
+            plain.append(f"DC gain = {_plain(float(dc), d)}" if ratio else
+                         f"at DC = {_eng(float(dc), q.unit, d)}")
     except (TypeError, ValueError, ZeroDivisionError):
         pass
     poles = f.get("poles_value") or []
     if poles:
-        shown = []
+        shown, words = [], []
         for p in poles[:4]:
             re_, im = (p[0], p[1]) if isinstance(p, (list, tuple)) else (p, 0)
             txt = _tx(re_, "rad/s", d) if re_ else "0"
+            word = _eng(re_, "rad/s", d) if re_ else "0"
             if im:
                 txt += r" \pm j\,%s" % _tx(abs(im), "rad/s", d)
+                word += f" ± j·{_eng(abs(im), 'rad/s', d)}"
             shown.append(txt)
+            words.append(word)
         parts.append(r"\text{poles } s = " + r",\ ".join(dict.fromkeys(shown)))
-    return [{"label": "frequency response", "math": r",\quad ".join(parts), "text": ""}] \
-        if parts else []
+        plain.append("poles s = " + ", ".join(dict.fromkeys(words)))
+    return [{"label": "frequency response", "math": r",\quad ".join(parts), "text": "",
+             "plain": ", ".join(plain)}] if parts else []
 
 
 def _approximation_item(q, digits=DEFAULT_DIGITS) -> dict:
@@ -372,6 +383,7 @@ def _approximation_item(q, digits=DEFAULT_DIGITS) -> dict:
         math = to_latex(sympy.Symbol(q.name)) + r" \approx " + form \
             if visual_len(form) <= 2 * SHORT_FORM else ""
         return {"label": "approximation", "math": math,
+                "plain": f"{q.name} ≈ {to_text(a['expr'])}" if math else "",
                 "text": f"relative error at most {pct(a['max_error'])} over the tolerance box"
                         + (" and band" if a.get("band") else "") + " "
                         f"(asked: within {pct(a['within'])}; bound {how})"}
@@ -443,8 +455,11 @@ def request_summary(record, r) -> list:
         form = to_latex(q.expr) if q.expr is not None else None
         math = name + (" = " + form if form and visual_len(form) <= SHORT_FORM else "")
         value = _value_text(q.value, q.unit, d) if q.value is not None else ""
+        short = form and visual_len(form) <= SHORT_FORM
         items.append({"label": "inverted formula" if q.form == "inverted" else "",
-                      "math": math, "text": ("= " + value) if value else
+                      "math": math,
+                      "plain": q.name + (f" = {to_text(q.expr)}" if short else ""),
+                      "text": ("= " + value) if value else
                       (f"no value: {q.undefined}" if getattr(q, "undefined", None) else
                        "no value (symbolic)") +
                       (", closed form below" if form and visual_len(form) > SHORT_FORM
@@ -469,7 +484,7 @@ def request_summary(record, r) -> list:
         if rss:
             txt += f"; RSS {_eng(rss['low'], unit, d)} to {_eng(rss['high'], unit, d)}"
         items.append({"label": "tolerance band", "math": to_latex(sympy.Symbol(name)) if name
-                      else "", "text": txt})
+                      else "", "plain": name, "text": txt})
     if "sensitivities" in x:
         sens = sorted(x["sensitivities"].items(),
                       key=lambda kv: (kv[1].get("rank") or 1e9, kv[0]))[:3]
