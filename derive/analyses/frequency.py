@@ -245,11 +245,8 @@ def analyse_quantity(q, nominal) -> tuple:
     if f["w_corner"] is not None:
         eqs.append(Equation(sympy.Symbol("omega_c"), f["w_corner"], ind.get("w_corner")))
     step = Step(f"{q.name} as a rational function of s, normalised so that the lowest-order "
-                "term of the denominator is 1" + (": second order, ω0 and Q read from the denominator"
-                                 if f["w0"] is not None else
-                                 ": first order, corner frequency ωc" if f["w_corner"] is not None
-                                 else ""), [e for e in eqs if e.rhs is not sympy.oo],
-                kind="frequency")
+                "term of the denominator is 1: " + _orders(f),
+                [e for e in eqs if e.rhs is not sympy.oo], kind="frequency")
     num = [c.xreplace(nominal) for c in f["numerator"]]
     den = [c.xreplace(nominal) for c in f["denominator"]]
     coeffs = None
@@ -332,6 +329,28 @@ def response_quantity(q, word: str, loc):
                                value=None, ratio=None, sequence=[], in_sequence=None,
                                form="second-order denominator", notes=[], validity=[],
                                approximation=None)
+
+
+def _orders(f) -> str:
+    """The orders of a normalised form in words, and where ω0, Q or ωc are read from: the
+    whole denominator, or its factor after the poles at s = 0 (``s·(1 + a1·s)`` is a
+    second-order denominator whose factor 1 + a1·s gives the corner)."""
+    num = [c for c in f["numerator"]]
+    den = [c for c in f["denominator"]]
+    n = max((i for i, c in enumerate(num) if c != 0), default=0)
+    d = len(den) - 1
+    p = next((i for i, c in enumerate(den) if c != 0), 0)
+    words = f"numerator of order {n}, denominator of order {d} in s"
+    sp = "s" if p == 1 else f"s^{p}"
+    if f["w0"] is not None:
+        words += (f"; the denominator is {sp}·(1 + a1·s + a2·s²): ω0 and Q are read from its "
+                  "second-order factor" if p else
+                  "; ω0 and Q are read from the second-order denominator 1 + a1·s + a2·s²")
+    elif f["w_corner"] is not None:
+        words += (f"; the denominator is {sp}·(1 + a1·s): the corner frequency ωc = 1/a1 is "
+                  "that of its first-order factor" if p else
+                  "; corner frequency ωc = 1/a1 of the first-order denominator 1 + a1·s")
+    return words
 
 
 def _independent(expr) -> dict:

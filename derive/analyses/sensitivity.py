@@ -584,7 +584,7 @@ def _steps(a: Analysed, digits: int = DEFAULT_DIGITS) -> list:
     st = Step(txt, eqs, [str(s.symbol) for s in a.sens], kind="sensitivity")
     st.verify()
     steps.append(st)
-    rows = [["symbol", f"d{name}/dx at nominal", "S = (x/Q) dQ/dx", "rank"]]
+    rows = [["symbol", f"d{name}/dx at nominal", f"S = (x/{name}) d{name}/dx", "rank"]]
     for k, s in enumerate(a.sens, 1):
         rows.append([str(s.symbol), g(s.d_value, digits), g(s.s_value, digits), str(k)])
     top = a.sens[0] if a.sens else None

@@ -239,9 +239,10 @@ def _move_step(m, env, defs) -> Step:
         if ex != 0 and ey != 0 and el in defs:
             eqs.append(Equation(_vname(r, el, defs), ex + ey, check=el, defs=defs))
         if not eqs:
+            e, a, b = _oriented(el, r.a, r.b)
             return Step(f"{_label(x)} and {_label(y)} are in series: nothing else connects at "
                         f"node {m['node']}, so they form one branch: open-circuit voltage "
-                        f"{el} (node {r.a} relative to node {r.b}) behind {r.Z}.", [],
+                        f"{e} (node {a} relative to node {b}) behind {r.Z}.", [],
                         members, kind="reduction")
         return Step(f"{_label(x)} and {_label(y)} are in series: nothing else connects at node "
                     f"{m['node']}, so they carry the same current; impedances (and source "
@@ -279,9 +280,14 @@ def _move_step(m, env, defs) -> Step:
     ex, ey = x.E.xreplace(env), y.E.xreplace(env)
     text = f"{_label(x)} and {_label(y)} are in parallel {between}"
     if ex != 0 or ey != 0:
-        srcs = [f"{_label(b)} (open-circuit voltage {e}, node {b.a} relative to node {b.b}, "
-                f"behind {b.Z}) becomes a current source {_quot(e, b.Z)} in parallel with "
-                f"{b.Z}" for b, e in ((x, ex), (y, ey)) if e != 0]
+        srcs = []
+        for b, e in ((x, ex), (y, ey)):
+            if e != 0:
+                shown, hi, lo = _oriented(e, b.a, b.b)
+                srcs.append(f"{_label(b)} (open-circuit voltage {shown}, node {hi} relative to "
+                            f"node {lo}, behind {b.Z}) becomes a current source "
+                            f"{_quot(shown, b.Z)} in parallel with {b.Z}, driving current "
+                            f"from node {lo} to node {hi}")
         text = ("Source transformation: " + "; ".join(srcs) + ". " + text +
                 ": the currents add, the impedances combine in parallel, and the result "
                 "transforms back into a voltage source behind the parallel impedance")
@@ -289,6 +295,15 @@ def _move_step(m, env, defs) -> Step:
         lhs = _vname(r, el, defs)
         eqs.append(Equation(lhs, zl * (ex / x.Z + ey / y.Z), check=el, defs=d))
     return Step(text + ".", eqs, members, kind="reduction")
+
+
+def _oriented(e, a, b) -> tuple:
+    """(voltage, node, node): a branch's open-circuit voltage said the way it is positive
+    where that is evident (``-Vpack`` of node gnd relative to tap is ``Vpack`` of node tap
+    relative to gnd), so one source reads the same in every step."""
+    if isinstance(e, sympy.Basic) and e.could_extract_minus_sign():
+        return -e, b, a
+    return e, a, b
 
 
 def _quot(a, b) -> str:

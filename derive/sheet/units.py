@@ -386,13 +386,13 @@ def check_digits(digits) -> int:
 
 def format_value(value, unit: Optional[str] = None, digits: int = DEFAULT_DIGITS) -> str:
     """A computed value for a record: with a unit, engineering notation with its SI prefix
-    (:func:`format_eng`); without one, plain significant figures (engineering notation only
-    where the plain number would need an exponent). ``None`` is ``'n/a'``.
+    (:func:`format_eng`); without one, plain significant figures (an exponent where the
+    plain number needs one, never a bare prefix letter). ``None`` is ``'n/a'``.
 
     >>> format_value(0.00500499, 'V'), format_value(-0.00750250, 'V', 6)
     ('5.005 mV', '-7.50250 mV')
     >>> format_value(-0.4995, None), format_value(1, None), format_value(1.5e-7, None, 3)
-    ('-0.4995', '1.000', '150n')
+    ('-0.4995', '1.000', '1.50e-07')
     >>> format_value(None), format_value(1234.6, None)
     ('n/a', '1235')
     >>> format_value(2.5e-11, 'V^2')
@@ -415,8 +415,8 @@ def format_value(value, unit: Optional[str] = None, digits: int = DEFAULT_DIGITS
         return format_eng(value, unit, digits)
     x = float(value)
     t = f"{x:#.{digits}g}"                  # keeps its trailing zeros: 1.000, like 1.000 V
-    if "e" in t:
-        return format_eng(x, None, digits)
+    if "e" in t:                            # no bare prefix letter: 4.917e+11, not 491.7G
+        return f"{x:.{digits - 1}e}"
     return t[:-1] if t.endswith(".") else t
 
 
