@@ -16,7 +16,7 @@ import sympy
 
 from derive.circuit.build import S
 from derive.export.printing import to_text
-from derive.sheet.units import format_value
+from derive.sheet.units import format_bound
 
 C_KEYWORDS = set("""auto break case char const continue default do double else enum extern
 float for goto if inline int long register restrict return short signed sizeof static struct
@@ -201,7 +201,7 @@ def _approximate(c, q, name, names, origin, order, digits: int = 4):
     params = sorted(e.free_symbols, key=lambda x: (order.get(x.name, 10**6), x.name))
     units = [getattr(c.symbols.get(x.name), "unit", None) for x in params]
     how = "proven" if a.get("proven") else f"searched at {a.get('points')} points"
-    bound = format_value(a["max_error"] * 100, None, digits)
+    bound = format_bound(a["max_error"] * 100, digits)          # rounded up: still a bound
     what = (f"{q.name}, approximately: relative error at most {bound} % "
             f"over the tolerance box (asked: within {a['within'] * 100:g} %; bound {how})")
     return Formula(ident(name + "_approx", names), list(zip(params, units)), [], e, q.unit,

@@ -15,7 +15,7 @@ from derive.export.printing import equation_lines, to_latex, visual_len
 from derive.forms.text import to_text
 from derive.sheet import kinds as element_kinds
 from derive.sheet import quantities
-from derive.sheet.units import DEFAULT_DIGITS, format_eng, format_exact, format_value
+from derive.sheet.units import DEFAULT_DIGITS, format_bound, format_eng, format_exact, format_value
 
 # Extra-low voltage limits of IEC 61140 (from memory): 50 V a.c. r.m.s., 120 V ripple-free
 # d.c. A sheet does not say whether a source is ripple-free, so the lower figure is used.
@@ -375,8 +375,8 @@ def _frequency_items(record, r, q):
 def _approximation_item(q, digits=DEFAULT_DIGITS) -> dict:
     """The summary line of ``approximately within``: the short form and its bound."""
     a = q.approximation
-    pct = lambda v: (_pct(v, digits) if v < 10 else      # noqa: E731
-                     f"{v * 100:,.0f} %".replace(",", " "))
+    pct = lambda v: (f"{format_bound(v * 100, digits)} %" if v < 10 else      # noqa: E731
+                     f"{v * 100:,.0f} %".replace(",", " "))      # a bound, rounded up
     how = "proven" if a.get("proven") else f"searched, {a.get('points')} points"
     if a.get("met"):
         form = to_latex(a["expr"])
@@ -386,10 +386,10 @@ def _approximation_item(q, digits=DEFAULT_DIGITS) -> dict:
                 "plain": f"{q.name} ≈ {to_text(a['expr'])}" if math else "",
                 "text": f"relative error at most {pct(a['max_error'])} over the tolerance box"
                         + (" and band" if a.get("band") else "") + " "
-                        f"(asked: within {pct(a['within'])}; bound {how})"}
+                        f"(asked: within {a['within'] * 100:g} %; bound {how})"}
     best = a.get("max_error")
     return {"label": "approximation", "math": "",
-            "text": f"no form shorter than the exact one meets {pct(a['within'])}" +
+            "text": f"no form shorter than the exact one meets {a['within'] * 100:g} %" +
                     (f"; the best of the shortest forms tried is within {pct(best)}"
                      if best is not None else "")}
 

@@ -420,6 +420,26 @@ def format_value(value, unit: Optional[str] = None, digits: int = DEFAULT_DIGITS
     return t[:-1] if t.endswith(".") else t
 
 
+def format_bound(value, digits: int = DEFAULT_DIGITS) -> str:
+    """An upper bound (a non-negative number) with ``digits`` significant figures, rounded
+    up so that it stays a bound.
+
+    >>> format_bound(0.02240012, 2), format_bound(0.0224, 4), format_bound(0)
+    ('0.023', '0.02240', '0')
+    """
+    from decimal import ROUND_CEILING, Decimal
+    x = float(value)
+    if not math.isfinite(x) or x <= 0:
+        return format_value(x, None, digits) if x else "0"
+    d = Decimal(repr(x))
+    q = Decimal(1).scaleb(d.adjusted() - digits + 1)
+    up = d.quantize(q, rounding=ROUND_CEILING)
+    if up.adjusted() > d.adjusted():                    # 0.0999 -> 0.10: one digit fewer
+        up = up.quantize(q.scaleb(1), rounding=ROUND_CEILING)
+    t = format(up, "f") if -6 <= up.adjusted() < 15 else f"{float(up):.{digits - 1}e}"
+    return t
+
+
 def format_exact(value, unit: Optional[str] = None) -> str:
     """An entered (exact rational) value in engineering notation with all of its digits and
     no rounding: 350.7 ohm stays 350.7 Ω, 4.7k stays 4.7 kΩ. A value with no finite decimal
