@@ -269,6 +269,7 @@ NO_CLAIMS = "no check claims in the sheet"
 def check_lines(record):
     """(lines, ok): one ``PASS``/``FAIL`` line per ``check`` claim of a derived record."""
     lines, ok = [], True
+    digits = getattr(record, "digits", None) or 4
     for r in record.results:
         if r.request.statement != "check":
             continue
@@ -278,7 +279,8 @@ def check_lines(record):
         if not holds:
             line += f" — {r.extra.get('diagnosis')}"
             if r.extra.get("relative_error") is not None:
-                line += f" (relative error at nominal {r.extra['relative_error']:.3g})"
+                line += (" (relative error at nominal "
+                         f"{format_value(r.extra['relative_error'], None, digits)})")
         lines.append(line)
         lines += [f"  note: {n}" for n in r.notes]
     if not lines:

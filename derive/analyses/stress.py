@@ -418,7 +418,7 @@ def _steps(ctx, req, out, internals, T, temp, subs) -> list:
                               f"{float(tc) * 1e6:g} ppm/K" if tc is not None else "",
                               it["mono"].get(x, "")])
         txt = (f"{key}: worst {what} {_eng(s['worst'], s['unit'], d)} (nominal "
-               f"{_eng(s['nominal'], s['unit'], d)}; limit {_eng(s['limit'], s['unit'], d)}: "
+               f"{_eng(s['nominal'], s['unit'], d)}; limit {_entered(s['limit'], s['unit'])}: "
                f"{'ok' if s['ok'] else 'EXCEEDED'}), at {s['at']}. Method: {s['method']}."
                + (" The worst value was recomputed exactly from the closed form without "
                   "drift at the drifted part values of that corner, and agrees."
@@ -455,5 +455,5 @@ def check_lines(record) -> tuple:
             label = f"{key} ({s['quantity']})" if key == s["element"] else key
             lines.append(f"{'PASS' if s['ok'] else 'FAIL'} line {r.request.loc.line}: stress "
                          f"of {label}: worst {_eng(s['worst'], u, d)} "
-                         f"{'<=' if s['ok'] else '>'} limit {_eng(s['limit'], u, d)}")
+                         f"{'<=' if s['ok'] else '>'} limit {_entered(s['limit'], u)}")
     return lines, ok

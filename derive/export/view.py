@@ -422,7 +422,7 @@ def _stress_items(stress, d=DEFAULT_DIGITS) -> list:
         u = s["unit"]
         items.append({"label": f"stress {key}", "math": "", "text":
                       f"{'ok' if s['ok'] else 'EXCEEDED'}: worst {s['quantity']} "
-                      f"{_eng(s['worst'], u, d)} of limit {_eng(s['limit'], u, d)} "
+                      f"{_eng(s['worst'], u, d)} of limit {_standard(s['limit'], u)} "
                       f"({_pct(s['use'], d)})"})
     return items
 
@@ -539,7 +539,8 @@ def review_items(x, d=DEFAULT_DIGITS) -> list:
 
 
 def _standard(v, unit) -> str:
-    """A preferred (series) value with the digits of its series: 4.87 kΩ, 100 nF."""
+    """A preferred (series) value with the digits of its series (4.87 kΩ, 100 nF), or a
+    stress limit, the exact rating × derating (125 mW)."""
     from fractions import Fraction
     return format_exact(Fraction(repr(float(v))), unit)
 
