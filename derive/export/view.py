@@ -264,13 +264,16 @@ def eng_prose(t: str, digits: int = 4) -> str:
 
     >>> eng_prose("= ± 0.00500499 V, so -0.0075025 to 2.50125e-06 V.")
     '= ± 5.005 mV, so -7.502 mV to 2.501 µV.'
-    >>> eng_prose("a 1 A test current, 350 Ω")
-    'a 1 A test current, 350 Ω'
+    >>> eng_prose("a 1 A test current, 350 Ω, 0.005 V")
+    'a 1 A test current, 350 Ω, 5 mV'
     """
     def long(n):
         return "e" in n or len(n.lstrip("-").replace(".", "").strip("0")) > digits
 
     def one(n, unit):
+        if not long(n):       # a short number (an entered value): all of its digits, no more
+            from fractions import Fraction
+            return format_exact(Fraction(n), unit)
         return format_eng(float(n), unit, digits=digits)
 
     def sub(m):
