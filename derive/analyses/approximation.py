@@ -693,7 +693,7 @@ def _power(k: int) -> str:
     return {1: "", 2: "²", 3: "³"}.get(k, f"^{k}")
 
 
-def assumptions(pb: Problem, sc: Screen, cand: Candidate) -> list:
+def assumptions(pb: Problem, sc: Screen, cand: Candidate, digits: int = 4) -> list:
     if cand.factors is not None:            # dominant terms per factor
         out = []
         for which, f, keep in cand.factors:
@@ -750,7 +750,8 @@ def _group_words(pb, which, terms, keep, T, P) -> list:
                        f"{_words(part(dropped, True) * (S ** k if k else 1))} of the {which} "
                        f"{'are' if len(dropped) > 1 else 'is'} negligible"
                        + (" over the band" if pb.band else "") +
-                       f": at most {share * 100:.3g} % of the {which} at nominal values")
+                       f": at most {format_bound(share * 100, digits)} % of the {which} at "
+                       "nominal values")
     return out
 
 
@@ -835,7 +836,7 @@ def _band_words(pb) -> str:
 
 def _success(q, req, pb, sc, c, b, digits: int = 4) -> dict:
     within = float(req.within)
-    words = assumptions(pb, sc, c)
+    words = assumptions(pb, sc, c, digits)
     name = q.name
     lhs = sympy.Symbol(f"{name}_approx")
     eq1 = Equation(lhs, c.expr, check=c.plain)

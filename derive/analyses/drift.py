@@ -128,8 +128,9 @@ def _value(ext) -> Fraction:
     return ext.value if ext.value is not None else (ext.lo + ext.hi) / 2
 
 
-def _deg(t) -> str:
-    return f"{float(t):.4g} °C"
+def _deg(t, digits: int = DEFAULT_DIGITS) -> str:
+    """A temperature: an end of the range as entered, a critical point to ``digits``."""
+    return f"{float(t):.{digits}g} °C"
 
 
 class Drift:
@@ -258,18 +259,18 @@ class Drift:
             cands.append([label, _deg(t0 + tt_), v_(v)])
         for cT in self.critical:
             v = fraction_of(self.N(fmpq_of(cT - t0)) / self.D(fmpq_of(cT - t0)))
-            cands.append(["critical point", _deg(cT), v_(v)])
+            cands.append(["critical point", _deg(cT, digits), v_(v)])
         for label, ext, at in (("min", self.low, self.at_low), ("max", self.high, self.at_high)):
             if ext.value is not None:
                 e = Equation(sympy.Symbol(f"{name}_{label}"), sympy.Rational(ext.value),
                              check=sympy.Rational(self.q_at(at - t0)))
                 eqs.append(e)
         crit = (f"{len(self.critical)} critical point(s) inside the range, at "
-                + ", ".join(_deg(cT) for cT in self.critical)) if self.critical else \
+                + ", ".join(_deg(cT, digits) for cT in self.critical)) if self.critical else \
             "no critical point inside the range (monotone in T)"
         s3 = Step(f"Candidates: the ends and {crit}. Extremes: {v_(_value(self.low))} "
-                  f"at {_deg(self.at_low)} and {v_(_value(self.high))} at "
-                  f"{_deg(self.at_high)} (each checked by an exact evaluation of the original "
+                  f"at {_deg(self.at_low, digits)} and {v_(_value(self.high))} at "
+                  f"{_deg(self.at_high, digits)} (each checked by an exact evaluation of the original "
                   "form at that temperature).", eqs, [], kind="drift", table=cands)
         steps = [s1, s2, s3]
         if self.coefficient is not None:
