@@ -16,6 +16,7 @@ from derive.errors import escaped
 from derive.export.view import view
 
 FORM_WIDTH = 56         # a longer closed form puts its value on the next line
+LABEL_WIDTH = 32        # a longer label puts its text on the next line
 
 
 def _safe(t) -> str:
@@ -45,11 +46,17 @@ def _items(items, width: int) -> list:
         else:
             head = "  " + left.ljust(col) + "  "
             out += _wrap(right, head, " " * len(head), width) if right else [head.rstrip()]
-    for i in items:
-        if i["label"]:
-            plain_math = i.get("plain", "") if i.get("math") else ""
-            text = " ".join(x for x in (_safe(plain_math), _safe(i["text"])) if x)
-            out += _wrap(text, f"  {_safe(i['label'])}: ", "      ", width)
+    labelled = [(_safe(i["label"]) + ":",
+                 " ".join(x for x in (_safe(i.get("plain", "") if i.get("math") else ""),
+                                      _safe(i["text"])) if x))
+                for i in items if i["label"]]
+    lcol = max((len(a) for a, _ in labelled if len(a) <= LABEL_WIDTH), default=0)
+    for label, text in labelled:
+        if len(label) > LABEL_WIDTH:            # a long label: its text on the next lines
+            out += ["  " + label] + _wrap(text, "      ", "      ", width)
+            continue
+        head = "  " + label.ljust(lcol) + " "
+        out += _wrap(text, head, " " * len(head), width) if text else [head.rstrip()]
     return out
 
 

@@ -426,7 +426,7 @@ def _stress_items(stress, d=DEFAULT_DIGITS) -> list:
         items.append({"label": f"stress {key}", "math": "", "text":
                       f"{'ok' if s['ok'] else 'EXCEEDED'}: worst {s['quantity']} "
                       f"{_eng(s['worst'], u, d)} of limit {_standard(s['limit'], u)} "
-                      f"({_pct(s['use'], d)})"})
+                      f"({s['use'] * 100:.1f} %)"})      # a share of the limit, as in the table
     return items
 
 
