@@ -68,6 +68,7 @@ def test_nominal_values_of_f0_w0_and_q():
     assert res[0]["spread"]["nominal"] == pytest.approx(w0, rel=1e-12)          # 9834 rad/s
     assert res[1]["spread"]["nominal"] == pytest.approx(w0 / (2 * math.pi), rel=1e-12)
     assert res[2]["spread"]["nominal"] == pytest.approx(q, rel=1e-12)           # 0.6761
+    assert [r["tolerance_unit"] for r in res] == ["rad/s", "Hz", None]
 
 
 @pytest.mark.parametrize("word, k", [("w0", 0), ("Q", 1), ("f0", 0)])

@@ -682,8 +682,9 @@ def spread_of(ctx: Context, a, req) -> tuple:
 
 def tolerance(ctx: Context, req) -> RequestResult:
     res = RequestResult(req)
-    by, figs = {}, []
+    by, figs, units = {}, [], {}
     for a in _sens.analysed(ctx, req):
+        units[a.q.name] = a.q.unit
         try:
             out, steps, values = spread_of(ctx, a, req)
         except (Unbounded, ZeroDivisionError) as e:
@@ -709,6 +710,7 @@ def tolerance(ctx: Context, req) -> RequestResult:
     first = next(iter(by))
     res.extra.update(by[first])
     res.extra["tolerance_of"] = first
+    res.extra["tolerance_unit"] = units[first]      # of spread, rss, ... (None: a number)
     res.extra["tolerance_by_quantity"] = by
     res.extra["figures"] = figs
     return res
