@@ -121,7 +121,12 @@ def _prose(md):
 def test_worked_markdown_has_no_needless_escapes(name):
     md = (ROOT / "worked" / f"{name}.md").read_text()
     prose = _prose(md)
-    assert not re.search(r"\\[-.()'\"!<>&=+:;,]", prose), re.findall(r".{20}\\[-.<&].{20}", prose)
+    # outside tables no backslash before punctuation that CommonMark leaves alone here
+    # (hyphens, periods, pipes, underscores inside words such as v_in ...)
+    lines = [l for l in prose.splitlines() if not l.lstrip().startswith("|")]
+    text = "\n".join(lines)
+    assert not re.search(r"\\[-.()'\"!<>&=+:;,|]|(?<=\w)\\_(?=\w)", text), \
+        re.findall(r".{20}\\[-.<&|_].{20}", text)
     assert not re.search(r"&#?\w+;", prose)
     # rendered by a CommonMark parser, the numbers of the summary come out as typed
     html = _md_parser().render(md)

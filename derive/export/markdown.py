@@ -32,12 +32,13 @@ def environment(extra_dir: Optional[str] = None,
     env.filters["eng"] = lambda v, unit=None: "—" if v is None else format_value(v, unit, digits)
     env.filters["md"] = md_text
     env.filters["txt"] = md_text
-    env.filters["celltxt"] = lambda t: md_text(t, line_start=False)   # inside a table row
+    env.filters["inline"] = lambda t: md_text(t, line_start=False)    # not at a line's start
+    env.filters["celltxt"] = lambda t: md_text(t, line_start=False, cell=True)  # table cell
     env.filters["cell"] = lambda t: str(t).replace("|", r"\vert ")
     return env
 
 
-_INLINE = set("\\`*_[]$|~")
+_INLINE = set("\\`*[]$~")
 # what opens a block at the start of a line: a heading, a quote, a bullet, a thematic break,
 # a setext underline, an ordered-list number ("1." or "1)" followed by a space)
 _LINE_START = re.compile(r"^(\s*)(#{1,6}(?=\s|$)|>|[+*-](?=\s|$)|(?:-[ \t]*){3,}$|=+\s*$"
@@ -46,24 +47,32 @@ _TAG_START = re.compile(r"<(?=[A-Za-z/!?])")      # a raw HTML tag, comment or a
 _ENTITY = re.compile(r"&(?=#?[A-Za-z0-9]+;)")      # an entity or character reference
 
 
-def md_text(t, line_start: bool = True) -> str:
+def md_text(t, line_start: bool = True, cell: bool = False) -> str:
     r"""User or generated text as literal Markdown: only what CommonMark (with tables, math
     and strikethrough) could read as markup is escaped, by a backslash, and nothing else:
     ``<`` only where it would open an HTML tag or an autolink, ``&`` only where it would
-    start an entity, a digit's period only where it would start a list. Hyphens, periods,
+    start an entity, a digit's period only where it would start a list, ``_`` only where it
+    is not inside a word (``v_in`` stays), ``|`` only in a table ``cell``. Hyphens, periods,
     quotes and comparisons in running text stay as they are; no HTML entity is written.
 
-    >>> md_text("a_b <script> $x$ - 2.5 V, it's, a < b & c")
-    "a\\_b \\<script> \\$x\\$ - 2.5 V, it's, a < b & c"
+    >>> md_text("a_b _x_ <script> $x$ - 2.5 V, it's, a < b & c, |x|")
+    "a_b \\_x\\_ \\<script> \\$x\\$ - 2.5 V, it's, a < b & c, |x|"
+    >>> md_text("|x|", cell=True)
+    '\\|x\\|'
+
     >>> md_text("# not a heading"), md_text("1. not a list"), md_text("7.968 V to 8.032 V")
     ('\\# not a heading', '1\\. not a list', '7.968 V to 8.032 V')
     >>> md_text("&amp; is not an entity here")
     '\\&amp; is not an entity here'
     """
     out = []
-    for ch in str(t):
-        if ch in _INLINE:
+    t = str(t)
+    for k, ch in enumerate(t):
+        if ch in _INLINE or (ch == "|" and cell):
             out.append("\\" + ch)
+        elif ch == "_" and not (0 < k < len(t) - 1 and t[k - 1].isalnum()
+                                and t[k + 1].isalnum()):
+            out.append("\\_")             # intraword underscores never make emphasis
         elif ch in "\r\n":
             out.append(" ")
         else:
