@@ -92,3 +92,33 @@ def test_code_comment_follows_digits(tmp_path, capsys):
     # largest at A = 50000, R2/R1 = 101k/9.9k: 11.20202/50000 = 0.02240404 %; rounded up
     # to 2 and 5 figures so that it stays a bound
     assert "at most 0.023 %" in two[0] and "at most 0.022405 %" in five[0]   # rounded up
+
+
+def test_plot_marks_follow_digits(monkeypatch, tmp_path):
+    """The Bode plot's f0 mark: 1/(2π·sqrt(R1 R2 C1 C2)) of the Sallen-Key low-pass of
+    tests/test_response.py (from memory) = 1565.164 Hz, at 3 and 6 figures."""
+    import math
+
+    import matplotlib.axes
+
+    sheet = ("voltage source Vin between in and gnd = 1 V\n"
+             "resistor R1 between in and a = 10 kohm\nresistor R2 between a and p = 22 kohm\n"
+             "capacitor C1 between a and out = 10 nF\ncapacitor C2 between p and gnd = 4.7 nF\n"
+             "opamp U1 inputs p, out output out\nport o between out and gnd\n"
+             "find gain from Vin to o\n")
+    f0 = 1 / (2 * math.pi * math.sqrt(10e3 * 22e3 * 10e-9 * 4.7e-9))
+    seen = []
+    real = matplotlib.axes.Axes.annotate
+
+    def spy(self, text, *a, **k):
+        seen.append(text)
+        return real(self, text, *a, **k)
+    monkeypatch.setattr(matplotlib.axes.Axes, "annotate", spy)
+    src = tmp_path / "sk.eqv"
+    src.write_text(sheet)
+    for digits in ("3", "6"):          # the figures drawn beside the Markdown record
+        assert main(["record", str(src), "-o", str(tmp_path / f"r{digits}.md"),
+                     "--digits", digits]) == 0
+        assert (tmp_path / f"r{digits}-bode_find_gain_from_Vin_to_o_gain.png").exists() or \
+            list(tmp_path.glob(f"r{digits}-*.png"))
+    assert f"f0 = {f0 / 1e3:.2f} kHz" in seen and f"f0 = {f0 / 1e3:.5f} kHz" in seen
