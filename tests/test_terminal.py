@@ -47,7 +47,8 @@ def test_terminal_gets_the_plain_summary(tmp_path, capsys, monkeypatch):
     assert "$" not in out and "\\" not in out and "&#" not in out and "**" not in out
     assert "## " not in out and "| " not in out
     assert "equations of the full record" in out
-    assert f"derive record {p} -o record.pdf (or .md, .tex, .json)" in " ".join(lines[-3:])
+    assert lines[-1] == (f"Full record with every step: derive record {p} -o record.pdf "
+                         "(or .md, .tex, .json), or pipe the output for Markdown.")
 
 
 def test_terminal_with_format_or_output_keeps_the_asked_format(tmp_path, capsys, monkeypatch):

@@ -80,7 +80,7 @@ def record_text(record, sheet: str = "SHEET") -> str:
                                                            "equation of the full record")
         out += [""] + _wrap(_safe(said), "", "", width)
     name = _safe(sheet)
-    out += [""] + _wrap(f"Summary only. The full record with every step: derive record "
-                        f"{name} -o record.pdf (or .md, .tex, .json); piped or redirected, "
-                        "standard output is the Markdown record.", "", "", width)
+    # one line, not wrapped (a command to copy)
+    out += ["", f"Full record with every step: derive record {name} -o record.pdf (or .md, "
+                ".tex, .json), or pipe the output for Markdown."]
     return "\n".join(out) + "\n"
