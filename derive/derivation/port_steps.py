@@ -150,7 +150,10 @@ def _reduction_steps(ctx, req, out, refs):
     plus, minus = ctx.port(req.port)
     steps = [Step(_intro(c, req, plus, minus, need_src, srcs), [], [], kind="port")]
     for m in moves:
-        steps.append(_move_step(m, env, defs))
+        st = _move_step(m, env, defs)
+        if st.text.startswith("the equivalent of "):    # a sentence starts with a capital
+            st.text = "T" + st.text[1:]
+        steps.append(st)
     E, Z = final.E.xreplace(env), final.Z
     eqs = []
     for n, q in out.quantities.items():
