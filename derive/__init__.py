@@ -26,6 +26,7 @@ class Record:
     """A derived sheet: the circuit and one result per request."""
     circuit: object
     results: list
+    digits: int = 4          # significant figures of computed values in every rendering
 
     def to_json(self) -> str:
         from derive.export.json_record import record_json
@@ -39,6 +40,11 @@ class Record:
         """The Markdown record (figures are not drawn: their captions stay)."""
         from derive.export.markdown import record_markdown
         return record_markdown(self, template_dir)
+
+    def to_text(self) -> str:
+        """The plain-text summary that ``derive record`` prints on a terminal."""
+        from derive.export.terminal import record_text
+        return record_text(self)
 
     def to_latex(self) -> str:
         """The LaTeX source of the record."""
@@ -88,11 +94,14 @@ def circuit_of(text: str, filename: str = "<sheet>"):
 
 
 def derive_text(text: str, filename: str = "<sheet>", symbolic: Optional[list] = None,
-                max_terms: float = 2e6, select=None, **options) -> Record:
+                max_terms: float = 2e6, select=None, digits: int = 4, **options) -> Record:
     """Derive every request of a sheet given as text (with ``select``, a predicate on
     :class:`derive.sheet.model.Request`, only the requests it accepts: ``derive check``
     answers its claims and nothing else).
 
+    ``digits`` is the number of significant figures of computed values in the record (its
+    prose, tables, summary and plots; entered values keep the digits they were written
+    with): a whole number from 1 to 15, else ``ValueError`` (``derive record --digits``).
     ``options`` are further :class:`derive.analyses.run.Options` fields (``mc_samples``,
     ``mc_seed``, ``mc_distribution`` for tolerance analysis).
 
@@ -108,15 +117,18 @@ def derive_text(text: str, filename: str = "<sheet>", symbolic: Optional[list] =
     (R1*R2/(R1 + R2), 800.0)
     """
     from derive.analyses.run import Options, run
+    from derive.sheet.units import check_digits
+    check_digits(digits)
     c = circuit_of(text, filename)
     if select is not None:
         import dataclasses
         c = dataclasses.replace(c, requests=[r for r in c.requests if select(r)])
     try:
-        results = run(c, Options(symbolic=symbolic, max_terms=max_terms, **options))
+        results = run(c, Options(symbolic=symbolic, max_terms=max_terms, digits=digits,
+                                 **options))
     except SheetError as e:
         raise e.with_context(text, filename)
-    return Record(c, results)
+    return Record(c, results, digits)
 
 
 def derive_file(path: str, **kw) -> Record:

@@ -1,8 +1,11 @@
 """The command line: a thin layer that turns the error root into a message and an exit code.
 
-    derive record SHEET [-o FILE] [--format md|tex|pdf|json] [--template DIR]
-    derive code   SHEET [--lang c|python] [-o FILE] [--with-tests]
+    derive record SHEET [-o FILE] [--format md|tex|pdf|json|text] [--template DIR] [--digits N]
+    derive code   SHEET [--lang c|python] [-o FILE] [--with-tests] [--digits N]
     derive check  SHEET
+
+``record`` without ``-o`` writes Markdown to standard output, or the plain-text summary
+(:mod:`derive.export.terminal`) where standard output is a terminal.
 
 Exit status: 0 success, 1 a ``check`` claim does not hold or a ``find stress`` limit is
 exceeded (``derive check``), 2 an invalid
@@ -35,7 +38,7 @@ from typing import Optional
 from derive.errors import DeriveError, SheetError
 
 MAX_SHEET_BYTES = 1_000_000
-FORMATS = ("md", "tex", "pdf", "json")
+FORMATS = ("md", "tex", "pdf", "json", "text")
 
 # Import names whose distribution (what ``pip install`` takes) is spelt differently.
 DISTRIBUTIONS = {"flint": "python-flint", "yaml": "pyyaml", "PIL": "pillow",
@@ -88,6 +91,12 @@ def _seed(text: str) -> int:
     return _whole(text, "the seed", 0)
 
 
+def _digits(text: str) -> int:
+    """``--digits``: significant figures of computed values, 1 to 15."""
+    from derive.sheet.units import MAX_DIGITS
+    return _whole(text, "the number of significant figures", 1, MAX_DIGITS)
+
+
 def _terms(text: str) -> float:
     """``--max-terms``: a positive number (``inf`` lifts the limit)."""
     try:
@@ -122,11 +131,16 @@ def _parser() -> argparse.ArgumentParser:
         sp.add_argument("--distribution", choices=("uniform", "normal"), default="uniform",
                         help="parts spread uniformly within tolerance, or normally with the "
                              "tolerance as 3 sigma")
+        sp.add_argument("--digits", type=_digits, default=4, metavar="N",
+                        help="significant figures of computed values (1 to 15, default 4); "
+                             "entered values stay as entered")
 
     r = sub.add_parser("record", help="write the design-calculation record")
     common(r)
     r.add_argument("-o", "--output", default=None, help="output file (format from extension)")
-    r.add_argument("--format", choices=FORMATS, default=None)
+    r.add_argument("--format", choices=FORMATS, default=None,
+                   help="md, tex, pdf, json, or text (the plain summary); default: from -o, "
+                        "else Markdown -- on a terminal the plain summary")
     r.add_argument("--template", default=None, metavar="DIR",
                    help="a folder of templates that override the built-in ones")
     c = sub.add_parser("code", help="requested formulas as C or Python functions")
@@ -187,8 +201,13 @@ def _read(path: str, stdin_data: Optional[bytes] = None) -> tuple[str, str]:
 
 
 def _format_of(args) -> str:
+    """The format of ``derive record``: ``--format``, else the extension of ``-o``, else
+    Markdown on standard output -- or, where standard output is a terminal (``args.tty``,
+    decided by :func:`main` before any work), the plain-text summary."""
     if args.format:
         return args.format
+    if not args.output and getattr(args, "tty", False):
+        return "text"
     if args.output:
         ext = os.path.splitext(args.output)[1].lower().lstrip(".")
         return {"markdown": "md", "md": "md", "tex": "tex", "pdf": "pdf", "json": "json"}.get(
@@ -215,7 +234,7 @@ def _run(args, stdin_data: Optional[bytes] = None) -> int:
         from derive.export.formats import gives_verdict as select
     rec = derive_text(text, name, symbolic=symbolic, max_terms=args.max_terms,
                       mc_samples=args.samples, mc_seed=args.seed,
-                      mc_distribution=args.distribution, select=select)
+                      mc_distribution=args.distribution, select=select, digits=args.digits)
     if args.command == "record":
         fmt = _format_of(args)
         from derive.export.formats import render
@@ -519,6 +538,13 @@ def _supervised(args, timeout: float, warm: bool = False) -> _Result:
                               "answer (out of memory?) (please report it)\n")
 
 
+def _is_terminal(stream) -> bool:
+    try:
+        return bool(stream.isatty())
+    except (AttributeError, OSError, ValueError):
+        return False
+
+
 def main(argv: Optional[list] = None) -> int:
     in_process = argv is not None        # called from Python, perhaps many times
     if argv is None:
@@ -527,6 +553,7 @@ def main(argv: Optional[list] = None) -> int:
         args = _parser().parse_args(list(argv))
     except SystemExit as e:          # usage error (message already printed) or --help
         return e.code if isinstance(e.code, int) else (0 if e.code is None else 2)
+    args.tty = _is_terminal(sys.stdout)      # decided here: a worker's stdout is /dev/null
     try:
         if args.timeout is not None and hasattr(os, "fork"):
             res = _supervised(args, args.timeout, warm=in_process)

@@ -141,7 +141,7 @@ def test_json_keys_and_the_standard_values_column(tmp_path, capsys):
     assert c["values"] == {"R2": 3300.0}
     assert main(["record", str(path)]) == 0
     md = capsys.readouterr().out
-    assert "with standard values" in md and "3.300 kΩ" in md
+    assert "with standard values" in md and "3.3 kΩ" in md
 
 
 @pytest.mark.parametrize("line, col, needle", [

@@ -40,7 +40,7 @@ def test_tex_source_has_amsmath_siunitx_and_values():
     rec = derive.derive_text(SHEET)
     tex = export_latex.render(rec, "tex")
     assert r"\usepackage{amsmath}" in tex and r"\usepackage{siunitx}" in tex
-    assert r"\SI{8.00}{\volt}" in tex and r"\SI{800}{\ohm}" in tex   # 10*4/5 V, 1k||4k
+    assert r"\SI{8.000}{\volt}" in tex and r"\SI{800.0}{\ohm}" in tex   # 10*4/5 V, 1k||4k
     assert r"\begin{aligned}" in tex
 
 
@@ -58,7 +58,7 @@ def test_pdf_keeps_user_text_literal(tmp_path):
     flat = " ".join(text.split())
     assert r"\input{/etc/passwd}" in flat and r"\write18{touch pwned}" in flat
     assert "50% a&b #1 a_b {} <script>" in flat
-    assert "8.00 V" in flat
+    assert "8.000 V" in flat
 
 
 def test_missing_tex_is_a_clear_error_and_tex_is_written(tmp_path, monkeypatch, capsys):

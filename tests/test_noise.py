@@ -403,7 +403,7 @@ def test_input_referred_noise_of_the_non_inverting_amplifier():
 def test_notebook_summary_and_markdown_record_show_the_rms():
     rec = run(DIVIDER)
     rms = math.sqrt(4 * K * T25 * 8e3 * (10e3 - 10))          # 4kT(R1||R2)·band, as above
-    from derive.sheet.units import format_eng
+    from derive.sheet.units import format_eng, format_value
     md = rec.results[0]._repr_markdown_()
-    assert f"output noise {format_eng(rms, 'V')} rms" in md
-    assert f"output noise: {format_eng(rms, 'V', digits=4)} rms" in rec.to_markdown().replace("\\.", ".")
+    assert f"output noise {format_value(rms, 'V')} rms" in md
+    assert f"output noise: {format_eng(rms, 'V', digits=4)} rms" in rec.to_markdown()

@@ -389,8 +389,8 @@ def test_pdf_with_control_characters_pi_and_underscore_builds(tmp_path, capsys):
                           text=True, check=True).stdout
     assert "Bad ? title ? here ? end" in " ".join(text.split())
     assert "π" not in text
-    # divider: 5 V * 2k/(1k + 2k) = 3.33 V (common practice)
-    assert "3.33 V" in text
+    # divider: 5 V * 2k/(1k + 2k) = 3.333 V (common practice)
+    assert "3.333 V" in text
 
 
 # ------------------------------------------------------------------ 8. step text

@@ -215,7 +215,7 @@ def test_summary_carries_every_answer():
     # rth = Rpu || Rt holds exactly; vth = Vref*Rt/Rpu does not (hand calculation)
     assert verdicts[0].startswith("holds") and verdicts[1].startswith("does not hold")
     solve = items["solve vth at divider for Rt"]
-    assert solve[0]["label"] == "inverted formula" and "10.0 kΩ" in solve[0]["text"]
+    assert solve[0]["label"] == "inverted formula" and "10.00 kΩ" in solve[0]["text"]
     bridge = {r["request"]: r["summary"] for r in view(record(WORKED / "strain_bridge.eqv"))
               ["results"]}
     band = bridge["find tolerance of vth at out"][0]["text"]

@@ -50,6 +50,7 @@ import sympy
 from derive.analyses import sensitivity as sens
 from derive.analyses import tolerance
 from derive.circuit.build import S
+from derive.sheet.units import format_bound
 from derive.derivation.steps import Equation, Step
 from derive.errors import SheetError
 from derive.forms.results import RequestResult
@@ -692,7 +693,7 @@ def _power(k: int) -> str:
     return {1: "", 2: "²", 3: "³"}.get(k, f"^{k}")
 
 
-def assumptions(pb: Problem, sc: Screen, cand: Candidate) -> list:
+def assumptions(pb: Problem, sc: Screen, cand: Candidate, digits: int = 4) -> list:
     if cand.factors is not None:            # dominant terms per factor
         out = []
         for which, f, keep in cand.factors:
@@ -749,15 +750,24 @@ def _group_words(pb, which, terms, keep, T, P) -> list:
                        f"{_words(part(dropped, True) * (S ** k if k else 1))} of the {which} "
                        f"{'are' if len(dropped) > 1 else 'is'} negligible"
                        + (" over the band" if pb.band else "") +
-                       f": at most {share * 100:.3g} % of the {which} at nominal values")
+                       f": at most {format_bound(share * 100, digits)} % of the {which} at "
+                       "nominal values")
     return out
 
 
 # ---------------------------------------------------------------- the analysis
 def _percent(v: float) -> str:
+    """An entered bound E (``within 1%``) as written."""
     if v >= 10:
         return f"{v * 100:,.0f} %".replace(",", " ")
     return f"{v * 100:.3g} %"
+
+
+def _error_percent(v: float, digits: int) -> str:
+    """A computed largest error, rounded up so that it stays a bound (``--digits``)."""
+    if v >= 10:
+        return f"{v * 100:,.0f} %".replace(",", " ")
+    return f"{format_bound(v * 100, digits)} %"
 
 
 def _bound_up(v: float) -> sympy.Float:
@@ -809,9 +819,9 @@ def approximate(ctx, req, q) -> dict | None:
     if chosen is None:
         short = [(c, establish(pb, sc, c)) for c in shortest_tried(pb, sc)] \
             if len(pb.num) + len(pb.den) > 2 else []
-        return _failure(q, req, pb, short + tried)
+        return _failure(q, req, pb, short + tried, ctx.options.digits)
     c, b = chosen
-    return _success(q, req, pb, sc, c, b)
+    return _success(q, req, pb, sc, c, b, ctx.options.digits)
 
 
 def _band_words(pb) -> str:
@@ -824,9 +834,9 @@ def _band_words(pb) -> str:
     return f"over the whole tolerance box and the band {hz(lo)} to {hz(hi)} at s = j·2π·f"
 
 
-def _success(q, req, pb, sc, c, b) -> dict:
+def _success(q, req, pb, sc, c, b, digits: int = 4) -> dict:
     within = float(req.within)
-    words = assumptions(pb, sc, c)
+    words = assumptions(pb, sc, c, digits)
     name = q.name
     lhs = sympy.Symbol(f"{name}_approx")
     eq1 = Equation(lhs, c.expr, check=c.plain)
@@ -839,7 +849,8 @@ def _success(q, req, pb, sc, c, b) -> dict:
             f"adding terms back largest first until the magnitude of the relative error "
             f"({name}_approx − {name})/{name} stays within {_percent(within)} "
             f"{_band_words(pb)}. "
-            f"The largest relative error is {_percent(b.value)} (bound {method_word(b)}). "
+            f"The largest relative error is {_error_percent(b.value, digits)} (bound "
+            f"{method_word(b)}). "
             + ("Assumptions: " + "; ".join(words) + "." if words else ""))
     step = Step(text, [eq1, eq2], kind="approximation")
     step.verify()
@@ -877,7 +888,7 @@ def _recheck(pb, c, b, bound) -> bool:
     return True
 
 
-def _failure(q, req, pb, tried) -> dict:
+def _failure(q, req, pb, tried, digits: int = 4) -> dict:
     within = float(req.within)
     shown = []
     for c, b in tried:
@@ -891,7 +902,8 @@ def _failure(q, req, pb, tried) -> dict:
     shown.sort(key=lambda s: len(to_text(s["expr"])))
     best = min((s["max_error"] for s in shown if s["max_error"] is not None), default=None)
     tried_words = "; ".join(f"{_words(s['expr'])} ({s['form']}): largest error "
-                            + (_percent(s["max_error"]) if s["max_error"] is not None else
+                            + (_error_percent(s["max_error"], digits)
+                               if s["max_error"] is not None else
                                "unbounded (the exact value is 0 at a point of the box)")
                             for s in shown)
     text = (f"Approximation of {q.name} within {_percent(within)}: no form shorter than the "

@@ -34,6 +34,7 @@ from derive.analyses import tolerance as _tol
 from derive.derivation.steps import Equation, Step
 from derive.errors import SheetError
 from derive.forms.results import Context, RequestResult
+from derive.sheet.units import format_value
 
 
 def temperature_symbol(ctx) -> sympy.Symbol:
@@ -54,7 +55,10 @@ def with_temperature(form, tcs: dict, tau) -> "_sens.Form":
 def budget_of(ctx: Context, a, tcs: dict, req) -> tuple:
     """(JSON dict, contributions, steps) of one analysed quantity."""
     name, unit = a.q.name, a.q.unit
-    u = f" {unit}" if unit else ""
+    d = ctx.options.digits
+
+    def v(x):
+        return format_value(x, unit, d)
     if a.nominal_value is None:
         missing = sorted(str(x) for x in a.form.base_symbols() if x not in ctx.nominal)
         raise SheetError(f"the budget of {name} needs nominal values of: {', '.join(missing)}",
@@ -124,8 +128,8 @@ def budget_of(ctx: Context, a, tcs: dict, req) -> tuple:
             eqs.append(e)
     table = [["part", "source", "amount", f"contribution ({unit or '-'})", "share of the column sum"]]
     for r in rows:
-        table.append([r["part"], r["source"], r["detail"], f"{r['value']:.6g}",
-                      f"{r['share'] * 100:.1f} %"])
+        table.append([r["part"], r["source"], r["detail"], format_value(r["value"], None, d),
+                      f"{format_value(r['share'] * 100, None, d)} %"])
     sub = ", ".join(f"{x} → {x}·(1 + tc·{tau})" for x in sorted(map(str, tcs))) or "none"
     steps = [
         Step(f"Tolerance and temperature together: each toleranced part varies over its "
@@ -134,12 +138,12 @@ def budget_of(ctx: Context, a, tcs: dict, req) -> tuple:
              f"Σ d{name}/dx·x0·tc_x (checked against the derivative of {name} with the "
              f"temperature variable, exactly).", eqs, [str(x) for x in tcs], kind="budget"),
         Step(f"First-order contributions at nominal values, ranked (the parts' drift terms "
-             f"share one temperature and add with their signs: together ± {c_t:.6g}{u}). "
+             f"share one temperature and add with their signs: together ± {v(c_t)}). "
              f"RSS (first order, independent tolerances and the one temperature term): "
-             f"± {rss:.6g}{u}, so {q0 - rss:.6g} to {q0 + rss:.6g}{u}.",
+             f"± {v(rss)}, so {v(q0 - rss)} to {v(q0 + rss)}.",
              kind="budget", table=table),
-        Step(f"Extreme values over the tolerance box and the temperature range: {lo:.6g} to "
-             f"{hi:.6g}{u} (nominal {q0:.6g}{u}). Method: {method}.", kind="budget"),
+        Step(f"Extreme values over the tolerance box and the temperature range: {v(lo)} to "
+             f"{v(hi)} (nominal {v(q0)}). Method: {method}.", kind="budget"),
     ]
     for s in steps:
         s.verify()

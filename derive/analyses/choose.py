@@ -56,6 +56,7 @@ from derive.forms import select as forms
 from derive.forms.results import Context, RequestResult
 from derive.forms.text import to_text
 from derive.solver import univariate
+from derive.sheet.units import format_exact, format_value
 
 MAX_COMBINATIONS = 200_000
 RUNNERS_UP = 4
@@ -288,7 +289,8 @@ def _continuous(pb: Problem, name: str):
     if not roots:
         return None, [], "no positive value of it gives the target exactly"
     vals = [(lo + hi) / 2 for lo, hi, _ in roots]
-    text = ", ".join(f"{float(v):.6g}" for v in vals)
+    text = ", ".join(format_value(float(v), pb.ctx.circuit.symbols[key_of(name)].unit,
+                                  pb.ctx.options.digits) for v in vals)
     eq = None
     f = pb.form
     x = pb.chosen[0]
@@ -332,7 +334,12 @@ def answer(ctx: Context, req) -> RequestResult:
     err, vals, v = ranked[0]
     names = list(req.symbols)
     unit = pb.q.unit
-    u = f" {unit}" if unit else ""
+    u = f" {unit}" if unit else ""          # after the entered target
+    d = ctx.options.digits
+    units = {n: ctx.circuit.symbols[key_of(n)].unit for n in names}
+
+    def v_(x):
+        return format_value(float(x), unit, d)
     runners = [{"values": {n: float(x) for n, x in zip(names, c)}, "result": float(r),
                 "error": float(e)} for e, c, r in ranked[1:1 + RUNNERS_UP]]
     one = len(names) == 1
@@ -365,7 +372,7 @@ def answer(ctx: Context, req) -> RequestResult:
         for lim, where in zip(_limits(pb, N, D), ("0", "infinity")):
             if lim is not None and pb.error(lim) < err:
                 res.notes.append(f"{pb.q.name} comes closer to the target as {names[0]} goes to "
-                                 f"{where} (limit {float(lim):.6g}{u}) than at any value "
+                                 f"{where} (limit {v_(lim)}) than at any value "
                                  "next to its special points.")
     else:
         steps.append(Step(f"Search: {method}. {pb.evaluations} exact evaluations (an exhaustive "
@@ -374,17 +381,17 @@ def answer(ctx: Context, req) -> RequestResult:
                           kind="choice"))
     table = [["rank", *names, pb.q.name, "relative error"]]
     for k, (e, c, r) in enumerate(ranked[:1 + RUNNERS_UP], 1):
-        table.append([str(k), *[f"{float(x):.6g}" for x in c], f"{float(r):.8g}{u}",
-                      f"{float(e):.3e}"])
+        table.append([str(k), *[format_exact(x, units[n]) for n, x in zip(names, c)], v_(r),
+                      format_value(float(e), None, d)])
     point = {**{k: v for k, v in pb.nominal.items()},
              **{x: sympy.Rational(c.numerator, c.denominator) for x, c in zip(pb.chosen, vals)}}
     again = pb.form.value(point)
     check = Equation(sympy.Symbol(f"{pb.q.name}_chosen"), sympy.Rational(v.numerator, v.denominator),
                      check=sympy.Rational(again) if again is not None else None)
     steps.append(Step(f"Best {req.series} choice: " +
-                      ", ".join(f"{n} = {float(x):.6g}" for n, x in zip(names, vals)) +
-                      f", giving {pb.q.name} = {float(v):.8g}{u} against the target "
-                      f"{float(pb.target):g}{u} (relative error {float(err):.3e}; exact "
+                      ", ".join(f"{n} = {format_exact(x, units[n])}" for n, x in zip(names, vals)) +
+                      f", giving {pb.q.name} = {v_(v)} against the target "
+                      f"{float(pb.target):g}{u} (relative error {format_value(float(err), None, d)}; exact "
                       "evaluation, checked against the derived closed form). Ties go to the "
                       "lower value.", [check], names, kind="choice", table=table))
     for s in steps:

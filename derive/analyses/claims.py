@@ -33,6 +33,7 @@ from derive.forms.text import to_text
 from derive.analyses.inversion import derived_equation
 from derive.derivation.steps import Equation, Step
 from derive.solver import rational
+from derive.sheet.units import format_value
 
 POINTS = 12
 SHOWN = 160        # longest ratio written out in a diagnosis (characters)
@@ -251,17 +252,19 @@ def check_request(ctx, req) -> analysis.RequestResult:
             if vq.is_number and vq != 0:
                 rel = _value((vc - vq) / vq)
         diagnosis = dim_error or diagnose(q_expr, claim, name, ctx.nominal)
-        rows = [["symbol", "value"]] + [[k, f"{v:.6g}"] for k, v in
+        dg = ctx.options.digits
+        rows = [["symbol", "value"]] + [[k, format_value(v, None, dg)] for k, v in
                                         (counter or {"point": {}})["point"].items()]
         if counter:
             for label, key in ((name, "quantity"), ("claim", "claim")):
                 v = counter[key]
                 z = counter.get(key + "_complex")
-                rows.append([label, f"{v:.6g}" if v is not None else
-                             f"{z[0]:.6g} {'+' if z[1] >= 0 else '-'} {abs(z[1]):.6g}j (not real)"])
+                rows.append([label, format_value(v, None, dg) if v is not None else
+                             format_value(complex(z[0], z[1]), None, dg) + " (not real)"])
         steps.append(Step(f"The claim does not hold: {diagnosis}." +
-                          (f" Relative error at nominal values: {rel:.3g}." if rel is not None
-                           else ""), kind="check", table=rows if counter else None))
+                          (f" Relative error at nominal values: {format_value(rel, None, dg)}."
+                           if rel is not None else ""), kind="check",
+                          table=rows if counter else None))
     else:
         steps.append(Step(f"The claim holds ({dim_note}).", kind="check"))
     for st in steps:
@@ -311,6 +314,7 @@ NO_CLAIMS = "no check claims in the sheet"
 def check_lines(record):
     """(lines, ok): one ``PASS``/``FAIL`` line per ``check`` claim of a derived record."""
     lines, ok = [], True
+    digits = getattr(record, "digits", None) or 4
     for r in record.results:
         if r.request.statement != "check":
             continue
@@ -322,7 +326,8 @@ def check_lines(record):
         elif not holds:
             line += f" — {r.extra.get('diagnosis')}"
             if r.extra.get("relative_error") is not None:
-                line += f" (relative error at nominal {r.extra['relative_error']:.3g})"
+                line += (" (relative error at nominal "
+                         f"{format_value(r.extra['relative_error'], None, digits)})")
         lines.append(line)
         lines += [f"  note: {n}" for n in r.notes]
     if not lines:

@@ -43,6 +43,7 @@ from derive.forms.results import Context, RequestResult
 from derive.forms.text import to_text
 from derive.sheet import quantities
 from derive.solver import univariate
+from derive.sheet.units import DEFAULT_DIGITS, format_exact, format_value
 
 T = sympy.Symbol("T")
 PPM = Fraction(10 ** 6)
@@ -127,8 +128,9 @@ def _value(ext) -> Fraction:
     return ext.value if ext.value is not None else (ext.lo + ext.hi) / 2
 
 
-def _deg(t) -> str:
-    return f"{float(t):.4g} °C"
+def _deg(t, digits: int = DEFAULT_DIGITS) -> str:
+    """A temperature: an end of the range as entered, a critical point to ``digits``."""
+    return f"{float(t):.{digits}g} °C"
 
 
 class Drift:
@@ -209,17 +211,20 @@ class Drift:
                 "exact": {"nominal": str(self.q0), "ppm_per_K":
                           str(self.coefficient * PPM) if self.coefficient is not None else None}}
 
-    def steps(self) -> list:
-        name, u = self.name, f" {self.unit}" if self.unit else ""
+    def steps(self, digits: int = DEFAULT_DIGITS) -> list:
+        name, unit = self.name, self.unit
+
+        def v_(x):
+            return format_value(float(x), unit, digits)
         t0 = self.t0
         rows = [["part", "x0", "tc (ppm/K)", f"x at {_deg(t0 + self.a)}",
                  f"x at {_deg(t0 + self.b)}"]]
         for x in self.syms:
             tc = self.tcs.get(x)
             x0 = fraction_of(self.nominal[x])
-            rows.append([str(x), f"{float(x0):.6g}", f"{float(tc * PPM):g}" if tc else "0",
-                         f"{float(x0 * (1 + (tc or 0) * self.a)):.6g}",
-                         f"{float(x0 * (1 + (tc or 0) * self.b)):.6g}"])
+            rows.append([str(x), format_exact(x0), f"{float(tc * PPM):g}" if tc else "0",
+                         format_value(float(x0 * (1 + (tc or 0) * self.a)), None, digits),
+                         format_value(float(x0 * (1 + (tc or 0) * self.b)), None, digits)])
         s1 = Step(f"Every part at the same temperature T, from {_deg(t0 + self.a)} to "
                   f"{_deg(t0 + self.b)} (T0 = {_deg(t0)}); a part with a temperature "
                   "coefficient has x(T) = x0·(1 + tc·(T − T0)), the others keep x0.",
@@ -251,21 +256,21 @@ class Drift:
         eqs = []
         for label, tt_ in (("low end", self.a), ("high end", self.b)):
             v = self.q_at(tt_)
-            cands.append([label, _deg(t0 + tt_), f"{float(v):.8g}{u}"])
+            cands.append([label, _deg(t0 + tt_), v_(v)])
         for cT in self.critical:
             v = fraction_of(self.N(fmpq_of(cT - t0)) / self.D(fmpq_of(cT - t0)))
-            cands.append(["critical point", _deg(cT), f"{float(v):.8g}{u}"])
+            cands.append(["critical point", _deg(cT, digits), v_(v)])
         for label, ext, at in (("min", self.low, self.at_low), ("max", self.high, self.at_high)):
             if ext.value is not None:
                 e = Equation(sympy.Symbol(f"{name}_{label}"), sympy.Rational(ext.value),
                              check=sympy.Rational(self.q_at(at - t0)))
                 eqs.append(e)
         crit = (f"{len(self.critical)} critical point(s) inside the range, at "
-                + ", ".join(_deg(cT) for cT in self.critical)) if self.critical else \
+                + ", ".join(_deg(cT, digits) for cT in self.critical)) if self.critical else \
             "no critical point inside the range (monotone in T)"
-        s3 = Step(f"Candidates: the ends and {crit}. Extremes: {float(_value(self.low)):.8g}{u} "
-                  f"at {_deg(self.at_low)} and {float(_value(self.high)):.8g}{u} at "
-                  f"{_deg(self.at_high)} (each checked by an exact evaluation of the original "
+        s3 = Step(f"Candidates: the ends and {crit}. Extremes: {v_(_value(self.low))} "
+                  f"at {_deg(self.at_low, digits)} and {v_(_value(self.high))} at "
+                  f"{_deg(self.at_high, digits)} (each checked by an exact evaluation of the original "
                   "form at that temperature).", eqs, [], kind="drift", table=cands)
         steps = [s1, s2, s3]
         if self.coefficient is not None:
@@ -273,7 +278,8 @@ class Drift:
                          check=(sympy.Rational(self.coefficient_check * PPM)
                                 if self.coefficient_check is not None else None))
             steps.append(Step(f"Drift coefficient at T0: (1/{name})·d{name}/dT = "
-                              f"{float(self.coefficient * PPM):.6g} ppm/K (TC_{name} below, in ppm/K, exact: "
+                              f"{format_value(float(self.coefficient * PPM), None, digits)} "
+                              f"ppm/K (TC_{name} below, in ppm/K, exact: "
                               f"N'(0)/N(0) − D'(0)/D(0)), checked against Σ S_x·tc_x from the "
                               "normalized sensitivities at nominal values.", [e], [],
                               kind="drift"))
@@ -309,7 +315,7 @@ def answer(ctx: Context, req) -> RequestResult:
     for a in analysed(ctx, req):
         d = Drift(ctx, a, tcs, req)
         by[a.q.name] = d.json()
-        res.steps.extend(d.steps())
+        res.steps.extend(d.steps(ctx.options.digits))
         if not d.tcs:
             res.notes.append(f"No part of {a.q.name} has a temperature coefficient (tc): "
                              "it does not drift.")

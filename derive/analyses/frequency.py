@@ -245,11 +245,8 @@ def analyse_quantity(q, nominal) -> tuple:
     if f["w_corner"] is not None:
         eqs.append(Equation(sympy.Symbol("omega_c"), f["w_corner"], ind.get("w_corner")))
     step = Step(f"{q.name} as a rational function of s, normalised so that the lowest-order "
-                "term of the denominator is 1" + (": second order, ω0 and Q read from the denominator"
-                                 if f["w0"] is not None else
-                                 ": first order, corner frequency ωc" if f["w_corner"] is not None
-                                 else ""), [e for e in eqs if e.rhs is not sympy.oo],
-                kind="frequency")
+                "term of the denominator is 1: " + _orders(f),
+                [e for e in eqs if e.rhs is not sympy.oo], kind="frequency")
     num = [c.xreplace(nominal) for c in f["numerator"]]
     den = [c.xreplace(nominal) for c in f["denominator"]]
     coeffs = None
@@ -257,6 +254,103 @@ def analyse_quantity(q, nominal) -> tuple:
             and any(c != 0 for c in den):
         coeffs = ([float(c) for c in num], [float(c) for c in den])
     return d, step, coeffs
+
+
+RESPONSE_WORDS = {"f0": ("natural frequency", "f0"), "w0": ("natural frequency", "ω0"),
+                  "Q": ("quality factor", "Q")}
+
+
+def _order_words(den) -> str:
+    """How a denominator polynomial in s (ascending coefficients) is built, in words: its
+    order, the poles at the origin, and its factors in s where it factors over the
+    symbols (each named when short)."""
+    poly = sum(c * S**i for i, c in enumerate(den))
+    order = len(den) - 1
+    zeros_at_origin = next(i for i, c in enumerate(den) if c != 0)
+    words = f"of order {order} in s"
+    if zeros_at_origin:
+        words += f" ({zeros_at_origin} pole{'s' if zeros_at_origin > 1 else ''} at s = 0)"
+    if order <= 2 or sympy.count_ops(poly) > 400:
+        return words
+    try:
+        _, factors = sympy.factor_list(sympy.expand(poly))
+    except (sympy.PolynomialError, NotImplementedError):
+        return words
+    parts = []
+    for f, m in factors:
+        d = sympy.degree(f, S) if f.has(S) else 0
+        if d == 0:
+            continue
+        text = str(f)
+        parts += [f"order {d}" + (f" ({text})" if len(text) <= 60 else "")] * int(m)
+    if len(parts) > 1:
+        words += "; it factors into " + ", ".join(parts[:-1]) + " and " + parts[-1]
+    return words
+
+
+def response_quantity(q, word: str, loc):
+    """The quantity ``f0``, ``w0`` or ``Q`` of result ``q`` (a ``QuantityResult`` in s) as a
+    ``QuantityResult`` of its own, read from the second-order denominator of ``q``'s
+    normalised rational form (:func:`rational_form`: 1 + a1 s + a2 s², ω0 = 1/sqrt(a2),
+    Q = sqrt(a2)/a1, f0 = ω0/(2π)). A located error where ``q`` does not depend on s,
+    where its denominator is of another order (said, with its factors in s), or where Q is
+    infinite."""
+    import dataclasses
+
+    from derive.errors import SheetError
+    from derive.sheet import quantities
+    noun, sym = RESPONSE_WORDS[word]
+    what = f"the {noun} {sym}"
+    where = (getattr(loc, "line", 0), getattr(loc, "col", 0))
+    if q.expr is None:
+        raise SheetError(f"{what} of {q.name} needs its closed form, and {q.name} is given "
+                         "only as a sequence of named intermediates", *where,
+                         hint="keep fewer symbols symbolic (--symbolic or a 'numeric' line)")
+    if S not in q.expr.free_symbols:
+        raise SheetError(f"{q.name} does not depend on s (no capacitor, inductor or s in it), "
+                         f"so it has no {noun} {sym}", *where)
+    f = rational_form(q.expr)
+    den = f["denominator"]
+    if f["w0"] is None:
+        words = _order_words(den)
+        hint = ("a first-order denominator has a corner frequency (a plain 'find' of the "
+                "result shows it); f0, w0 and Q belong to a second-order one"
+                if len(den) - 1 == 1 else
+                "each second-order factor has its own f0 and Q: ask for them at a port after "
+                "that section" if "factors into" in words else
+                "f0, w0 and Q are those of a second-order denominator 1 + a1·s + a2·s²")
+        raise SheetError(f"{what} of {q.name} needs a second-order denominator, and the "
+                         f"denominator of {q.name} is {words}", *where, hint=hint)
+    if word == "Q" and f["Q"] is None:
+        raise SheetError(f"the quality factor of {q.name} is infinite: its denominator has no "
+                         "s term (no damping)", *where)
+    expr = {"w0": f["w0"], "f0": f["w0"] / (2 * sympy.pi), "Q": f["Q"]}[word]
+    return dataclasses.replace(q, name=word, expr=expr, unit=quantities.unit(word),
+                               value=None, ratio=None, sequence=[], in_sequence=None,
+                               form="second-order denominator", notes=[], validity=[],
+                               approximation=None)
+
+
+def _orders(f) -> str:
+    """The orders of a normalised form in words, and where ω0, Q or ωc are read from: the
+    whole denominator, or its factor after the poles at s = 0 (``s·(1 + a1·s)`` is a
+    second-order denominator whose factor 1 + a1·s gives the corner)."""
+    num = [c for c in f["numerator"]]
+    den = [c for c in f["denominator"]]
+    n = max((i for i, c in enumerate(num) if c != 0), default=0)
+    d = len(den) - 1
+    p = next((i for i, c in enumerate(den) if c != 0), 0)
+    words = f"numerator of order {n}, denominator of order {d} in s"
+    sp = "s" if p == 1 else f"s^{p}"
+    if f["w0"] is not None:
+        words += (f"; the denominator is {sp}·(1 + a1·s + a2·s²): ω0 and Q are read from its "
+                  "second-order factor" if p else
+                  "; ω0 and Q are read from the second-order denominator 1 + a1·s + a2·s²")
+    elif f["w_corner"] is not None:
+        words += (f"; the denominator is {sp}·(1 + a1·s): the corner frequency ωc = 1/a1 is "
+                  "that of its first-order factor" if p else
+                  "; corner frequency ωc = 1/a1 of the first-order denominator 1 + a1·s")
+    return words
 
 
 def _independent(expr) -> dict:

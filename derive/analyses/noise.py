@@ -25,7 +25,7 @@ from derive.errors import SheetError
 from derive.forms import band as bands
 from derive.forms import noise as forms
 from derive.forms.results import RequestResult
-from derive.sheet.units import format_eng
+from derive.sheet.units import format_exact, format_value
 
 TOP = 4             # contributions drawn beside the total
 
@@ -51,7 +51,7 @@ def integrals(ctx, req, model) -> list:
         pole = bands.has_pole_in_band(con.Q, F1, F2)
         if pole is not None and not con.P.is_zero():
             raise SheetError(f"find noise: the contribution of {con.source.name} is unbounded "
-                             f"at {format_eng(pole, 'Hz', digits=4)}, inside the band (a pole "
+                             f"at {format_value(pole, 'Hz', ctx.options.digits)}, inside the band (a pole "
                              "on the frequency axis: an undamped resonance, or an integrator "
                              "at 0 Hz)", *_band_loc(req),
                              hint="start the band above the pole, or add the loss that "
@@ -173,7 +173,7 @@ def input_referred(ctx, req, model, total, noise, steps):
                                                nodal.rhs_for(only=g.source), G))
         eqs = [geq, Equation(sym_in, sym_out / sympy.Abs(gain) ** 2, definition=True)]
         shown = "" if entry["rms"] is None else \
-            f"; over the band its rms is {format_eng(entry['rms'], entry['unit'], digits=4)}"
+            f"; over the band its rms is {format_value(entry['rms'], entry['unit'], ctx.options.digits)}"
         steps.append(Step(f"Referred to the input {g.source} (the sheet also asks for the gain "
                           f"from {g.source} to {req.port}): the output density divided by "
                           f"|G(j2πf)|², in {unit.replace('^2', '²')}" + shown +
@@ -199,6 +199,7 @@ def answer(ctx, req) -> RequestResult:
                              "kelvin": float(model.temperature_c + forms.KELVIN_OFFSET)},
              "noiseless": [{"part": n, "why": why} for n, why in model.noiseless]}
     valued = all(p is not None for p in per)
+    D = ctx.options.digits
     if valued and per:
         ms_lo = sum(p["lo"] for p in per)
         ms_hi = sum(p["hi"] for p in per)
@@ -220,9 +221,8 @@ def answer(ctx, req) -> RequestResult:
             noise["contributions"][con.source.name] = {
                 "rms": math.sqrt(max(p["value"], 0.0)), "share": share,
                 "density": {"expr": con.density, "unit": "V^2/Hz"}, "method": p["method"]}
-            rows.append([con.source.name, format_eng(math.sqrt(max(p["value"], 0.0)), "V",
-                                                      digits=4),
-                         f"{100 * share:.3g} %", p["method"]])
+            rows.append([con.source.name, format_value(math.sqrt(max(p["value"], 0.0)), "V", D),
+                         f"{format_value(100 * share, None, D)} %", p["method"]])
         eqs = []
         if closed:
             v2 = sympy.Symbol("v_n") ** 2
@@ -231,17 +231,17 @@ def answer(ctx, req) -> RequestResult:
             # the value lies inside the proved enclosure of the integral
             eq.mark("exact", all(p["checked"] for p in per))
             eqs.append(eq)
-        bound = f"{_f((ms_hi - ms_lo) / 2):.3g} V²" if ms_hi > ms_lo else "0"
+        bound = format_value(_f((ms_hi - ms_lo) / 2), "V²", D) if ms_hi > ms_lo else "0"
         steps.append(Step(
-            f"Mean square over the band {format_eng(float(F1), 'Hz', digits=4)} to "
-            f"{format_eng(float(F2), 'Hz', digits=4)} at nominal values, the integral of the "
+            f"Mean square over the band {format_exact(Fraction(F1), 'Hz')} to "
+            f"{format_exact(Fraction(F2), 'Hz')} at nominal values, the integral of the "
             "density over f: " + ("an exact closed form (partial fractions, arctan and log "
                                   "terms; each antiderivative checked exactly by "
                                   "differentiation, its value inside a proved enclosure)"
                                   if closed else "by ball-arithmetic quadrature with a proved "
                                   f"error bound of {bound}") +
-            f"; mean square {ms:.4g} V², so the rms noise is "
-            f"{format_eng(rms, 'V', digits=4)}. Ranked contributions (shares of the mean "
+            f"; mean square {format_value(ms, 'V²', D)}, so the rms noise is "
+            f"{format_value(rms, 'V', D)}. Ranked contributions (shares of the mean "
             "square add to 100 %):", eqs, kind="noise", table=rows))
         neb, why = noise_bandwidth(model)
         if neb is not None:
@@ -252,11 +252,11 @@ def answer(ctx, req) -> RequestResult:
                                         "method": bi.method}
             steps.append(Step(
                 f"Noise-equivalent bandwidth (the width of an ideal brick-wall band at the "
-                f"DC density {format_eng(math.sqrt(float(s_dc)), 'V/√Hz', digits=4)} with "
+                f"DC density {format_value(math.sqrt(float(s_dc)), 'V/√Hz', D)} with "
                 f"the same mean square as the whole density from 0 Hz to infinity): "
-                f"{format_eng(b_hz, 'Hz', digits=4)} ({bi.method}; mean square 0 to ∞ "
-                f"{bi.value:.4g} V², rms "
-                f"{format_eng(math.sqrt(bi.value), 'V', digits=4)}).", [], kind="noise"))
+                f"{format_value(b_hz, 'Hz', D)} ({bi.method}; mean square 0 to ∞ "
+                f"{format_value(bi.value, 'V²', D)}, rms "
+                f"{format_value(math.sqrt(bi.value), 'V', D)}).", [], kind="noise"))
         else:
             noise["noise_bandwidth"] = None
             noise["noise_bandwidth_note"] = why

@@ -45,6 +45,7 @@ import flint
 import sympy
 
 from derive.solver import convert as edge
+from derive.analyses import frequency
 from derive.forms import select as forms
 from derive.forms.results import Context, RequestResult
 from derive.circuit.build import S as LAPLACE_S
@@ -52,6 +53,7 @@ from derive.errors import SheetError
 from derive.sheet import quantities
 from derive.forms.text import to_text
 from derive.derivation.steps import Equation, Figure, Step, compare
+from derive.sheet.units import DEFAULT_DIGITS, format_value
 
 TIDY_OPS = 600          # factor only expressions up to this many operations
 
@@ -473,13 +475,17 @@ def _check_scalar(req):
 def analysed(ctx: Context, req) -> list:
     """Every member of the request's quantity with its ranked sensitivities (cached)."""
     _check_scalar(req)
-    key = ("sensitivity", req.quantity, req.port, req.element, req.source)
+    response = getattr(req, "response", None)
+    key = ("sensitivity", req.quantity, req.port, req.element, req.source, response)
     if key in ctx.cache:
         return ctx.cache[key]
     fctx = full_context(ctx)
     nominal = ctx.nominal
     out = []
     for q in forms.port_quantities(fctx, req):
+        if response is not None:     # f0, w0 or Q of the result's second-order denominator
+            q = frequency.response_quantity(q, response,
+                                            req.name_locs.get("response", req.loc))
         form = form_of(q)
         if LAPLACE_S in form.base_symbols():
             raise SheetError(f"{q.name} depends on the Laplace variable s: sensitivities and "
@@ -548,7 +554,7 @@ def sens_json(a: Analysed) -> dict:
     return out
 
 
-def _steps(a: Analysed) -> list:
+def _steps(a: Analysed, digits: int = DEFAULT_DIGITS) -> list:
     name = a.q.name
     Q = sympy.Symbol(name)
     steps = []
@@ -578,13 +584,14 @@ def _steps(a: Analysed) -> list:
     st = Step(txt, eqs, [str(s.symbol) for s in a.sens], kind="sensitivity")
     st.verify()
     steps.append(st)
-    rows = [["symbol", f"d{name}/dx at nominal", "S = (x/Q) dQ/dx", "rank"]]
+    rows = [["symbol", f"d{name}/dx at nominal", f"S = (x/{name}) d{name}/dx", "rank"]]
     for k, s in enumerate(a.sens, 1):
-        rows.append([str(s.symbol), _g(s.d_value), _g(s.s_value), str(k)])
+        rows.append([str(s.symbol), g(s.d_value, digits), g(s.s_value, digits), str(k)])
     top = a.sens[0] if a.sens else None
-    summ = (f"At nominal values {name} = {_g(a.nominal_value)}; the parts ranked by |S| "
-            f"(a 1 % rise of x changes {name} by about S %)."
-            + (f" Largest: {top.symbol} (S = {_g(top.s_value)})." if top is not None else ""))
+    summ = (f"At nominal values {name} = {g(a.nominal_value, digits, a.q.unit)}; the parts "
+            f"ranked by |S| (a 1 % rise of x changes {name} by about S %)."
+            + (f" Largest: {top.symbol} (S = {g(top.s_value, digits)})." if top is not None
+               else ""))
     if a.nominal_value == 0:
         summ += f" {name} is 0 at nominal, so normalized sensitivities are undefined there."
     st2 = Step(summ, [], [], kind="value", table=rows)
@@ -593,9 +600,9 @@ def _steps(a: Analysed) -> list:
     return steps
 
 
-def _g(v) -> str:
-    f = _f(v)
-    return "n/a" if f is None else f"{f:.6g}"
+def g(v, digits: int = DEFAULT_DIGITS, unit=None) -> str:
+    """A computed real value at nominal for prose and tables (``n/a`` where it is none)."""
+    return format_value(_f(v), unit, digits)
 
 
 def _slug(text: str) -> str:
@@ -615,7 +622,7 @@ def sensitivity(ctx: Context, req) -> RequestResult:
         res.extra["quantity_sequences"] = seqs
     figs = []
     for a in items:
-        res.steps.extend(_steps(a))
+        res.steps.extend(_steps(a, ctx.options.digits))
         figs.append(Figure(
             f"{_slug(req.text)}-{a.q.name}",
             f"Normalized sensitivities of {a.q.name} ({req.text}), ranked by magnitude.",

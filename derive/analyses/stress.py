@@ -33,7 +33,7 @@ from derive.forms import power as power_forms
 from derive.forms import select as forms
 from derive.forms.results import RequestResult
 from derive.sheet.model import Request
-from derive.sheet.units import format_eng
+from derive.sheet.units import DEFAULT_DIGITS, format_exact, format_value
 from derive.solver import convert as edge
 
 CAUTION = ("Caution: these figures are a DC calculation against the ratings entered in the "
@@ -107,7 +107,7 @@ def _num(v) -> float:
     return float(v)
 
 
-def _corner_words(point: dict, box: dict, T, circuit) -> str:
+def _corner_words(point: dict, box: dict, T, circuit, digits: int = DEFAULT_DIGITS) -> str:
     """Where a worst case lies, in words: each part at its low/high end or inside, and T."""
     parts = []
     for x in sorted(box, key=str):
@@ -127,7 +127,7 @@ def _corner_words(point: dict, box: dict, T, circuit) -> str:
         elif isinstance(v, sympy.Basic) and v == c:
             parts.append(f"{name} nominal")
         else:
-            parts.append(f"{name} = {format_eng(float(v), unit, digits=5)} (inside its band)")
+            parts.append(f"{name} = {format_value(float(v), unit, digits)} (inside its band)")
     if T in point:
         parts.append(f"T = {_deg(point[T])}")
     return ", ".join(parts) if parts else "nominal (no toleranced or drifting part)"
@@ -278,7 +278,7 @@ def analyse(ctx, req, e, quantity, rating, subs, T, temp) -> dict:
              "margin": float(limit) - wf, "use": wf / float(limit),
              "corner": {str(x): float(v) for x, v in point.items()
                         if x in box},
-             "at": _corner_words(point, box, T, c), "method": method}
+             "at": _corner_words(point, box, T, c, ctx.options.digits), "method": method}
     internal = {"form": form, "point": point, "exact": exact, "box": box, "mono": mono,
                 "subs": subs, "limit": limit, "q0": q0, "base": base}
     return entry, internal
@@ -289,8 +289,18 @@ def _deg(t) -> str:
     return f"{float(t):g} °C".replace("-", "−")
 
 
-def _eng(v, unit) -> str:
-    return format_eng(float(v), unit, digits=4)
+def _eng(v, unit, digits: int = DEFAULT_DIGITS) -> str:
+    return format_value(float(v), unit, digits)
+
+
+def _entered(v, unit) -> str:
+    """An entered value (a rating, a nominal) with the digits it was written with."""
+    from fractions import Fraction
+    try:
+        return format_exact(Fraction(v) if not isinstance(v, float) else Fraction(repr(v)),
+                            unit)
+    except (TypeError, ValueError):
+        return format_value(float(v), unit)
 
 
 def _verify_worst(ctx, req, e, quantity, internal, T) -> Equation | None:
@@ -359,6 +369,7 @@ def answer(ctx, req) -> RequestResult:
 
 def _steps(ctx, req, out, internals, T, temp, subs) -> list:
     c = ctx.circuit
+    d = ctx.options.digits
     T0, Tlo, Thi, k = temp
     drift = ", ".join(f"{x} {float(c.element(str(x)).origin.tc) * 1e6:g} ppm/K"
                       for x in sorted(subs, key=str) if str(x) in _names(c)) or "none"
@@ -374,10 +385,11 @@ def _steps(ctx, req, out, internals, T, temp, subs) -> list:
              "verdict"]]
     for key, s in out.items():
         u = s["unit"]
-        rows.append([s["element"], s["quantity"], _eng(s["nominal"], u),
-                     _eng(s["worst"], u), format_eng(s["rating"], u),
-                     format_eng(s["limit"], u), _eng(s["margin"], u),
-                     f"{s['use'] * 100:.1f} %", "ok" if s["ok"] else "EXCEEDED"])
+        rows.append([s["element"], s["quantity"], _eng(s["nominal"], u, d),
+                     _eng(s["worst"], u, d), _entered(s["rating"], u),
+                     _entered(s["limit"], u), _eng(s["margin"], u, d),    # limit: exact
+                     f"{s['use'] * 100:.1f} %",        # a share of the limit: one decimal
+                     "ok" if s["ok"] else "EXCEEDED"])
     n_bad = sum(1 for s in out.values() if not s["ok"])
     table = Step(("Every rated quantity within its limit." if not n_bad else
                   f"{n_bad} rated quantit{'y exceeds' if n_bad == 1 else 'ies exceed'} "
@@ -400,13 +412,13 @@ def _steps(ctx, req, out, internals, T, temp, subs) -> list:
             el = _element_of(c, str(x))
             tc = getattr(el.origin, "tc", None) if el is not None and el.origin else None
             mono_rows.append([info.display if info else str(x),
-                              _eng(info.nominal, info.unit) if info and info.nominal is not None
+                              _entered(info.nominal, info.unit) if info and info.nominal is not None
                               else "", f"±{float(info.tolerance) * 100:g} %"
                               if info and info.tolerance else "",
                               f"{float(tc) * 1e6:g} ppm/K" if tc is not None else "",
                               it["mono"].get(x, "")])
-        txt = (f"{key}: worst {what} {_eng(s['worst'], s['unit'])} (nominal "
-               f"{_eng(s['nominal'], s['unit'])}; limit {_eng(s['limit'], s['unit'])}: "
+        txt = (f"{key}: worst {what} {_eng(s['worst'], s['unit'], d)} (nominal "
+               f"{_eng(s['nominal'], s['unit'], d)}; limit {_entered(s['limit'], s['unit'])}: "
                f"{'ok' if s['ok'] else 'EXCEEDED'}), at {s['at']}. Method: {s['method']}."
                + (" The worst value was recomputed exactly from the closed form without "
                   "drift at the drifted part values of that corner, and agrees."
@@ -433,6 +445,7 @@ def _element_of(circuit, key):
 def check_lines(record) -> tuple:
     """(lines, ok): one ``PASS``/``FAIL`` line per rated quantity of every ``find stress``."""
     lines, ok = [], True
+    d = getattr(record, "digits", None) or DEFAULT_DIGITS
     for r in record.results:
         if r.request.quantity != "stress" or r.request.statement != "find":
             continue
@@ -441,6 +454,6 @@ def check_lines(record) -> tuple:
             u = s["unit"]
             label = f"{key} ({s['quantity']})" if key == s["element"] else key
             lines.append(f"{'PASS' if s['ok'] else 'FAIL'} line {r.request.loc.line}: stress "
-                         f"of {label}: worst {_eng(s['worst'], u)} "
-                         f"{'<=' if s['ok'] else '>'} limit {_eng(s['limit'], u)}")
+                         f"of {label}: worst {_eng(s['worst'], u, d)} "
+                         f"{'<=' if s['ok'] else '>'} limit {_entered(s['limit'], u)}")
     return lines, ok

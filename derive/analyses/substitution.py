@@ -31,6 +31,7 @@ from derive.sheet import quantities
 from derive.sheet.model import Loc
 from derive.analyses.sections import Dets
 from derive.derivation.steps import Equation, Step
+from derive.sheet.units import DEFAULT_DIGITS, format_value
 
 
 @dataclass
@@ -164,18 +165,21 @@ def _compare(ctx, req, result, fn):
     return err, full
 
 
-def _error_words(err) -> str:
+def _error_words(err, units=None, d: int = DEFAULT_DIGITS) -> str:
     out = []
     for name, v in err.items():
+        u = (units or {}).get(name)
         if v["model"] is None or v["full"] is None or v["error"] is None:
             out.append(f"{name}: no error at nominal values (a symbol without a nominal "
                        "value, or a function of s)")
         elif v["relative"] is not None:
-            out.append(f"{name} {v['model']:.6g} with the model, {v['full']:.6g} on the full "
-                       f"circuit (relative error {v['relative']:.3g})")
+            out.append(f"{name} {format_value(v['model'], u, d)} with the model, "
+                       f"{format_value(v['full'], u, d)} on the full circuit (relative error "
+                       f"{format_value(v['relative'], None, d)})")
         else:
-            out.append(f"{name} {v['model']:.6g} with the model, {v['full']:.6g} on the full "
-                       f"circuit (error {v['error']:.3g})")
+            out.append(f"{name} {format_value(v['model'], u, d)} with the model, "
+                       f"{format_value(v['full'], u, d)} on the full circuit (error "
+                       f"{format_value(v['error'], u, d)})")
     return "; ".join(out)
 
 
@@ -213,7 +217,9 @@ def annotate(ctx, req, result, fn):
     err, full = _compare(ctx, req, result, fn)
     result.extra["model_error"] = err
     if err:
-        note += " Model error at nominal values: " + _error_words(err) + "."
+        units = {n: q.unit for n, q in result.quantities.items()}
+        note += (" Model error at nominal values: " + _error_words(err, units, ctx.options.digits)
+                 + ".")
     if full is not None and "holds" in result.extra:
         result.extra["full_circuit_holds"] = bool(full.extra.get("holds"))
         note += (" On the full circuit the claim " +

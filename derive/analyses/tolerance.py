@@ -34,6 +34,7 @@ from derive.forms.results import Context, RequestResult
 from derive.errors import SheetError
 from derive.analyses import sensitivity as _sens     # module object: the two modules import each other
 from derive.derivation.steps import Figure, Step
+from derive.sheet.units import format_value
 
 QUANTILES = (0.00135, 0.99865)
 MAX_BOXES = 256
@@ -88,6 +89,9 @@ def interval(expr, env: dict, memo: dict | None = None):
     elif expr.is_Number:
         v = float(expr)
         r = (v, v) if expr.is_Integer and abs(v) < 2 ** 52 else _widen(v, v)
+    elif expr.is_NumberSymbol:          # pi (f0 = ω0/2π), E: a float widened by two ulps
+        v = float(expr)
+        r = _widen(v, v)
     elif expr.is_Add or expr.is_Mul:
         parts = [interval(a, env, memo) for a in expr.args]
         if any(p is None for p in parts):
@@ -378,7 +382,7 @@ def extremes(form: Form, dforms: dict, nominal: dict, box: dict, seed: int = 1,
               "local searches, scipy L-BFGS-B, per limit)"
               + (f"; the other parts proven monotone and set at their corners"
                  if len(free) < len(box) else "")
-              + ("" if bounded else "; WARNING: boundedness of Q on the box is not proven (a "
+              + ("" if bounded else "; WARNING: boundedness of the quantity on the box is not proven (a "
                  "denominator may vanish inside it), so Q may be unbounded there and these "
                  "limits are only the extremes found"))
     return best[1], best[-1], method, mono
@@ -646,26 +650,30 @@ def spread_of(ctx: Context, a, req) -> tuple:
            "monte_carlo": mc,
            "monotone": {str(x): m for x, m in mono.items()},
            "contributions": {str(x): c for x, c in rows}}
-    u = f" {unit}" if unit else ""
-    table = [["symbol", "tolerance", "S at nominal", f"|dQ/dx|·|x0|·t ({unit or '-'})",
+    d = opts.digits
+
+    def v(x):
+        return format_value(x, unit, d)
+    table = [["symbol", "tolerance", "S at nominal", f"|d{name}/dx|·|x0|·t ({unit or '-'})",
               "share of worst case", "on the box"]]
     sval = {s.symbol: s.s_value for s in a.sens}
     for x, c in sorted(rows, key=lambda r: -r[1]):
         t = ctx.circuit.symbols[str(x)].tolerance
-        table.append([str(x), f"±{float(t) * 100:g} %", _sens._g(sval.get(x)), f"{c:.6g}",
-                      f"{(c / wc * 100 if wc else 0):.1f} %", mono.get(x, "")])
+        table.append([str(x), f"±{float(t) * 100:g} %", _sens.g(sval.get(x), d),
+                      format_value(c, None, d),
+                      f"{format_value(c / wc * 100 if wc else 0, None, d)} %", mono.get(x, "")])
     steps = [
-        Step(f"Linear worst case: {name} = {q0:.6g}{u} ± Σ|d{name}/dx|·|x0|·t = ± {wc:.6g}{u}, "
-             f"so {q0 - wc:.6g} to {q0 + wc:.6g}{u} (first order in the tolerances).",
+        Step(f"Linear worst case: {name} = {v(q0)} ± Σ|d{name}/dx|·|x0|·t = ± {v(wc)}, "
+             f"so {v(q0 - wc)} to {v(q0 + wc)} (first order in the tolerances).",
              kind="tolerance", table=table),
-        Step(f"Root-sum-square: ± sqrt(Σ(d{name}/dx·x0·t)²) = ± {rss:.6g}{u}, so "
-             f"{q0 - rss:.6g} to {q0 + rss:.6g}{u}.", kind="tolerance"),
-        Step(f"Extreme values over the box of tolerances: {lo:.6g} to {hi:.6g}{u}. "
+        Step(f"Root-sum-square: ± sqrt(Σ(d{name}/dx·x0·t)²) = ± {v(rss)}, so "
+             f"{v(q0 - rss)} to {v(q0 + rss)}.", kind="tolerance"),
+        Step(f"Extreme values over the box of tolerances: {v(lo)} to {v(hi)}. "
              f"Method: {method}.", kind="tolerance"),
         Step(f"Monte Carlo: {mc['samples']} samples, seed {mc['seed']}, {dist} within "
              f"tolerance{' (tolerance = 3σ)' if dist == 'normal' else ''}: mean "
-             f"{mc['mean']:.6g}{u}, standard deviation {mc['std']:.6g}{u}, 0.135 %/99.865 % "
-             f"quantiles {mc['low']:.6g} and {mc['high']:.6g}{u}.", kind="tolerance"),
+             f"{v(mc['mean'])}, standard deviation {v(mc['std'])}, 0.135 %/99.865 % "
+             f"quantiles {v(mc['low'])} and {v(mc['high'])}.", kind="tolerance"),
     ]
     for st in steps:
         st.verify()
@@ -674,8 +682,9 @@ def spread_of(ctx: Context, a, req) -> tuple:
 
 def tolerance(ctx: Context, req) -> RequestResult:
     res = RequestResult(req)
-    by, figs = {}, []
+    by, figs, units = {}, [], {}
     for a in _sens.analysed(ctx, req):
+        units[a.q.name] = a.q.unit
         try:
             out, steps, values = spread_of(ctx, a, req)
         except (Unbounded, ZeroDivisionError) as e:
@@ -701,6 +710,7 @@ def tolerance(ctx: Context, req) -> RequestResult:
     first = next(iter(by))
     res.extra.update(by[first])
     res.extra["tolerance_of"] = first
+    res.extra["tolerance_unit"] = units[first]      # of spread, rss, ... (None: a number)
     res.extra["tolerance_by_quantity"] = by
     res.extra["figures"] = figs
     return res

@@ -22,7 +22,7 @@ from derive.circuit.build import S
 from derive.derivation.nodal_steps import Nodal, equation_steps, random_solve_check
 from derive.derivation.steps import ATTEMPTS, Equation, Program, Step, random_point
 from derive.forms.noise import F
-from derive.sheet.units import format_eng
+from derive.sheet.units import format_value
 
 W = sympy.Symbol("omega_chk")
 
@@ -175,7 +175,7 @@ def source_steps(ctx, req, model) -> list:
             f"in series with the + input of {src.opamp}"
         v = src.density.xreplace(nominal)
         unit = "A/√Hz" if src.unit.startswith("A") else "V/√Hz"
-        shown = format_eng(float(sympy.sqrt(v)), unit, digits=4) if v.is_number else "—"
+        shown = format_value(float(sympy.sqrt(v)), unit, ctx.options.digits) if v.is_number else "—"
         rows.append([src.name, what, at, shown])
         if src.shown is not None:
             eqs.append(Equation(sympy.Symbol(f"S_{_sym(src.name)}"), src.shown,
@@ -186,7 +186,7 @@ def source_steps(ctx, req, model) -> list:
                   f"resistor and conductance a thermal noise current beside it of density "
                   f"4kT/R (Johnson–Nyquist), with Boltzmann's constant "
                   f"k = 1.380649e-23 J/K (exact in the SI) and T = {float(t_k):g} K "
-                  f"({float(model.temperature_c):g} °C), so 4kT = {float(k_T):.6g} J; "
+                  f"({float(model.temperature_c):g} °C), so 4kT = {format_value(float(k_T), None, ctx.options.digits)} J; "
                   "op-amps: the voltage noise E (density E²) in series with the non-inverting "
                   "input and a current noise I (density I²) from each input to the reference "
                   "node, with E and I as given on the sheet (table). Capacitors, "

@@ -19,7 +19,7 @@ from derive.circuit.build import S
 from derive.derivation.nodal_steps import Nodal, random_solve_check
 from derive.derivation.steps import Equation, Step
 from derive.sheet import kinds
-from derive.sheet.units import format_eng
+from derive.sheet.units import format_value
 from derive.solver import convert as edge
 
 
@@ -47,8 +47,8 @@ def _dc_limit(ratio) -> sympy.Expr:
     return num.subs(S, 0) / den.subs(S, 0)
 
 
-def _eng(x, unit) -> str:
-    return "n/a" if x is None else format_eng(float(x), unit, digits=4)
+def _eng(x, unit, digits: int = 4) -> str:
+    return "n/a" if x is None else format_value(float(x), unit, digits)
 
 
 def _what(x) -> str:
@@ -60,6 +60,7 @@ def _what(x) -> str:
 def steps(ctx, req, op) -> list:
     """The verified steps of an :class:`~derive.forms.operating_point.OperatingPoint`."""
     c = ctx.circuit
+    D = ctx.options.digits
     solver = ctx.solver(req.loc)
     nodal = None if op.reactive else _nodal(ctx)
     out = []
@@ -81,7 +82,7 @@ def steps(ctx, req, op) -> list:
         else:
             eq.check = _dc_limit(solver.voltage(n, c.ground))
         eqs.append(eq)
-        rows.append([n, _eng(ent.exact, "V")])
+        rows.append([n, _eng(ent.exact, "V", D)])
     how = ("each compared with exact solves of the nodal equations at random rational points"
            if nodal is not None else
            "each compared with the limit s -> 0 of the s-domain solution")
@@ -110,8 +111,8 @@ def steps(ctx, req, op) -> list:
         eq = Equation(_sym("P", name), ent.expr,
                       check=(vn[0] - vn[1]) * op.currents[name].expr)
         eqs.append(eq)
-        rows.append([name, kinds.kind(e.kind).word, _eng(op.voltages[name].exact, "V"),
-                     _eng(op.currents[name].exact, "A"), _eng(ent.exact, "W"),
+        rows.append([name, kinds.kind(e.kind).word, _eng(op.voltages[name].exact, "V", D),
+                     _eng(op.currents[name].exact, "A", D), _eng(ent.exact, "W", D),
                      _what(ent.exact)])
     out.append(Step("Power absorbed by every element, p = v·i (each checked against the "
                     "product of its voltage, from the node voltages above, and its current):",
@@ -130,7 +131,7 @@ def steps(ctx, req, op) -> list:
     out.append(Step("Power balance (Tellegen's theorem): the absorbed powers of all elements "
                     "add to zero. The sum of the exact ratios above, taken over a common "
                     "denominator, has a numerator that cancels identically." + at_nom +
-                    (f" The sources deliver {_eng(supplied, 'W')} in all."
+                    (f" The sources deliver {_eng(supplied, 'W', D)} in all."
                      if op.balance_at_nominal is not None else ""),
                     [bal], list(op.power), kind="check"))
     failed = [st for st in out if not st.verify()]

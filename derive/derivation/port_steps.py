@@ -33,7 +33,7 @@ from derive.derivation.nodal_steps import Nodal, cramer_step, equation_steps
 from derive.derivation.steps import (Equation, NotRational, Program, RatioCheck, Step,
                                      exact_value, to_float, to_rational)
 from derive.sheet.quantities import twin
-from derive.sheet.units import format_eng
+from derive.sheet.units import format_exact, format_value
 
 
 
@@ -259,7 +259,10 @@ def _reduction_steps(ctx, req, out, refs):
     plus, minus = ctx.port(req.port)
     steps = [Step(_intro(c, req, plus, minus, need_src, srcs), [], [], kind="port")]
     for m in moves:
-        steps.append(_move_step(m, env, defs))
+        st = _move_step(m, env, defs)
+        if st.text.startswith("the equivalent of "):    # a sentence starts with a capital
+            st.text = "T" + st.text[1:]
+        steps.append(st)
     E, Z = final.E.xreplace(env), final.Z
     eqs = []
     for n, q in out.quantities.items():
@@ -346,9 +349,10 @@ def _move_step(m, env, defs) -> Step:
         if ex != 0 and ey != 0 and el in defs:
             eqs.append(_move_equation(_vname(r, el, defs), ex + ey, el, defs, also=(zl,)))
         if not eqs:
+            e, a, b = _oriented(el, r.a, r.b)
             return Step(f"{_label(x)} and {_label(y)} are in series: nothing else connects at "
                         f"node {m['node']}, so they form one branch: open-circuit voltage "
-                        f"{el} (node {r.a} relative to node {r.b}) behind {r.Z}.", [],
+                        f"{e} (node {a} relative to node {b}) behind {r.Z}.", [],
                         members, kind="reduction")
         return Step(f"{_label(x)} and {_label(y)} are in series: nothing else connects at node "
                     f"{m['node']}, so they carry the same current; impedances (and source "
@@ -386,9 +390,14 @@ def _move_step(m, env, defs) -> Step:
     ex, ey = x.E.xreplace(env), y.E.xreplace(env)
     text = f"{_label(x)} and {_label(y)} are in parallel {between}"
     if ex != 0 or ey != 0:
-        srcs = [f"{_label(b)} (open-circuit voltage {e}, node {b.a} relative to node {b.b}, "
-                f"behind {b.Z}) becomes a current source {_quot(e, b.Z)} in parallel with "
-                f"{b.Z}" for b, e in ((x, ex), (y, ey)) if e != 0]
+        srcs = []
+        for b, e in ((x, ex), (y, ey)):
+            if e != 0:
+                shown, hi, lo = _oriented(e, b.a, b.b)
+                srcs.append(f"{_label(b)} (open-circuit voltage {shown}, node {hi} relative to "
+                            f"node {lo}, behind {b.Z}) becomes a current source "
+                            f"{_quot(shown, b.Z)} in parallel with {b.Z}, driving current "
+                            f"from node {lo} to node {hi}")
         text = ("Source transformation: " + "; ".join(srcs) + ". " + text +
                 ": the currents add, the impedances combine in parallel, and the result "
                 "transforms back into a voltage source behind the parallel impedance")
@@ -396,6 +405,15 @@ def _move_step(m, env, defs) -> Step:
         lhs = _vname(r, el, defs)
         eqs.append(_move_equation(lhs, zl * (ex / x.Z + ey / y.Z), el, d, also=(zl,)))
     return Step(text + ".", eqs, members, kind="reduction")
+
+
+def _oriented(e, a, b) -> tuple:
+    """(voltage, node, node): a branch's open-circuit voltage said the way it is positive
+    where that is evident (``-Vpack`` of node gnd relative to tap is ``Vpack`` of node tap
+    relative to gnd), so one source reads the same in every step."""
+    if isinstance(e, sympy.Basic) and e.could_extract_minus_sign():
+        return -e, b, a
+    return e, a, b
 
 
 def _quot(a, b) -> str:
@@ -627,6 +645,14 @@ def _short(v, chars: int = 24) -> bool:
     return len(str(v)) <= chars
 
 
+def _nominal_text(val, unit, digits) -> str:
+    """A symbol's nominal value: as entered where it is a rational number, else computed."""
+    if isinstance(val, sympy.Rational):
+        from fractions import Fraction
+        return format_exact(Fraction(int(val.p), int(val.q)), unit)
+    return format_value(to_float(val), unit, digits)
+
+
 def _value_step(ctx, req, q) -> Step:
     nominal = ctx.nominal
     used = set(q.expr.free_symbols) if q.expr is not None else set()
@@ -639,8 +665,8 @@ def _value_step(ctx, req, q) -> Step:
         si = info.get(str(s))
         val = nominal.get(s)
         rows.append([si.display if si else str(s),
-                     format_eng(to_float(val), si.unit if si else None) if val is not None
-                     else "none (kept symbolic)"])
+                     _nominal_text(val, si.unit if si else None, ctx.options.digits)
+                     if val is not None else "none (kept symbolic)"])
     if q.value is None and getattr(q, "undefined", None):
         return Step(q.undefined[0].upper() + q.undefined[1:] + ".", [], kind="value",
                     table=rows)
@@ -651,10 +677,10 @@ def _value_step(ctx, req, q) -> Step:
     exact = exact_value(q.expr, nominal) if q.expr is not None else \
         exact_value(q.in_sequence, nominal, dict(q.sequence))
     if exact is None:       # not a rational value (complex, roots): shown, nothing claimed
-        shown = str(q.value) if isinstance(q.value, complex) else format_eng(q.value, q.unit)
+        shown = format_value(q.value, q.unit, ctx.options.digits)
         return Step(f"At nominal values: {q.name} = {shown}.", [], kind="value", table=rows)
     q.value = to_float(exact)
-    shown = format_eng(q.value, q.unit)
+    shown = format_value(q.value, q.unit, ctx.options.digits)
     # an independent exact value: the solver's ratio, else an exact nodal solve at nominal
     indep, method = independent_value(ctx, req, q, nominal)
     if indep is not None and indep != exact:

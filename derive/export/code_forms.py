@@ -16,6 +16,7 @@ import sympy
 
 from derive.circuit.build import S
 from derive.export.printing import to_text
+from derive.sheet.units import format_bound
 
 C_KEYWORDS = set("""auto break case char const continue default do double else enum extern
 float for goto if inline int long register restrict return short signed sizeof static struct
@@ -180,14 +181,15 @@ def collect(record) -> tuple:
                 valid = list(q.validity)
             formulas.append(Formula(name, list(zip(params, units)), defs, final, q.unit,
                                     what, origin, fwd, valid=valid))
-            approx = _approximate(c, q, name, names, origin, order)
+            approx = _approximate(c, q, name, names, origin, order,
+                                  getattr(record, "digits", None) or 4)
             if approx is not None:
                 names.add(approx.name)
                 formulas.append(approx)
     return formulas, skipped
 
 
-def _approximate(c, q, name, names, origin, order):
+def _approximate(c, q, name, names, origin, order, digits: int = 4):
     """The approximate form of ``approximately within E%`` as a formula of its own
     (``NAME_approx``), its error bound and how it was bounded in the comment."""
     a = getattr(q, "approximation", None)
@@ -199,8 +201,9 @@ def _approximate(c, q, name, names, origin, order):
     params = sorted(e.free_symbols, key=lambda x: (order.get(x.name, 10**6), x.name))
     units = [getattr(c.symbols.get(x.name), "unit", None) for x in params]
     how = "proven" if a.get("proven") else f"searched at {a.get('points')} points"
-    what = (f"{q.name}, approximately: relative error at most {a['max_error'] * 100:.3g} % "
-            f"over the tolerance box (asked: within {a['within'] * 100:.3g} %; bound {how})")
+    bound = format_bound(a["max_error"] * 100, digits)          # rounded up: still a bound
+    what = (f"{q.name}, approximately: relative error at most {bound} % "
+            f"over the tolerance box (asked: within {a['within'] * 100:g} %; bound {how})")
     return Formula(ident(name + "_approx", names), list(zip(params, units)), [], e, q.unit,
                    what, origin)
 

@@ -10,6 +10,10 @@ def render(record, fmt: str, args=None):
     template = getattr(args, "template", None) if args is not None else None
     if fmt == "json":
         return record.to_json()
+    if fmt == "text":
+        from derive.export.terminal import record_text
+        sheet = getattr(args, "sheet", None) if args is not None else None
+        return record_text(record, sheet if sheet and sheet != "-" else "SHEET")
     if fmt == "md":
         import jinja2
         from derive.export.markdown import record_markdown

@@ -225,7 +225,7 @@ def document(record, figures_dir=None) -> Document:
                 if figures_dir is None or not plots.can_draw(f):
                     continue
                 path = os.path.join(figures_dir, f"fig{i}_{k}.png")
-                plots.draw(f, path)
+                plots.draw(f, path, getattr(record, "digits", None) or 4)
                 doc.append(NoEscape(r"\begin{figure}[h]\centering\includegraphics[width=0.8"
                                     r"\linewidth]{" + os.path.basename(path) + r"}\caption{"))
                 doc.append(text(getattr(f, "caption", "")))

@@ -15,7 +15,7 @@ True
 from __future__ import annotations
 
 from derive.derivation.steps import Figure
-from derive.sheet.units import format_eng
+from derive.sheet.units import DEFAULT_DIGITS, format_value
 
 
 def _new(width=6.0, height=3.2):
@@ -63,7 +63,7 @@ def _draw_histogram(data: dict, path: str) -> None:
     fig.savefig(path)
 
 
-def _draw_bode(fig_: Figure, path: str) -> None:
+def _draw_bode(fig_: Figure, path: str, digits: int = DEFAULT_DIGITS) -> None:
     """Magnitude and phase at nominal values of ``num(s)/den(s)`` (ascending numeric
     coefficients), over the range of :func:`derive.analyses.frequency.bode_data`."""
     from matplotlib.figure import Figure as MplFigure
@@ -85,12 +85,12 @@ def _draw_bode(fig_: Figure, path: str) -> None:
         if value:
             for ax in (a1, a2):
                 ax.axvline(value, linestyle=style, linewidth=0.8, color="0.35")
-            a1.annotate(f"{label} = {format_eng(value, 'Hz')}", (value, a1.get_ylim()[1]),
+            a1.annotate(f"{label} = {format_value(value, 'Hz', digits)}", (value, a1.get_ylim()[1]),
                         fontsize=7, ha="left", va="top", xytext=(3, -3),
                         textcoords="offset points")
     for value in marks.get("minus_3dB") or []:
         a1.axvline(value, linestyle=":", linewidth=0.8, color="0.2")
-        a1.annotate(f"-3 dB: {format_eng(value, 'Hz')}", (value, a1.get_ylim()[0]),
+        a1.annotate(f"-3 dB: {format_value(value, 'Hz', digits)}", (value, a1.get_ylim()[0]),
                     fontsize=7, ha="left", va="bottom", xytext=(3, 3),
                     textcoords="offset points")
     a2.set_ylabel("phase / degrees")
@@ -123,9 +123,9 @@ def _draw_noise(fig_: Figure, path: str) -> None:
 
 def _drawings() -> dict:
     """The one table of figure charts and the function that draws each."""
-    return {"sensitivity": lambda f, path: _draw_sensitivity(f.data, path),
-            "histogram": lambda f, path: _draw_histogram(f.data, path),
-            "bode": _draw_bode, "noise": _draw_noise}
+    return {"sensitivity": lambda f, path, digits: _draw_sensitivity(f.data, path),
+            "histogram": lambda f, path, digits: _draw_histogram(f.data, path),
+            "bode": _draw_bode, "noise": lambda f, path, digits: _draw_noise(f, path)}
 
 
 def can_draw(figure) -> bool:
@@ -133,9 +133,10 @@ def can_draw(figure) -> bool:
     return isinstance(figure, Figure) and figure.chart in _drawings()
 
 
-def draw(figure: Figure, path: str) -> None:
-    """Write the image of ``figure`` to ``path`` (format from the extension)."""
+def draw(figure: Figure, path: str, digits: int = DEFAULT_DIGITS) -> None:
+    """Write the image of ``figure`` to ``path`` (format from the extension); values marked
+    on it with ``digits`` significant figures."""
     drawing = _drawings().get(figure.chart)
     if drawing is None:
         raise ValueError(f"no drawing for a figure chart {figure.chart!r}")
-    drawing(figure, path)
+    drawing(figure, path, digits)

@@ -27,13 +27,22 @@ _SPLIT = re.compile(r"^([A-Za-z]+)_?([A-Za-z0-9]*)$")
 
 def latex_name(key: str) -> str:
     """``R_load`` -> R with subscript load, ``R12`` -> R_{12}, ``div1_Rt`` -> R_t^{div1}
-    (instance as a superscript), ``beta`` -> \\beta."""
+    (instance as a superscript), ``beta`` -> \\beta; a part's name in one style whatever
+    its spelling (``R_rtd``, ``Rf1``, ``RL``: the letter, the rest an upright subscript).
+
+    >>> print(" ".join(latex_name(k) for k in ("R_rtd", "Rf1", "RL", "R12", "Omega1")))
+    R_{\\mathrm{rtd}} R_{\\mathrm{f1}} R_{\\mathrm{L}} R_{12} \\Omega_{1}
+    """
     greek = {"alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "kappa",
              "lambda", "mu", "nu", "xi", "pi", "rho", "sigma", "tau", "phi", "chi", "psi",
              "omega", "Gamma", "Delta", "Theta", "Lambda", "Xi", "Pi", "Sigma", "Phi", "Psi",
              "Omega"}
     if key in _QUANTITY:
         return _QUANTITY[key]
+    m = re.match(r"^d([A-Za-z]\w*)/d([A-Za-z]\w*)$", key)
+    if m:                           # a sensitivity's derivative dQ/dx, as a fraction
+        return (r"\frac{\partial %s}{\partial %s}"
+                % (latex_name(m.group(1)), latex_name(m.group(2))))
     if key in ("pi", "Pi"):         # a symbol named pi typeset as π would read as 3.14159...
         return r"\mathit{" + key + "}"   # (r_pi, a subscript, stays r_π)
     m = re.match(r"^([A-Z])eq(\d+)_*$", key)
@@ -58,6 +67,11 @@ def latex_name(key: str) -> str:
         inner = latex_name(parts[-1])
         inst = r"\mathrm{" + _esc(".".join(parts[:-1])) + "}"
         return "{" + inner + "}^{" + inst + "}"
+    # a part name: one capital letter, then letters and digits (not only digits): the
+    # letter with the rest as an upright subscript, as R_rtd is -- Rf1 -> R_f1, RL -> R_L
+    m = re.match(r"^([A-Z])([A-Za-z][A-Za-z0-9]*)$", key)
+    if m and re.sub(r"\d+$", "", key) not in greek:
+        return f"{m.group(1)}_{{\\mathrm{{{m.group(2)}}}}}"
     m = re.match(r"^([A-Za-z]+?)(\d+)$", key)
     if m and m.group(1) not in greek or (m and m.group(1) in greek):
         base = "\\" + m.group(1) if m.group(1) in greek else m.group(1)

@@ -12,20 +12,25 @@ import re
 import sympy
 
 from derive.export.printing import equation_lines, to_latex, visual_len
+from derive.forms.text import to_text
 from derive.sheet import kinds as element_kinds
-from derive.sheet.units import format_eng
+from derive.sheet import quantities
+from derive.sheet.units import DEFAULT_DIGITS, format_bound, format_eng, format_exact, format_value
 
 # Extra-low voltage limits of IEC 61140 (from memory): 50 V a.c. r.m.s., 120 V ripple-free
 # d.c. A sheet does not say whether a source is ripple-free, so the lower figure is used.
 ELV_LIMIT = 50
 
 
-def _value_text(v, unit):
+def _value_text(v, unit, digits=DEFAULT_DIGITS):
     if v is None:
         return ""
-    if isinstance(v, complex):
-        return str(v)
-    return format_eng(v, unit)
+    return format_value(v, unit, digits)
+
+
+def digits_of(record) -> int:
+    """The record's significant figures of computed values (``--digits``)."""
+    return getattr(record, "digits", None) or DEFAULT_DIGITS
 
 
 def exact_eng(value, unit) -> str:
@@ -40,38 +45,10 @@ def exact_eng(value, unit) -> str:
     ('-47 µA', '333.3 mV')
     """
     from fractions import Fraction
-    from derive.sheet import units as _units
-    q = Fraction(int(sympy.numer(value)), int(sympy.denom(value)))
-    d = q.denominator
-    for p in (2, 5):
-        while d % p == 0:
-            d //= p
-    if d != 1 or q == 0:
-        return format_eng(float(q), unit, digits=4)
-    sign = "-" if q < 0 else ""
-    q = abs(q)
-    # exact decimal digits: q = digits * 10**-k
-    k = 0
-    while (q * 10 ** k).denominator != 1:
-        k += 1
-    digits = str(int(q * 10 ** k))
-    exp10 = len(digits) - 1 - k                     # position of the leading digit
-    exp3 = 3 * (exp10 // 3)
-    if exp3 not in _units._ENG_PREFIX:
-        return format_eng(float(q) * (-1 if sign else 1), unit, digits=max(len(digits), 3))
-    shift = k + exp3                                # the number is digits * 10**-shift
-    if shift <= 0:
-        number = digits + "0" * (-shift)
-    else:
-        digits = digits.rjust(shift + 1, "0")
-        head, tail = digits[:-shift], digits[-shift:].rstrip("0")
-        number = head + ("." + tail if tail else "")
-    shown = _units._UNIT_SHOWN.get(unit, unit) if unit else ""
-    prefix = _units._ENG_PREFIX[exp3]
-    return f"{sign}{number} {prefix}{shown}" if shown else f"{sign}{number}{prefix}"
+    return format_exact(Fraction(int(sympy.numer(value)), int(sympy.denom(value))), unit)
 
 
-def elements(circuit) -> list:
+def elements(circuit, digits=DEFAULT_DIGITS) -> list:
     rows = []
     nominal = circuit.nominal_values()
     for e in circuit.elements:
@@ -87,7 +64,7 @@ def elements(circuit) -> list:
             if v.is_number:
                 # the sheet's exact number, with the digits it was entered with
                 unit = element_kinds.kind(e.kind).unit
-                nom = exact_eng(v, unit) if v.is_Rational else _value_text(float(v), unit)
+                nom = exact_eng(v, unit) if v.is_Rational else _value_text(float(v), unit, digits)
         info = circuit.symbols.get(e.key)
         tol = ""
         if info is not None and info.tolerance is not None:
@@ -136,7 +113,8 @@ def cautions(circuit) -> list:
                 and e.value is not None:
             v = e.value.xreplace(nominal)
             if v.is_number and abs(float(v)) > ELV_LIMIT:
-                high.append(f"{e.name} ({format_eng(float(v), 'V')})")
+                shown = exact_eng(v, 'V') if v.is_Rational else format_value(float(v), 'V')
+                high.append(f"{e.name} ({shown})")
     words = " ".join([circuit.sheet.title or ""] + list(circuit.sheet.notes)).lower()
     out = []
     if high:
@@ -212,7 +190,7 @@ def equation_view(eq) -> dict:
             "verified_by": eq.verified_by if eq.verified else None}
 
 
-def step_view(st) -> dict:
+def step_view(st, digits=DEFAULT_DIGITS) -> dict:
     if isinstance(st, dict):
         return {"text": st.get("text", ""), "equations": [], "table": None,
                 "verified": bool(st.get("verified")), "kind": "step"}
@@ -221,7 +199,7 @@ def step_view(st) -> dict:
         table = {"head": [str(c) for c in st.table[0]],
                  "rows": [[str(c) for c in r] for r in st.table[1:]]}
     eqs = [equation_view(e) for e in st.equations]
-    return {"text": eng_prose(st.text), "equations": eqs, "table": table,
+    return {"text": eng_prose(st.text, digits), "equations": eqs, "table": table,
             "verified": bool(st.verified) and all(e["verified"] for e in eqs), "kind": st.kind}
 
 
@@ -259,9 +237,9 @@ def verification_sentence(steps) -> str:
     return text + "."
 
 
-def quantity_view(q) -> dict:
+def quantity_view(q, digits=DEFAULT_DIGITS) -> dict:
     d = {"name": q.name, "latex_name": to_latex(sympy.Symbol(q.name)),
-         "value": _value_text(q.value, q.unit), "unit": q.unit}
+         "value": _value_text(q.value, q.unit, digits), "unit": q.unit}
     if q.expr is not None:
         d["lines"] = equation_lines(sympy.Symbol(q.name), q.expr)
         d["latex"] = to_latex(q.expr)
@@ -286,13 +264,16 @@ def eng_prose(t: str, digits: int = 4) -> str:
 
     >>> eng_prose("= ± 0.00500499 V, so -0.0075025 to 2.50125e-06 V.")
     '= ± 5.005 mV, so -7.502 mV to 2.501 µV.'
-    >>> eng_prose("a 1 A test current, 350 Ω")
-    'a 1 A test current, 350 Ω'
+    >>> eng_prose("a 1 A test current, 350 Ω, 0.005 V")
+    'a 1 A test current, 350 Ω, 5 mV'
     """
     def long(n):
         return "e" in n or len(n.lstrip("-").replace(".", "").strip("0")) > digits
 
     def one(n, unit):
+        if not long(n):       # a short number (an entered value): all of its digits, no more
+            from fractions import Fraction
+            return format_exact(Fraction(n), unit)
         return format_eng(float(n), unit, digits=digits)
 
     def sub(m):
@@ -320,23 +301,29 @@ def _unit_of(record, name):
         q = r.quantities.get(name)
         if q is not None and q.unit:
             return q.unit
+    if name in quantities.QUANTITIES and quantities.unit(name):
+        return quantities.unit(name)
     return _QUANTITY_UNIT.get(name)
 
 
-def _eng(v, unit):
-    return format_eng(v, unit, digits=4) if v is not None else "—"
+def _eng(v, unit, digits=DEFAULT_DIGITS):
+    return format_value(v, unit, digits) if v is not None else "—"
 
 
-def _tx(v, unit) -> str:
+def _tx(v, unit, digits=DEFAULT_DIGITS) -> str:
     """A value with unit inside math (a true minus sign, the rest upright text)."""
-    t = format_eng(v, unit, digits=4)
+    t = format_value(v, unit, digits)
     return r"-\text{%s}" % t[1:] if t.startswith("-") else r"\text{%s}" % t
 
 
-def _plain(v) -> str:
-    """A dimensionless figure to 4 significant digits, without an SI prefix."""
-    t = f"{v:.4g}"
-    return t if "e" not in t else format_eng(v, None, digits=4)
+def _plain(v, digits=DEFAULT_DIGITS) -> str:
+    """A dimensionless figure to ``digits`` significant digits, without an SI prefix."""
+    return format_value(v, None, digits)
+
+
+def _pct(v, digits=DEFAULT_DIGITS) -> str:
+    """A computed fraction as a percentage (``0.0123`` -> ``1.23 %``)."""
+    return f"{format_value(v * 100, None, digits)} %"
 
 
 def _frequency_items(record, r, q):
@@ -344,61 +331,73 @@ def _frequency_items(record, r, q):
     f = (r.extra.get("frequency") or {}).get(q.name)
     if not f or q.expr is None:
         return []
-    parts = []
+    d = digits_of(record)
+    parts, plain = [], []
     if f.get("f0_value") is not None:
-        parts.append(r"f_0 = \text{%s}" % _eng(f["f0_value"], "Hz"))
+        parts.append(r"f_0 = \text{%s}" % _eng(f["f0_value"], "Hz", d))
+        plain.append(f"f0 = {_eng(f['f0_value'], 'Hz', d)}")
     if f.get("w0_value") is not None:
-        parts.append(r"\omega_0 = \text{%s}" % format_eng(f["w0_value"], "rad/s", digits=4))
+        parts.append(r"\omega_0 = \text{%s}" % _eng(f["w0_value"], "rad/s", d))
+        plain.append(f"ω0 = {_eng(f['w0_value'], 'rad/s', d)}")
     if f.get("Q_value") is not None:
-        parts.append(r"Q = %s" % _plain(f["Q_value"]))
+        parts.append(r"Q = %s" % _plain(f["Q_value"], d))
+        plain.append(f"Q = {_plain(f['Q_value'], d)}")
     if f.get("f_corner_value") is not None:
-        parts.append(r"f_c = \text{%s}" % _eng(f["f_corner_value"], "Hz"))
+        parts.append(r"f_c = \text{%s}" % _eng(f["f_corner_value"], "Hz", d))
+        plain.append(f"fc = {_eng(f['f_corner_value'], 'Hz', d)}")
     s = sympy.Symbol("s")
     try:
         dc = sympy.cancel(q.expr).subs(s, 0)
         dc = dc.xreplace(record.circuit.nominal_values()) if dc.is_finite is not False else None
         if dc is not None and dc.is_number and dc.is_finite:
-            parts.append(r"\text{DC gain} = %s" % format_eng(float(dc), None, digits=4)
-                         if q.unit in ("V/V", "A/A") else
-                         r"\text{at DC} = \text{%s}" % _eng(float(dc), q.unit))
+            ratio = q.unit in ("V/V", "A/A")
+            parts.append(r"\text{DC gain} = %s" % _plain(float(dc), d) if ratio else
+                         r"\text{at DC} = \text{%s}" % _eng(float(dc), q.unit, d))
+            plain.append(f"DC gain = {_plain(float(dc), d)}" if ratio else
+                         f"at DC = {_eng(float(dc), q.unit, d)}")
     except (TypeError, ValueError, ZeroDivisionError):
         pass
     poles = f.get("poles_value") or []
     if poles:
-        shown = []
+        shown, words = [], []
         for p in poles[:4]:
             re_, im = (p[0], p[1]) if isinstance(p, (list, tuple)) else (p, 0)
-            txt = _tx(re_, "rad/s") if re_ else "0"
+            txt = _tx(re_, "rad/s", d) if re_ else "0"
+            word = _eng(re_, "rad/s", d) if re_ else "0"
             if im:
-                txt += r" \pm j\,%s" % _tx(abs(im), "rad/s")
+                txt += r" \pm j\,%s" % _tx(abs(im), "rad/s", d)
+                word += f" ± j·{_eng(abs(im), 'rad/s', d)}"
             shown.append(txt)
+            words.append(word)
         parts.append(r"\text{poles } s = " + r",\ ".join(dict.fromkeys(shown)))
-    return [{"label": "frequency response", "math": r",\quad ".join(parts), "text": ""}] \
-        if parts else []
+        plain.append("poles s = " + ", ".join(dict.fromkeys(words)))
+    return [{"label": "frequency response", "math": r",\quad ".join(parts), "text": "",
+             "plain": ", ".join(plain)}] if parts else []
 
 
-def _approximation_item(q) -> dict:
+def _approximation_item(q, digits=DEFAULT_DIGITS) -> dict:
     """The summary line of ``approximately within``: the short form and its bound."""
     a = q.approximation
-    pct = lambda v: (f"{v * 100:.3g} %" if v < 10 else      # noqa: E731
-                     f"{v * 100:,.0f} %".replace(",", " "))
+    pct = lambda v: (f"{format_bound(v * 100, digits)} %" if v < 10 else      # noqa: E731
+                     f"{v * 100:,.0f} %".replace(",", " "))      # a bound, rounded up
     how = "proven" if a.get("proven") else f"searched, {a.get('points')} points"
     if a.get("met"):
         form = to_latex(a["expr"])
         math = to_latex(sympy.Symbol(q.name)) + r" \approx " + form \
             if visual_len(form) <= 2 * SHORT_FORM else ""
         return {"label": "approximation", "math": math,
+                "plain": f"{q.name} ≈ {to_text(a['expr'])}" if math else "",
                 "text": f"relative error at most {pct(a['max_error'])} over the tolerance box"
                         + (" and band" if a.get("band") else "") + " "
-                        f"(asked: within {pct(a['within'])}; bound {how})"}
+                        f"(asked: within {a['within'] * 100:g} %; bound {how})"}
     best = a.get("max_error")
     return {"label": "approximation", "math": "",
-            "text": f"no form shorter than the exact one meets {pct(a['within'])}" +
+            "text": f"no form shorter than the exact one meets {a['within'] * 100:g} %" +
                     (f"; the best of the shortest forms tried is within {pct(best)}"
                      if best is not None else "")}
 
 
-def _operating_point_items(op) -> list:
+def _operating_point_items(op, d=DEFAULT_DIGITS) -> list:
     """Summary of ``find operating point``: the counts, the largest dissipation, the balance."""
     power = [(k, v["value"]) for k, v in op["power"].items() if v["value"] is not None]
     items = [{"label": "operating point", "math": "",
@@ -408,8 +407,8 @@ def _operating_point_items(op) -> list:
         k, p = max(power, key=lambda kv: kv[1])
         supplied = -sum(v for _, v in power if v < 0)
         items.append({"label": "power", "math": "", "text":
-                      f"sources deliver {_eng(supplied, 'W')}; largest absorbed: {k} "
-                      f"{_eng(p, 'W')}"})
+                      f"sources deliver {_eng(supplied, 'W', d)}; largest absorbed: {k} "
+                      f"{_eng(p, 'W', d)}"})
     bal = op.get("balance") or {}
     items.append({"label": "power balance", "math": "", "text":
                   "absorbed powers add to zero (exact)" if bal.get("exact_zero") else
@@ -417,7 +416,7 @@ def _operating_point_items(op) -> list:
     return items
 
 
-def _stress_items(stress) -> list:
+def _stress_items(stress, d=DEFAULT_DIGITS) -> list:
     """Summary of ``find stress``: one verdict per rated quantity."""
     if not stress:
         return [{"label": "stress", "math": "", "text": "no rated element"}]
@@ -426,25 +425,25 @@ def _stress_items(stress) -> list:
         u = s["unit"]
         items.append({"label": f"stress {key}", "math": "", "text":
                       f"{'ok' if s['ok'] else 'EXCEEDED'}: worst {s['quantity']} "
-                      f"{_eng(s['worst'], u)} of limit {_eng(s['limit'], u)} "
-                      f"({s['use'] * 100:.0f} %)"})
+                      f"{_eng(s['worst'], u, d)} of limit {_standard(s['limit'], u)} "
+                      f"({s['use'] * 100:.1f} %)"})      # a share of the limit, as in the table
     return items
 
 
-def _noise_items(n) -> list:
+def _noise_items(n, d=DEFAULT_DIGITS) -> list:
     """rms over the band, the largest shares and the noise-equivalent bandwidth."""
     lo, hi = n["band"]
-    band = f"{_eng(lo, 'Hz')} to {_eng(hi, 'Hz')}"
+    band = f"{_eng(lo, 'Hz', d)} to {_eng(hi, 'Hz', d)}"
     if n.get("rms") is None:
         return [{"label": "noise", "math": "", "text": f"{band}: density in closed form "
                  "only (some symbols have no nominal value)"}]
     top = sorted(n["contributions"].items(), key=lambda kv: -kv[1]["share"])[:3]
-    text = f"{_eng(n['rms'], 'V')} rms over {band}"
+    text = f"{_eng(n['rms'], 'V', d)} rms over {band}"
     if top:
-        text += "; largest: " + ", ".join(f"{k} {100 * v['share']:.3g} %" for k, v in top)
+        text += "; largest: " + ", ".join(f"{k} {_pct(v['share'], d)}" for k, v in top)
     nb = n.get("noise_bandwidth")
     if nb:
-        text += f"; noise-equivalent bandwidth {_eng(nb['value'], 'Hz')}"
+        text += f"; noise-equivalent bandwidth {_eng(nb['value'], 'Hz', d)}"
     return [{"label": "output noise", "math": "", "text": text}]
 
 
@@ -453,52 +452,57 @@ def request_summary(record, r) -> list:
     tolerance band, the three largest sensitivities, verdicts, frequency figures."""
     items = []
     x = r.extra
+    d = digits_of(record)
     for q in r.quantities.values():
         name = to_latex(sympy.Symbol(q.name))
         form = to_latex(q.expr) if q.expr is not None else None
         math = name + (" = " + form if form and visual_len(form) <= SHORT_FORM else "")
-        value = _value_text(q.value, q.unit) if q.value is not None else ""
+        value = _value_text(q.value, q.unit, d) if q.value is not None else ""
+        short = form and visual_len(form) <= SHORT_FORM
         items.append({"label": "inverted formula" if q.form == "inverted" else "",
-                      "math": math, "text": ("= " + value) if value else
+                      "math": math,
+                      "plain": q.name + (f" = {to_text(q.expr)}" if short else ""),
+                      "text": ("= " + value) if value else
                       (f"no value: {q.undefined}" if getattr(q, "undefined", None) else
                        "no value (symbolic)") +
                       (", closed form below" if form and visual_len(form) > SHORT_FORM
                        else "")})
         items += _frequency_items(record, r, q)
         if getattr(q, "approximation", None):
-            items.append(_approximation_item(q))
+            items.append(_approximation_item(q, d))
     if "valid_range" in x and x["valid_range"]:
         rng = x["valid_range"][0]
         unit = (x.get("measured") or {}).get("unit")
         if rng.get("low_value") is not None and rng.get("high_value") is not None:
             items.append({"label": "valid for", "math": "", "text":
-                          f"{_eng(rng['low_value'], unit)} < measured value < "
-                          f"{_eng(rng['high_value'], unit)}"})
+                          f"{_eng(rng['low_value'], unit, d)} < measured value < "
+                          f"{_eng(rng['high_value'], unit, d)}"})
     if "spread" in x:
         name = x.get("tolerance_of", "")
         unit = _unit_of(record, name)
         sp = x["spread"]
-        txt = f"{_eng(sp['low'], unit)} to {_eng(sp['high'], unit)} (extreme values, " \
-              f"nominal {_eng(sp['nominal'], unit)})"
+        txt = f"{_eng(sp['low'], unit, d)} to {_eng(sp['high'], unit, d)} (extreme values, " \
+              f"nominal {_eng(sp['nominal'], unit, d)})"
         rss = x.get("rss")
         if rss:
-            txt += f"; RSS {_eng(rss['low'], unit)} to {_eng(rss['high'], unit)}"
+            txt += f"; RSS {_eng(rss['low'], unit, d)} to {_eng(rss['high'], unit, d)}"
         items.append({"label": "tolerance band", "math": to_latex(sympy.Symbol(name)) if name
-                      else "", "text": txt})
+                      else "", "plain": name, "text": txt})
     if "sensitivities" in x:
         sens = sorted(x["sensitivities"].items(),
                       key=lambda kv: (kv[1].get("rank") or 1e9, kv[0]))[:3]
-        parts = [f"{k} {_plain(v['value'])}" for k, v in sens
+        parts = [f"{k} {_plain(v['value'], d)}" for k, v in sens
                  if v.get("value") is not None]
-        items.append({"label": "largest normalized sensitivities (x/Q)(dQ/dx)",
+        of = x.get("sensitivity_of") or "Q"
+        items.append({"label": f"largest normalized sensitivities (x/{of})(d{of}/dx)",
                       "math": "", "text": ", ".join(parts)})
-    items += review_items(x)
+    items += review_items(x, d)
     if "operating_point" in x:
-        items += _operating_point_items(x["operating_point"])
+        items += _operating_point_items(x["operating_point"], d)
     if "stress" in x:
-        items += _stress_items(x["stress"])
+        items += _stress_items(x["stress"], d)
     if "noise" in x:
-        items += _noise_items(x["noise"])
+        items += _noise_items(x["noise"], d)
     if x.get("within"):                 # check ... within E%: the bound and its method
         w = x["within"]
         items.append({"label": "claim", "math": "", "text": w["verdict"]})   # with its method
@@ -513,30 +517,38 @@ def request_summary(record, r) -> list:
     return items
 
 
-def review_items(x) -> list:
+def review_items(x, d=DEFAULT_DIGITS) -> list:
     """Summary lines of ``find drift of``, ``find budget of`` and ``choose`` results."""
     items = []
     if "drift" in x:
-        d, unit = x["drift"], x["drift"].get("unit")
-        ppm = d.get("ppm_per_K")
+        dr, unit = x["drift"], x["drift"].get("unit")
+        ppm = dr.get("ppm_per_K")
         items.append({"label": "drift over temperature", "math": "", "text":
-                      f"{_eng(d['low'], unit)} at {d['at_low']:g} °C to {_eng(d['high'], unit)} "
-                      f"at {d['at_high']:g} °C (nominal {_eng(d['nominal'], unit)}"
-                      + (f", {ppm:.4g} ppm/K at T0)" if ppm is not None else ")")})
+                      f"{_eng(dr['low'], unit, d)} at {dr['at_low']:.{d}g} °C to "
+                      f"{_eng(dr['high'], unit, d)} at {dr['at_high']:.{d}g} °C (nominal "
+                      f"{_eng(dr['nominal'], unit, d)}"
+                      + (f", {_plain(ppm, d)} ppm/K at T0)" if ppm is not None else ")")})
     if "budget" in x:
         b, unit = x["budget"], x["budget"].get("unit")
         items.append({"label": "tolerance and drift budget", "math": "", "text":
-                      f"{_eng(b['low'], unit)} to {_eng(b['high'], unit)} (extreme values, "
-                      f"nominal {_eng(b['nominal'], unit)}); RSS ± {_eng(b['rss'], unit)} "
+                      f"{_eng(b['low'], unit, d)} to {_eng(b['high'], unit, d)} (extreme values, "
+                      f"nominal {_eng(b['nominal'], unit, d)}); RSS ± {_eng(b['rss'], unit, d)} "
                       "(first order)"})
     if "choice" in x:
         c, unit = x["choice"], x["choice"].get("unit")
-        vals = ", ".join(f"{k} = {format_eng(v, c.get('units', {}).get(k), digits=4)}"
+        vals = ", ".join(f"{k} = {_standard(v, c.get('units', {}).get(k))}"
                          for k, v in c["values"].items())
         items.append({"label": f"standard values ({c['series']})", "math": "", "text":
-                      f"{vals}: {_eng(c['result'], unit)} for the target "
-                      f"{_eng(c['target'], unit)} (relative error {c['error']:.2e})"})
+                      f"{vals}: {_eng(c['result'], unit, d)} for the target "
+                      f"{_eng(c['target'], unit, d)} (relative error {c['error']:.{max(d - 1, 0)}e})"})
     return items
+
+
+def _standard(v, unit) -> str:
+    """A preferred (series) value with the digits of its series (4.87 kΩ, 100 nF), or a
+    stress limit, the exact rating × derating (125 mW)."""
+    from fractions import Fraction
+    return format_exact(Fraction(repr(float(v))), unit)
 
 
 def standard_values(record) -> dict:
@@ -547,23 +559,23 @@ def standard_values(record) -> dict:
         for e in record.circuit.elements:
             if isinstance(e.value, sympy.Symbol) and str(e.value) in chosen:
                 unit = element_kinds.kind(e.kind).unit
-                out.setdefault(e.name, []).append(
-                    format_eng(chosen[str(e.value)], unit, digits=4))
+                out.setdefault(e.name, []).append(_standard(chosen[str(e.value)], unit))
     return {k: " / ".join(dict.fromkeys(v)) for k, v in out.items()}
 
 
 def view(record) -> dict:
     c = record.circuit
+    d = digits_of(record)
     results = []
     for r in record.results:
         figs = r.extra.get("figures") or []
         results.append({"request": r.request.text, "notes": list(r.notes),
                         "summary": request_summary(record, r),
-                        "quantities": [quantity_view(q) for q in r.quantities.values()],
-                        "steps": [step_view(s) for s in r.steps],
+                        "quantities": [quantity_view(q, d) for q in r.quantities.values()],
+                        "steps": [step_view(s, d) for s in r.steps],
                         "figures": list(figs)})
     all_steps = [s for r in results for s in r["steps"]]
-    rows, std = elements(c), standard_values(record)
+    rows, std = elements(c, d), standard_values(record)
     for e in rows:              # the "with standard values" column, where any is chosen
         e["standard"] = std.get(e["name"], "")
     return {"title": c.sheet.title or "Design calculation", "notes": list(c.sheet.notes),

@@ -9,7 +9,7 @@ from typing import Optional
 import sympy
 
 from derive.circuit.build import Circuit, key_of
-from derive.sheet.units import format_eng
+from derive.sheet.units import format_value
 from derive.solver.cramer import Solver
 from derive.solver.stamping import System
 
@@ -36,14 +36,14 @@ class QuantityResult:
     approximation: Optional[dict] = None
 
     def __repr__(self) -> str:
-        value = "no value" if self.value is None else format_eng(self.value, self.unit)
+        value = "no value" if self.value is None else format_value(self.value, self.unit)
         return f"<{self.name} = {_short(self.expr)} ({value}, {self.form})>"
 
     def _repr_latex_(self) -> str:
         """Jupyter: the closed form and its value at nominal."""
         rhs = sympy.latex(self.expr) if self.expr is not None else r"\text{(sequence)}"
         value = "" if self.value is None else \
-            r" \approx \text{" + format_eng(self.value, self.unit) + "}"
+            r" \approx \text{" + format_value(self.value, self.unit) + "}"
         return f"$\\mathrm{{{self.name}}} = {rhs}{value}$"
 
 
@@ -67,8 +67,8 @@ class RequestResult:
         noise = self.extra.get("noise")
         if noise and noise.get("rms") is not None:
             lo, hi = noise["band"]
-            lines.append(f"- output noise {format_eng(noise['rms'], 'V')} rms from "
-                         f"{format_eng(lo, 'Hz')} to {format_eng(hi, 'Hz')}")
+            lines.append(f"- output noise {format_value(noise['rms'], 'V')} rms from "
+                         f"{format_value(lo, 'Hz')} to {format_value(hi, 'Hz')}")
         lines += [f"- {n}" for n in self.notes]
         return "\n".join(lines) + "\n"
 
@@ -86,6 +86,7 @@ class Options:
     mc_samples: int = 100_000           # Monte Carlo of `find tolerance`
     mc_seed: int = 1
     mc_distribution: str = "uniform"    # or 'normal' (tolerance = 3 sigma)
+    digits: int = 4                     # significant figures of computed values in prose
 
 
 @dataclass

@@ -222,7 +222,8 @@ class Request:
     the element of ``current through X`` and ``power in X``, ``source`` the source of ``gain from S to P``,
     ``port2`` the second port of ``model/twoport from P1 to P2`` (then ``port`` is P1).
     ``analysis`` is None, 'sensitivity', 'tolerance', 'drift' or 'budget'
-    (``find sensitivity of Q``).
+    (``find sensitivity of Q``); ``response`` is None or 'f0', 'w0', 'Q' (``find tolerance
+    of f0 of Q``: the natural frequency or quality factor of Q's second-order denominator).
     ``solve_for`` is the symbol of ``solve Q for X``; ``claim`` the expression of
     ``check Q equals EXPR``. ``text`` is the statement as written (whitespace collapsed),
     used as the request key in records.
@@ -254,6 +255,7 @@ class Request:
     target: Optional[Quantity] = None
     band: Optional[tuple] = None
     within: Optional[Fraction] = None
+    response: Optional[str] = None      # 'f0', 'w0' or 'Q' of ``find tolerance of f0 of Q``
     # also in name_locs: 'series', 'target', 'band', 'within' (the word 'approximately',
     # or 'within' of a check)
 

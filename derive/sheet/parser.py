@@ -598,10 +598,22 @@ class _Builder:
             if first.type == "NOISE":
                 return self._noise_request(stmt, text, rest)
             analysis, rest = str(rest[0]), rest[1:]
+        response = response_loc = None
+        if rest and isinstance(rest[0], Tree) and rest[0].data == "response":
+            response = self._response(analysis, rest[0])
+            response_loc = _loc(rest[0].children[0])
+            rest = rest[1:]
         if statement == "choose":
             return self._choose(stmt, text, rest)
-        req = Request(statement, "", text, _loc(stmt), analysis=analysis)
+        req = Request(statement, "", text, _loc(stmt), analysis=analysis, response=response)
+        if response_loc is not None:
+            req.name_locs["response"] = response_loc
         self._quantity_phrase(req, rest[0])
+        if response is not None and len(quantities.members(req.quantity)) != 1:
+            raise _err(f"'{response} of' takes a single quantity; '{req.quantity}' gives "
+                       f"{quantities.quantity(req.quantity).said}", rest[0].children[0],
+                       hint=f"name one of them, e.g. find {analysis} of {response} of gain "
+                            "from Vin to out")
         if len(rest) > 1 and isinstance(rest[1], Tree) and rest[1].data == "approx":
             self._approx(req, rest[1])
             return req
@@ -631,6 +643,17 @@ class _Builder:
         if band:
             req.band = self._band(band[0])
             req.name_locs["band"] = _loc(band[0])
+
+    def _response(self, analysis: str, node: Tree) -> str:
+        """``f0``/``w0``/``Q`` of ``find ANALYSIS of f0 of Q``: the analyses that take it."""
+        tok = node.children[0]
+        word = {"F0": "f0", "W0": "w0", "QFACTOR": "Q"}[tok.type]
+        if not quantities.accepts(analysis, word):
+            took = " and ".join(f"'find {a} of'" for a in quantities.ANALYSES
+                                if quantities.accepts(a, word))
+            raise _err(f"'{word} of' is taken by {took}, not by 'find {analysis} of'", tok,
+                       hint=f"for example: find tolerance of {word} of gain from Vin to out")
+        return word
 
     def _noise_request(self, stmt: Tree, text: str, rest) -> Request:
         req = Request("find", "noise", text, _loc(stmt))

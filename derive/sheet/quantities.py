@@ -14,8 +14,9 @@ A *request word* is what follows ``find`` (``thevenin``, ``vth``, ``gain``, ``mo
 * ``slots``: the names a request phrase fills, in order (``gain from S to P``: source, port);
 * ``family``: ``"basic"`` (the port and branch quantities of
   :func:`derive.forms.select.port_quantities`), ``"section"`` (``model``, ``twoport``),
-  ``"element"`` (``power in X``), ``"circuit"`` (requests of the whole circuit) or
-  ``"result"`` (a result name only, never a request word);
+  ``"element"`` (``power in X``), ``"circuit"`` (requests of the whole circuit),
+  ``"response"`` (``f0``, ``w0``, ``Q`` of a result's second-order denominator, written
+  ``find tolerance of f0 of Q``) or ``"result"`` (a result name only, never a request word);
 * ``analyses``: which of ``find sensitivity of``/``tolerance``/``drift``/``budget``,
   ``solve``, ``check``, ``choose``, ``approximately within`` and ``within`` (``check Q
   equals EXPR within E%``) take it;
@@ -60,6 +61,7 @@ ANALYSES = ("sensitivity", "tolerance", "solve", "check", "drift", "budget", "ch
 _SCALAR = frozenset(ANALYSES)
 _GROUP = frozenset(("sensitivity", "tolerance", "drift", "budget"))
 _NONE = frozenset()
+_RESPONSE = frozenset(("sensitivity", "tolerance"))
 
 
 @dataclass(frozen=True)
@@ -129,6 +131,11 @@ _TABLE = (
     Quantity("rin", "ohm", "result", tex=r"R_{\mathrm{in}}"),
     Quantity("rout", "ohm", "result", tex=r"R_{\mathrm{out}}"),
     *(Quantity(n, u, "result") for n, u in _TWOPORT),
+    # the natural frequency and quality factor of a result's second-order denominator,
+    # taken by ``find sensitivity of``/``find tolerance of`` (``f0 of gain from S to P``)
+    Quantity("f0", "Hz", "response", slots=(), analyses=_RESPONSE, tex=r"f_{0}"),
+    Quantity("w0", "rad/s", "response", slots=(), analyses=_RESPONSE, tex=r"\omega_{0}"),
+    Quantity("Q", None, "response", slots=(), analyses=_RESPONSE, tex=r"Q"),
     Quantity("operating_point", None, "circuit", slots=()),
     Quantity("stress", None, "circuit", slots=()),
     Quantity("noise", None, "circuit", slots=("port",)),
@@ -150,6 +157,11 @@ def quantity(name: str) -> Quantity:
 def of_family(family: str) -> tuple:
     """The names of one family, in table order (``"basic"``: every port/branch quantity)."""
     return tuple(q.name for q in _TABLE if q.family == family)
+
+
+def response_words() -> tuple:
+    """The words of ``find ANALYSIS of WORD of Q`` (``f0``, ``w0``, ``Q``)."""
+    return of_family("response")
 
 
 def twin(name: str) -> str:

@@ -361,3 +361,119 @@ def format_eng(value, unit: Optional[str] = None, digits: int = 3) -> str:
     prefix = _ENG_PREFIX[exp3]
     unit_part = f" {prefix}{shown_unit}" if shown_unit else prefix
     return f"{sign}{number}{unit_part}"
+
+
+# The number of significant figures of computed values in a record (``--digits``).
+DEFAULT_DIGITS = 4
+MAX_DIGITS = 15          # binary64 carries 15 to 17 significant decimal digits
+
+
+def check_digits(digits) -> int:
+    """``digits`` if it is a whole number from 1 to :data:`MAX_DIGITS`, else ``ValueError``.
+
+    >>> check_digits(6)
+    6
+    >>> check_digits(0)
+    Traceback (most recent call last):
+    ...
+    ValueError: the number of significant figures must be a whole number from 1 to 15, not 0
+    """
+    if isinstance(digits, bool) or not isinstance(digits, int) or not 1 <= digits <= MAX_DIGITS:
+        raise ValueError(f"the number of significant figures must be a whole number from 1 to "
+                         f"{MAX_DIGITS}, not {digits!r}")
+    return digits
+
+
+def format_value(value, unit: Optional[str] = None, digits: int = DEFAULT_DIGITS) -> str:
+    """A computed value for a record: with a unit, engineering notation with its SI prefix
+    (:func:`format_eng`); without one, plain significant figures (an exponent where the
+    plain number needs one, never a bare prefix letter). ``None`` is ``'n/a'``.
+
+    >>> format_value(0.00500499, 'V'), format_value(-0.00750250, 'V', 6)
+    ('5.005 mV', '-7.50250 mV')
+    >>> format_value(-0.4995, None), format_value(1, None), format_value(1.5e-7, None, 3)
+    ('-0.4995', '1.000', '1.50e-07')
+    >>> format_value(None), format_value(1234.6, None)
+    ('n/a', '1235')
+    >>> format_value(2.5e-11, 'V^2')
+    '2.500e-11 V²'
+
+    """
+    if value is None:
+        return "n/a"
+    if isinstance(value, complex):
+        if value.imag == 0:
+            value = value.real
+        else:
+            sign = "+" if value.imag >= 0 else "-"
+            return (f"{format_value(value.real, None, digits)} {sign} "
+                    f"{format_value(abs(value.imag), None, digits)}j"
+                    + (f" {_UNIT_SHOWN.get(unit, unit)}" if unit else ""))
+    if unit and ("²" in unit or "^" in unit):      # no prefix on a squared unit (µV² is 1e-12 V²)
+        return f"{float(value):.{digits - 1}e} {unit.replace('^2', '²')}"
+    if unit:
+        return format_eng(value, unit, digits)
+    x = float(value)
+    t = f"{x:#.{digits}g}"                  # keeps its trailing zeros: 1.000, like 1.000 V
+    if "e" in t:                            # no bare prefix letter: 4.917e+11, not 491.7G
+        return f"{x:.{digits - 1}e}"
+    return t[:-1] if t.endswith(".") else t
+
+
+def format_bound(value, digits: int = DEFAULT_DIGITS) -> str:
+    """An upper bound (a non-negative number) with ``digits`` significant figures, rounded
+    up so that it stays a bound.
+
+    >>> format_bound(0.02240012, 2), format_bound(0.0224, 4), format_bound(0)
+    ('0.023', '0.02240', '0')
+    """
+    from decimal import ROUND_CEILING, Decimal
+    x = float(value)
+    if not math.isfinite(x) or x <= 0:
+        return format_value(x, None, digits) if x else "0"
+    d = Decimal(repr(x))
+    q = Decimal(1).scaleb(d.adjusted() - digits + 1)
+    up = d.quantize(q, rounding=ROUND_CEILING)
+    if up.adjusted() > d.adjusted():                    # 0.0999 -> 0.10: one digit fewer
+        up = up.quantize(q.scaleb(1), rounding=ROUND_CEILING)
+    t = format(up, "f") if -6 <= up.adjusted() < 15 else f"{float(up):.{digits - 1}e}"
+    return t
+
+
+def format_exact(value, unit: Optional[str] = None) -> str:
+    """An entered (exact rational) value in engineering notation with all of its digits and
+    no rounding: 350.7 ohm stays 350.7 Ω, 4.7k stays 4.7 kΩ. A value with no finite decimal
+    expansion (an entered fraction such as 1/3) falls back to 4 significant figures.
+
+    >>> format_exact(Fraction(3507, 10), 'ohm'), format_exact(Fraction(1, 10**7), 'F')
+    ('350.7 Ω', '100 nF')
+    >>> format_exact(Fraction(-47, 1000000), 'A'), format_exact(Fraction(1, 3), 'V')
+    ('-47 µA', '333.3 mV')
+    """
+    q = Fraction(value)
+    d = q.denominator
+    for p in (2, 5):
+        while d % p == 0:
+            d //= p
+    if d != 1 or q == 0:
+        return format_eng(float(q), unit, digits=4)
+    sign = "-" if q < 0 else ""
+    q = abs(q)
+    k = 0                                           # exact decimal digits: q = digits * 10**-k
+    while (q * 10 ** k).denominator != 1:
+        k += 1
+    digits = str(int(q * 10 ** k))
+    exp10 = len(digits) - 1 - k                     # position of the leading digit
+    exp3 = 3 * (exp10 // 3)
+    if exp3 not in _ENG_PREFIX:
+        return format_eng(float(q) * (-1 if sign else 1), unit, digits=max(len(digits), 3))
+    shift = k + exp3                                # the number is digits * 10**-shift
+    if shift <= 0:
+        number = digits + "0" * (-shift)
+    else:
+        digits = digits.rjust(shift + 1, "0")
+        head, tail = digits[:-shift], digits[-shift:].rstrip("0")
+        number = head + ("." + tail if tail else "")
+    shown = _UNIT_SHOWN.get(unit, unit) if unit else ""
+    prefix = _ENG_PREFIX[exp3]
+    return f"{sign}{number} {prefix}{shown}" if shown else f"{sign}{number}{prefix}"
