@@ -14,7 +14,7 @@ import sympy
 
 from derive.solver import convert as edge
 from derive.errors import SheetError
-from derive.forms import power
+from derive.forms import cost, power
 from derive.forms.results import QuantityResult
 from derive.sheet import kinds, quantities
 from derive.solver.determinant import estimate_det_terms
@@ -230,30 +230,24 @@ def compact(ctx, req, q, readable=None):
     from derive.forms import elimination as sequence
     sp = reduce.port_form(ctx, req, q.name) if req.quantity != "current" else None
     nested = None
+    inline_size = None
     if sp is not None:
         defs, final = sp
-        nested = sequence.inline(defs, final) if _inline_size(defs, final) <= INLINE_LIMIT \
-            else None
+        # the printed length of the nested form, read off its named pieces (the length of
+        # the text with every name replaced by its expression: printing the nested sympy
+        # expression itself costs more than all the rest of a small ladder)
+        inline_size = _inline_size(defs, final)
+        nested = sequence.inline(defs, final) if inline_size <= INLINE_LIMIT else None
     shorter = None
-    lengths: dict = {}
-
-    def nested_len():
-        """The printed length of the nested form, read off its named pieces (the length
-        of the text with every name replaced by its expression: printing the nested sympy
-        expression itself costs more than all the rest of a small ladder); computed once,
-        and only when compared."""
-        if "n" not in lengths:
-            lengths["n"] = _inline_size(defs, final)
-        return lengths["n"]
     if readable is not None:
-        if nested is not None and nested_len() < edge.printed_length_at_least(readable):
+        if nested is not None and inline_size < expanded_length_at_least(readable):
             shorter = True              # what the comparison below would find
         else:
             q.expr = edge.to_sympy(readable)
     if req.quantity != "current":
         if sp is not None:
             if nested is not None and (shorter or q.expr is None or
-                                       nested_len() < len(str(q.expr))):
+                                       inline_size < len(str(q.expr))):
                 q.expr, q.form = nested, "series-parallel"
             elif q.expr is None:
                 q.form = "series-parallel"
@@ -268,6 +262,15 @@ def compact(ctx, req, q, readable=None):
         q.value = value
         if _inline_size(seq, final) <= 2000:
             q.expr = sequence.inline(seq, final)
+
+
+def expanded_length_at_least(ratio) -> int:
+    """A lower bound of the printed length of the expanded (factored) form of ``ratio``:
+    read off its term counts where that applies (:func:`derive.forms.cost.printed_length_bound`,
+    no factoring or printing), else from its factors
+    (:func:`derive.solver.convert.printed_length_at_least`)."""
+    bound = cost.printed_length_bound(ratio)
+    return edge.printed_length_at_least(ratio) if bound is None else bound
 
 
 INLINE_LIMIT = 20000        # characters: the JSON contract's "unreasonably large"
