@@ -103,3 +103,31 @@ def factor_terms_bound(ratio):
         return 0
     return sum(max((n // gcd(n, c) for c in counts.values()), default=1) - 1
                for n, counts in stats)
+
+
+def printed_length_at_least(e) -> int:
+    """A lower bound of ``len(str(e))`` for a sympy expression, without printing it: every
+    occurrence of a symbol prints its name, and the terms of every sum are separated by
+    " + " or " - " (sympy's string printer); one walk over the expression tree, no sorting
+    of terms (what makes printing a large sum slow).
+
+    >>> import sympy
+    >>> a, bb = sympy.symbols('a bb')
+    >>> e = (a + bb) ** 2 / (a - 3 * bb) + a
+    >>> printed_length_at_least(e) <= len(str(e))
+    True
+    """
+    total = 0
+    stack = [e]
+    while stack:
+        x = stack.pop()
+        if x.is_Symbol:
+            total += len(x.name)
+            continue
+        args = x.args
+        if not args:
+            continue
+        if x.is_Add:
+            total += 3 * (len(args) - 1)
+        stack.extend(args)
+    return total
