@@ -7,6 +7,13 @@ root finder (``sympy.roots``; it may not find every root in radicals, and says s
 root is substituted back and must give the quantity identically. The root that is real and
 positive at nominal values is marked; the conditions (denominators not zero) and the range
 of the measured quantity over which the marked root stays real and positive are stated.
+
+The polynomial, its coefficients in X, the linear root, the factors of the conditions and
+the critical points of the valid range are computed in python-flint from the closed form's
+expression tree (:class:`ExactPoly`), and values at nominal exactly there; sympy only builds
+the expressions shown (and takes over for closed forms with roots or irrational constants).
+A substituted-back form that would print over ``SUBSTITUTED_CHARS`` is shown with X standing
+for the root (it is checked the same way).
 """
 from __future__ import annotations
 
@@ -60,8 +67,8 @@ class ExactPoly:
     ``num/den`` that is a rational function of its symbols: the cancelled numerator and
     denominator, and the coefficient of every power of ``x`` (polynomials in the other
     symbols and ``q``), read off without expanding anything in sympy. ``names``: the ring's
-    symbols, sorted by name (the order sympy's own conversion uses, so factors come out with
-    the same signs and the same sympy forms)."""
+    symbols, sorted by name (the order ``convert.factor`` uses, so factors come out in the
+    same sympy forms)."""
 
     def __init__(self, expr, x, q):
         from derive.analyses.sensitivity import rational
