@@ -32,9 +32,28 @@ def _solver(ctx, req) -> Solver:
 
 
 def expandable(ctx) -> bool:
+    """Whether the circuit's determinants are expanded (exact ratios of polynomials).
+
+    Up to ``LARGEST_EXPANDED`` estimated terms the expanded form may be shown, and it is
+    expanded (up to ``Options.expand_limit``). Beyond that the expanded form is never
+    written out; it serves only the value and the checks, which the other route does by
+    exact nodal solves at points, so it is expanded only where that is estimated to cost
+    less: its cost grows with the terms (cancellation, the vth = isc·rth check and every
+    step check evaluate polynomials of that many terms), the nodal solves' with the
+    unknowns. ``EXPAND_TERMS_PER_UNKNOWN`` is where the two costs meet (measured on the
+    all-symbolic ladders of ``benchmarks/bench_verify_ladders.py``, process cpu time, the
+    collector off: 4181 terms over 11 unknowns expanded 59 ms against 71 ms, 10946 over 12
+    expanded 67 ms against 58 ms), so a larger circuit never takes longer than the smaller
+    one because of the route."""
     if "expandable" not in ctx.cache:
-        ctx.cache["expandable"] = estimate_det_terms(system_of(ctx).A) <= ctx.options.expand_limit
+        A = system_of(ctx).A
+        est = estimate_det_terms(A)
+        ctx.cache["expandable"] = est <= ctx.options.expand_limit and (
+            est <= LARGEST_EXPANDED or est <= EXPAND_TERMS_PER_UNKNOWN * max(1, A.n))
     return ctx.cache["expandable"]
+
+
+EXPAND_TERMS_PER_UNKNOWN = 600  # beyond LARGEST_EXPANDED: expanded while terms <= this * unknowns
 
 
 def gain_unit(ctx, source):
