@@ -2,15 +2,18 @@
 """Sensitivity, tolerance, solve and check at real sizes, whole process, against a naive
 route measured in the same run.
 
-    python benchmarks/bench_analyses_size.py [--quick] [--naive-timeout S]
+    python benchmarks/bench_analyses_size.py [--quick] [--repeat N] [--naive-timeout S]
 
 Cases (every part with a nominal and +-1 %):
   * all-symbolic ladders of 2..16 sections: ``find sensitivity of vth`` and
     ``find tolerance of vth`` (Monte Carlo included);
   * a 14-resistor, five-node mesh with one source: ``find sensitivity of vth``,
     ``find tolerance of vth``, ``solve vth for R5`` and ``check rth equals R1||R2``.
-Each runs as ``derive record SHEET --format json`` in a fresh process; time and peak memory
-(``ru_maxrss`` of that child, from ``os.wait4``) are printed. Run it on an idle machine. The naive route, in a subprocess with a time
+Each runs as ``derive record SHEET --format json`` in fresh processes (``--repeat`` of
+them, default 3; the fastest in wall-clock time is kept); wall-clock time, process cpu
+time (user + system of that child and its worker, from ``os.wait4``) and peak memory
+(``ru_maxrss``) are printed, and the time targets are judged in both (a loaded machine
+inflates the wall-clock times unevenly). Run it on an idle machine. The naive route, in a subprocess with a time
 limit: nodal equations into ``sympy.solve``, then ``sympy.diff`` and ``sympy.cancel`` of
 the output voltage for every part (the sensitivities), or ``sympy.solve`` for R5.
 Targets printed as met / NOT met: every case under 3 s, peak memory under 500 MB, time
@@ -65,9 +68,17 @@ def run_derive(text: str) -> tuple:
         err.seek(0)
         message = err.read().decode("utf-8", "replace").strip().splitlines()[-1:]
     os.unlink(f.name)
+    cpu = usage.ru_utime + usage.ru_stime
     if proc.returncode != 0:
-        return dt, None, message
-    return dt, usage.ru_maxrss / 1024, None
+        return dt, None, message, cpu
+    return dt, usage.ru_maxrss / 1024, None, cpu
+
+
+def best_of(text: str, repeat: int) -> tuple:
+    """run_derive ``repeat`` times; the fastest run (wall-clock) that succeeded."""
+    runs = [run_derive(text) for _ in range(max(1, repeat))]
+    ok = [r for r in runs if r[2] is None]
+    return min(ok, key=lambda r: r[0]) if ok else runs[0]
 
 
 NAIVE = r'''
@@ -124,32 +135,40 @@ def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--quick", action="store_true", help="fewer ladder sizes")
     ap.add_argument("--naive-timeout", type=float, default=60.0)
+    ap.add_argument("--repeat", type=int, default=3,
+                    help="fresh processes per case; the fastest is kept")
     a = ap.parse_args()
     sizes = [2, 4, 6, 8, 12, 16] if a.quick else list(range(2, 17))
-    rows, ok_time, ok_mem = [], True, True
+    rows, ok_mem = [], True
+    ok_time = {"wall-clock": True, "process cpu": True}
     series = {}
+    print(f"load average {os.getloadavg()[0]:.1f} (a loaded machine inflates wall-clock "
+          f"times); each case the fastest of {max(1, a.repeat)} fresh processes")
     for n in sizes:
         for req in ("find sensitivity of vth at out", "find tolerance of vth at out"):
-            dt, mb, err = run_derive(ladder(n) + req + "\n")
-            series.setdefault(req, []).append((n, dt))
-            rows.append((f"ladder {n:2d}", req.split(" of")[0], dt, mb, err))
+            dt, mb, err, cpu = best_of(ladder(n) + req + "\n", a.repeat)
+            series.setdefault(req, []).append((n, dt, cpu))
+            rows.append((f"ladder {n:2d}", req.split(" of")[0], dt, mb, err, cpu))
     base = mesh()
     for req in ("find sensitivity of vth at out", "find tolerance of vth at out",
                 "solve vth at out for R5", "check rth at out equals R1||R2"):
-        dt, mb, err = run_derive(base + req + "\n")
-        rows.append(("mesh 14R", req.split(" at")[0].split(" of")[0], dt, mb, err))
-    print(f"{'case':10} {'request':18} {'time s':>7} {'peak MB':>8}")
-    for case, req, dt, mb, err in rows:
-        ok_time &= dt < 3 and err is None
+        dt, mb, err, cpu = best_of(base + req + "\n", a.repeat)
+        rows.append(("mesh 14R", req.split(" at")[0].split(" of")[0], dt, mb, err, cpu))
+    print(f"{'case':10} {'request':18} {'time s':>7} {'cpu s':>7} {'peak MB':>8}")
+    for case, req, dt, mb, err, cpu in rows:
+        ok_time["wall-clock"] &= dt < 3 and err is None
+        ok_time["process cpu"] &= cpu < 3 and err is None
         ok_mem &= mb is not None and mb < 500
-        print(f"{case:10} {req:18} {dt:7.2f} {mb if mb else float('nan'):8.0f}"
+        print(f"{case:10} {req:18} {dt:7.2f} {cpu:7.2f} {mb if mb else float('nan'):8.0f}"
               + (f"  FAILED: {err}" if err else ""))
-    mono = True
+    mono = {"wall-clock": True, "process cpu": True}
     for req, pts in series.items():
-        for (n0, t0), (n1, t1) in zip(pts, pts[1:]):
-            if t1 + 0.15 < t0:
-                mono = False
-                print(f"not monotone: {req}: ladder {n0} {t0:.2f} s > ladder {n1} {t1:.2f} s")
+        for (n0, t0, c0), (n1, t1, c1) in zip(pts, pts[1:]):
+            for clock, x0, x1 in (("wall-clock", t0, t1), ("process cpu", c0, c1)):
+                if x1 + 0.15 < x0:
+                    mono[clock] = False
+                    print(f"not monotone ({clock}): {req}: ladder {n0} {x0:.2f} s > "
+                          f"ladder {n1} {x1:.2f} s")
     print("naive route (sympy.solve of the nodal equations, then diff + cancel per part):")
     for kind, n, what, ours in (("ladder", 6, "sens", None), ("mesh", 0, "sens", None),
                                 ("mesh", 0, "solve", None)):
@@ -166,9 +185,13 @@ def main():
             else:
                 print(f"  {label} {what}: naive {t:.2f} s; derive {d:.2f} s; ratio "
                       f"{t / d:.1f}x")
-    print(f"target every case under 3 s: {'met' if ok_time else 'NOT met'}")
+    for clock in ("wall-clock", "process cpu"):
+        print(f"target every case under 3 s ({clock}): "
+              f"{'met' if ok_time[clock] else 'NOT met'}")
     print(f"target peak memory under 500 MB: {'met' if ok_mem else 'NOT met'}")
-    print(f"target time monotone along the ladders: {'met' if mono else 'NOT met'}")
+    for clock in ("wall-clock", "process cpu"):
+        print(f"target time monotone along the ladders ({clock}, within 0.15 s): "
+              f"{'met' if mono[clock] else 'NOT met'}")
 
 
 if __name__ == "__main__":

@@ -95,3 +95,73 @@ def test_solve_a_pair_is_refused():
     with pytest.raises(SheetError) as e:
         derive.derive_text(text, "t.eqv")
     assert "vth or rth" in str(e.value)
+
+
+def _mesh():
+    """Every pair of five nodes joined by a resistor, four pairs twice (the size benchmark's
+    mesh, benchmarks/bench_analyses_size.py)."""
+    import itertools
+    nodes = ["top", "n1", "n2", "n3", "gnd"]
+    pairs = list(itertools.combinations(nodes, 2))
+    pairs += pairs[:4]
+    lines = ["voltage source V between top and gnd = 5 V"]
+    for i, (a, b) in enumerate(pairs, 1):
+        lines.append(f"resistor R{i} between {a} and {b} = {1 + i % 5} kohm")
+    lines.append("port out between n3 and gnd")
+    return "\n".join(lines) + "\n", pairs
+
+
+def _mesh_vth(pairs, values, v_source=5.0):
+    """vth at n3 by a numpy nodal solve written here (top driven at V, gnd the reference)."""
+    unknown = ["n1", "n2", "n3"]
+    G = numpy.zeros((3, 3))
+    b = numpy.zeros(3)
+    for i, (a, c) in enumerate(pairs, 1):
+        g = 1.0 / values[f"R{i}"]
+        for p, o in ((a, c), (c, a)):
+            if p in unknown:
+                k = unknown.index(p)
+                G[k, k] += g
+                if o in unknown:
+                    G[k, unknown.index(o)] -= g
+                elif o == "top":
+                    b[k] += g * v_source
+    return numpy.linalg.solve(G, b)[2]
+
+
+def test_mesh_inverse_in_flint_against_a_nodal_solve():
+    text, pairs = _mesh()
+    r = solve_of(text + "solve vth at out for R5\n")
+    q = r.quantities["R5"]
+    assert r.extra["method"] == "linear" and all(st.verified for st in r.steps)
+    values = {f"R{i}": 1000.0 * (1 + i % 5) for i in range(1, 15)}
+    assert q.value == pytest.approx(values["R5"], rel=1e-12)
+    assert r.extra["measured"]["value"] == pytest.approx(_mesh_vth(pairs, values), rel=1e-12)
+    # the formula at another resistance: measure vth by the nodal solve with R5 = 3.7 kohm
+    # and invert it
+    other = dict(values, R5=3700.0)
+    meas = _mesh_vth(pairs, other)
+    sub = {sympy.Symbol(k): sympy.Rational(int(v)) for k, v in other.items() if k != "R5"}
+    sub[sympy.Symbol("V")] = 5
+    f = sympy.lambdify(sympy.Symbol("vth"), q.expr.xreplace(sub))
+    assert f(meas) == pytest.approx(3700.0, rel=1e-9)
+    # the valid range is bounded by vth at R5 = 0 and R5 -> infinity (vth is monotone in
+    # R5 here), both from the nodal solve (R5 = 0.1 mohm and 1 Tohm: near enough to the
+    # limits for 1e-6, and the conductance matrix still well conditioned)
+    (rng,) = r.extra["valid_range"]
+    ends = sorted([_mesh_vth(pairs, dict(values, R5=1e-4)),
+                   _mesh_vth(pairs, dict(values, R5=1e12))])
+    assert (rng["low_value"], rng["high_value"]) == pytest.approx(ends, rel=1e-6)
+
+
+def test_a_substituted_form_too_long_to_print_is_shown_with_the_root_named():
+    text, _ = _mesh()
+    r = solve_of(text + "solve vth at out for R5\n")
+    st = [s for s in r.steps if s.text.startswith("Root 1")][0]
+    assert "R5 stands for the root" in st.text
+    root_eq, back = st.equations
+    assert back.rhs == r.extra["measured"]["closed_form"] and back.verified
+    # the small divider keeps the substituted form written out
+    st = [s for s in solve_of(DIVIDER).steps if s.text.startswith("Root 1")][0]
+    assert "stands for the root" not in st.text
+    assert sympy.Symbol("Rt") not in st.equations[1].rhs.free_symbols

@@ -7,9 +7,19 @@ root finder (``sympy.roots``; it may not find every root in radicals, and says s
 root is substituted back and must give the quantity identically. The root that is real and
 positive at nominal values is marked; the conditions (denominators not zero) and the range
 of the measured quantity over which the marked root stays real and positive are stated.
+
+The polynomial, its coefficients in X, the linear root, the factors of the conditions and
+the critical points of the valid range are computed in python-flint from the closed form's
+expression tree (:class:`ExactPoly`), and values at nominal exactly there; sympy only builds
+the expressions shown (and takes over for closed forms with roots or irrational constants).
+A substituted-back form that would print over ``SUBSTITUTED_CHARS`` is shown with X standing
+for the root (it is checked the same way).
 """
 from __future__ import annotations
 
+from fractions import Fraction
+
+import flint
 import sympy
 from derive.sheet.expressions import as_expr
 
@@ -52,6 +62,165 @@ def measured_symbol(ctx, name: str) -> sympy.Symbol:
     return sympy.Symbol(name)
 
 
+class ExactPoly:
+    """``num - q·den`` as an exact polynomial in ``x`` (python-flint), for a closed form
+    ``num/den`` that is a rational function of its symbols: the cancelled numerator and
+    denominator, and the coefficient of every power of ``x`` (polynomials in the other
+    symbols and ``q``), read off without expanding anything in sympy. ``names``: the ring's
+    symbols, sorted by name (the order ``convert.factor`` uses, so factors come out in the
+    same sympy forms)."""
+
+    def __init__(self, expr, x, q):
+        from derive.analyses.sensitivity import rational
+        r = rational(expr)
+        if r is None:
+            raise ValueError("not a rational function of its symbols")
+        n, d, syms = r
+        if x not in syms or q in syms:
+            raise ValueError("no polynomial in x")
+        self.names = sorted(list(syms) + [q], key=str)
+        self.ctx = flint.fmpq_mpoly_ctx.get(tuple(f"w{i}" for i in range(len(self.names))),
+                                            "lex")
+        gens = self.ctx.gens()
+        image = [gens[self.names.index(v)] for v in syms]
+        self.num = n.compose(*image, ctx=self.ctx)
+        self.den = d.compose(*image, ctx=self.ctx)
+        self.x, self.q = x, q
+        self.ix, self.iq = self.names.index(x), self.names.index(q)
+        self.poly = self.num - gens[self.iq] * self.den
+        self.coeffs = _coefficients(self.poly, self.ix)     # [c0, c1, ...]
+
+    def degree(self) -> int:
+        return len(self.coeffs) - 1
+
+    def expr(self, p) -> sympy.Expr:
+        return edge.poly_expr(p, self.names)
+
+    def grouped(self) -> sympy.Expr:
+        """The polynomial as ``sympy.Poly(..., x).as_expr()`` shows it: powers of ``x`` with
+        their coefficients."""
+        return sympy.Add(*[self.expr(c) * self.x ** k for k, c in enumerate(self.coeffs)])
+
+    def as_sympy(self) -> sympy.Poly:
+        return sympy.Poly.from_list([self.expr(c) for c in reversed(self.coeffs)], self.x)
+
+    def ratio_expr(self, n, d) -> sympy.Expr:
+        """``n/d`` cancelled and factored (what ``convert.factor`` gives for it)."""
+        n, d = self.cancel(n, d)
+        return edge.factored_expr(n, self.names) / edge.factored_expr(d, self.names)
+
+    @staticmethod
+    def cancel(n, d):
+        """``n/d`` cancelled, the sign on the numerator (as sympy's ``together`` leaves it)."""
+        g = n.gcd(d)
+        if not g.is_one() and not g.is_zero():
+            n, d = n / g, d / g
+        if not d.is_zero() and d.leading_coefficient() < 0:
+            n, d = -n, -d
+        return n, d
+
+    def factors(self, p) -> list:
+        """The non-constant irreducible factors of ``p`` (flint polynomials)."""
+        if p.is_zero():
+            return []
+        return [f for f, _m in p.factor()[1] if not f.is_constant()]
+
+    def factor_exprs(self, p) -> list:
+        """The factors of ``p`` as sympy expressions, in ``convert.factor_list``'s order."""
+        out = [self.expr(f) for f in self.factors(p)]
+        out.sort(key=sympy.default_sort_key)
+        return out
+
+
+def _coefficients(p, i) -> list:
+    """Coefficients of the powers of generator ``i`` in ``p``: [c0, c1, ...]."""
+    out = []
+    k, fact = 0, 1
+    while True:
+        out.append(p.subs({i: flint.fmpq(0)}) / fact)
+        if p.degrees()[i] == 0:
+            return out
+        p = p.derivative(i)
+        k += 1
+        fact *= k
+
+
+def _exact_point(names, point: dict):
+    """The values of ``names`` at ``point`` as ``fmpq`` (None where one is missing or not a
+    rational number)."""
+    vals = []
+    for v in names:
+        x = point.get(v)
+        if x is None or not getattr(x, "is_Rational", False):
+            return None
+        vals.append(flint.fmpq(int(x.p), int(x.q)))
+    return vals
+
+
+class RootValues:
+    """A root's exact value at a point (its python-flint rational function evaluated at
+    rational values), with ``_num``'s sympy evaluation where that does not apply."""
+
+    def __init__(self, root):
+        from derive.analyses.sensitivity import rational
+        self.root = root
+        self.r = rational(root) if root.free_symbols else None
+
+    def at(self, point: dict):
+        """``_num(root.xreplace(point))``: a complex number or None."""
+        if self.r is not None:
+            n, d, syms = self.r
+            vals = _exact_point(syms, point)
+            if vals is not None:
+                dv = d(*vals)
+                if dv == 0:
+                    return None             # the root's form is undefined there
+                v = n(*vals) / dv
+                return complex(float(Fraction(int(v.p), int(v.q))))
+        return _num(self.root.xreplace(point))
+
+    def den_factors(self) -> list:
+        """The factors of the root's denominator (``convert.factor_list`` of the denominator
+        of ``together(root)``), as sympy expressions in that function's order."""
+        if self.r is None:
+            _rnum, rden = sympy.fraction(sympy.together(self.root))
+            return [f for f, _m in edge.factor_list(rden)[1]]
+        _n, d, syms = self.r
+        out = [edge.poly_expr(f, syms) for f, _m in d.factor()[1] if not f.is_constant()]
+        out.sort(key=sympy.default_sort_key)
+        return out
+
+
+def _sympy_poly(expr, x, q):
+    """(num, den, Poly in x of num - q·den or None) by sympy, for closed forms that are not
+    rational functions of their symbols (roots, irrational constants)."""
+    try:                                    # cancelled in python-flint
+        num, den = edge.cancelled(expr)
+    except (sympy.PolynomialError, TypeError, ValueError):     # roots, irrational constants
+        num, den = sympy.fraction(sympy.cancel(sympy.together(expr)))
+    try:
+        poly = sympy.Poly(sympy.expand(num - q * den), x)
+    except sympy.PolynomialError:
+        poly = None
+    return num, den, poly
+
+
+def _value_at(poly, expr, nominal):
+    """``expr.xreplace(nominal)``: exactly from the cancelled polynomials where every symbol
+    has a rational nominal value and the denominator does not vanish there."""
+    if isinstance(poly, ExactPoly):
+        used = [v for v in poly.names if v != poly.q]
+        vals = _exact_point(used, nominal)
+        if vals is not None:
+            point = list(vals)
+            point.insert(poly.iq, flint.fmpq(0))
+            d = poly.den(*point)
+            if d != 0:
+                v = poly.num(*point) / d
+                return sympy.Rational(int(v.p), int(v.q))
+    return expr.xreplace(nominal)
+
+
 def polynomial_roots(poly: sympy.Poly):
     """(roots, method) of a univariate polynomial with symbolic coefficients.
 
@@ -59,6 +228,11 @@ def polynomial_roots(poly: sympy.Poly):
     >>> polynomial_roots(sympy.Poly(a*x - b, x))
     ([b/a], 'linear')
     """
+    if isinstance(poly, ExactPoly):
+        if poly.degree() == 1:
+            c0, c1 = poly.coeffs[0], poly.coeffs[1]
+            return [poly.ratio_expr(-c0, c1)], "linear"
+        poly = poly.as_sympy()
     d = poly.degree()
     cs = poly.all_coeffs()
     if d == 1:
@@ -118,6 +292,8 @@ def _chosen(x, root, listed) -> Equation:
 def _critical(poly, x, q, nominal):
     """Real values of q (others at nominal) where a root may change sign or stop being
     real: zeros of the leading and constant coefficients and of the discriminant."""
+    if isinstance(poly, ExactPoly):
+        return _critical_exact(poly, nominal)
     cs = poly.all_coeffs()
     exprs = [cs[0], cs[-1]]
     if poly.degree() >= 2:
@@ -144,11 +320,66 @@ def _critical(poly, x, q, nominal):
     return sorted(pts.items(), key=lambda kv: float(kv[0]))
 
 
+def _critical_exact(poly: "ExactPoly", nominal):
+    """:func:`_critical` on the exact polynomial: the coefficients and the discriminant
+    factored by python-flint, each factor linear in q solved exactly, and the values at
+    nominal computed exactly where every other symbol has a rational nominal value."""
+    iq, q = poly.iq, poly.q
+    exprs = [poly.coeffs[-1], poly.coeffs[0]]
+    if poly.degree() >= 2:
+        exprs.append(poly.poly.discriminant(f"w{poly.ix}"))
+    pts = {}
+    for e in exprs:
+        for fac in poly.factors(e):
+            dq = fac.degrees()[iq]
+            if dq == 0:
+                continue
+            if dq == 1:
+                a1, a0 = fac.derivative(iq), fac.subs({iq: flint.fmpq(0)})
+                n, d = poly.cancel(-a0, a1)
+                sym = poly.ratio_expr(n, d)
+                used = [v for v, k in zip(poly.names, n.degrees()) if k] + \
+                    [v for v, k in zip(poly.names, d.degrees()) if k]
+                vals = _exact_point(used, nominal)
+                if vals is None:
+                    v = sym.xreplace(nominal)           # a symbol without a rational nominal
+                    if v.is_number and v.is_real:
+                        pts[sympy.nsimplify(v)] = sym
+                    continue
+                at = dict(zip(used, vals))
+                point = [at.get(v, flint.fmpq(0)) for v in poly.names]
+                dv = d(*point)
+                if dv != 0:
+                    v = n(*point) / dv
+                    pts[sympy.Rational(int(v.p), int(v.q))] = sym
+                continue
+            free = [v for v, k in zip(poly.names, fac.degrees()) if k and v != poly.q]
+            vals = _exact_point(free, nominal)
+            if vals is None:                # as the sympy route does it
+                num_fac = sympy.Poly(poly.expr(fac).xreplace(nominal), q)
+                if not num_fac.free_symbols - {q}:
+                    for r in num_fac.real_roots():
+                        pts.setdefault(r, None)
+                continue
+            uni = fac.subs({poly.names.index(v): c for v, c in zip(free, vals)})
+            if any(k for j, k in enumerate(uni.degrees()) if j != iq):
+                continue
+            coeffs = [c for c in _coefficients(uni, iq)]
+            num_fac = sympy.Poly.from_list(
+                [sympy.Rational(int(c.leading_coefficient().p), int(c.leading_coefficient().q))
+                 if not c.is_zero() else 0 for c in reversed(coeffs)], q)
+            for r in num_fac.real_roots():
+                pts.setdefault(r, None)
+    return sorted(pts.items(), key=lambda kv: float(kv[0]))
+
+
 def valid_range(root, poly, x, q, nominal):
     """Intervals of q, others at nominal, where ``root`` is real and positive, as
     [(low, high)] with each end (exact value, symbolic end or None); None ends unbounded."""
     nominal = {k: v for k, v in nominal.items() if k != q}
     crit = _critical(poly, x, q, nominal)
+    values = root if isinstance(root, RootValues) else RootValues(root)
+    root = values.root
     bounds = [(None, None)] + crit + [(None, None)]
     out = []
     for i in range(len(bounds) - 1):
@@ -161,7 +392,7 @@ def valid_range(root, poly, x, q, nominal):
             probe = lo[0] + 1 + abs(lo[0])
         else:
             probe = (lo[0] + hi[0]) / 2
-        v = _num(root.xreplace(nominal).xreplace({q: probe}))
+        v = values.at({**nominal, q: probe})
         if v is not None and abs(v.imag) <= 1e-20 * max(1.0, abs(v.real)) and v.real > 0:
             if out and out[-1][1] == lo and lo[0] is not None:
                 out[-1] = (out[-1][0], hi)
@@ -177,6 +408,14 @@ def _end_text(end, q, side):
     return to_text(sym) if sym is not None else f"{float(v):.6g}"
 
 
+SUBSTITUTED_CHARS = 20000   # the JSON contract's "unreasonably large" (forms.select.INLINE_LIMIT)
+
+
+def _substituted_size(expr, x, root) -> int:
+    """About how many characters ``expr`` with ``x`` replaced by ``root`` prints to."""
+    return len(str(expr)) + expr.count(x) * (len(str(root)) + 2 - len(str(x)))
+
+
 def solve_request(ctx, req) -> analysis.RequestResult:
     name, expr, fq = quantity_of(ctx, req)
     x = sympy.Symbol(key_of(req.solve_for))
@@ -187,15 +426,18 @@ def solve_request(ctx, req) -> analysis.RequestResult:
         raise SheetError(f"{name} at {req.port} does not depend on {req.solve_for}{why}",
                          loc.line, loc.col)
     q = measured_symbol(ctx, name)
-    try:                                    # cancelled in python-flint
-        num, den = edge.cancelled(expr)
-    except (sympy.PolynomialError, TypeError, ValueError):     # roots, irrational constants
-        num, den = sympy.fraction(sympy.cancel(sympy.together(expr)))
-    try:
-        poly = sympy.Poly(sympy.expand(num - q * den), x)
-    except sympy.PolynomialError:
+    try:                # num - q·den exactly in python-flint, from the closed form's tree
+        poly = ExactPoly(expr, x, q)
+    except ValueError:  # roots, irrational constants: the sympy route
         poly = None
-    if poly is None or any(not c.is_polynomial(x) or c.has(x) for c in poly.coeffs()):
+    if poly is not None:
+        num, den = poly.expr(poly.num), poly.expr(poly.den)
+        expanded = poly.grouped()
+    else:
+        num, den, poly = _sympy_poly(expr, x, q)
+        expanded = poly.as_expr() if poly is not None else None
+    if poly is None or (not isinstance(poly, ExactPoly) and
+                        any(not c.is_polynomial(x) or c.has(x) for c in poly.coeffs())):
         raise SheetError(f"{name} at {req.port} is not a rational function of "
                          f"{req.solve_for} (it depends on it through a root or another "
                          f"function), so it cannot be solved for {req.solve_for}",
@@ -208,7 +450,7 @@ def solve_request(ctx, req) -> analysis.RequestResult:
                          "root in closed form was found", req.loc.line, req.loc.col)
     nominal = dict(ctx.nominal)
     info = ctx.circuit.symbols[x.name]
-    q_nom = expr.xreplace(nominal)
+    q_nom = _value_at(poly, expr, nominal)
     # a measured value infinite (the circuit singular at nominal) or not real has no use as
     # a nominal measurement: the inversion stays symbolic and the record says why
     undefined = q_nom.is_number and not (q_nom.is_finite and q_nom.is_extended_real)
@@ -220,12 +462,14 @@ def solve_request(ctx, req) -> analysis.RequestResult:
              Step(f"Multiply out the denominator (assumed not zero): {q}·({to_text(den)}) = "
                   f"{to_text(num)}, a polynomial of degree {poly.degree()} in {x} that must "
                   "vanish.",       # checked against (closed form - q)·den
-                  [Equation(sympy.expand(num - q * den), poly.as_expr(),
+                  [Equation(sympy.expand(num - q * den) if not isinstance(poly, ExactPoly)
+                            else poly.expr(poly.poly), expanded,
                             check=(expr - q) * den)], kind="inversion")]
     listed, chosen = [], None
+    values = [RootValues(r) for r in roots]
     for i, r in enumerate(roots):
         how, ok, used = _sub_back(expr, x, r, q)
-        v = _num(r.xreplace(nominal)) if have_nominal else None
+        v = values[i].at(nominal) if have_nominal else None
         real_pos = v is not None and abs(v.imag) <= 1e-20 * max(1.0, abs(v.real)) and v.real > 0
         matches = info.nominal is not None and v is not None and \
             abs(v - float(info.nominal)) <= 1e-9 * abs(float(info.nominal))
@@ -236,25 +480,33 @@ def solve_request(ctx, req) -> analysis.RequestResult:
         if real_pos and (chosen is None or matches):
             chosen = i
         eq = Equation(x, r)
-        back = Equation(q, expr.xreplace({x: r}))
+        size = _substituted_size(expr, x, r)
+        if size <= SUBSTITUTED_CHARS:
+            back = Equation(q, expr.xreplace({x: r}))
+            named = ""
+        else:               # shown with x standing for the root of the equation before it
+            back = Equation(q, expr)
+            named = (f" ({x} stands for the root in the closed form: written out, the "
+                     f"substituted form has about {size} characters)")
         back.mark(how or "points", ok, used)
         eq.mark(how or "points", ok, used)    # the root is checked by substituting it back
         steps.append(Step(f"Root {i + 1} ({method}); substituting it back into the closed form "
-                          f"gives {q} identically.", [eq, back], [req.solve_for],
+                          f"gives {q} identically{named}.", [eq, back], [req.solve_for],
                           kind="inversion"))
     pick = chosen if chosen is not None else 0
     root = roots[pick]
     for i, d in enumerate(listed):
         d["chosen"] = i == pick
     conditions = []
-    rnum, rden = sympy.fraction(sympy.together(root))
-    for fac, _m in edge.factor_list(rden)[1]:
+    for fac in values[pick].den_factors():
         if fac.free_symbols:
             conditions.append(f"{to_text(fac)} != 0")
-    for fac, _m in edge.factor_list(den)[1]:
+    den_factors = poly.factor_exprs(poly.den) if isinstance(poly, ExactPoly) else \
+        [f for f, _m in edge.factor_list(den)[1]]
+    for fac in den_factors:
         if fac.free_symbols:
             conditions.append(f"{to_text(fac)} != 0 (the closed form of {name} is defined)")
-    rng = valid_range(root, poly, x, q, nominal) if have_nominal else []
+    rng = valid_range(values[pick], poly, x, q, nominal) if have_nominal else []
     rng_json = [{"low": _end_text(lo, q, "low"), "high": _end_text(hi, q, "high"),
                  "low_value": None if lo[0] is None else float(lo[0]),
                  "high_value": None if hi[0] is None else float(hi[0])} for lo, hi in rng]

@@ -46,6 +46,7 @@ import sympy
 
 from derive.solver import convert as edge
 from derive.analyses import frequency
+from derive.forms import cost
 from derive.forms import select as forms
 from derive.forms.results import Context, RequestResult
 from derive.circuit.build import S as LAPLACE_S
@@ -117,12 +118,14 @@ def tidy(e: sympy.Expr) -> sympy.Expr:
 MIN_TERM_CHARS = 4      # a printed term of a polynomial in circuit symbols: " + " and a name
 
 
-def _too_long(p, budget: int) -> bool:
+def _too_long(p, budget) -> bool:
     """Whether the printed expansion of ``p`` is certainly longer than ``budget``
     characters (every term costs at least MIN_TERM_CHARS). Factoring can shorten a
     polynomial, so only polynomials too large to be factored (over FACTOR_TERMS terms) are
-    judged this way."""
-    return len(p) > FACTOR_TERMS and len(p) * MIN_TERM_CHARS > budget
+    judged this way. ``budget`` may be a function giving it (asked only then)."""
+    if len(p) <= FACTOR_TERMS:
+        return False
+    return len(p) * MIN_TERM_CHARS > (budget() if callable(budget) else budget)
 
 
 FACTOR_TERMS = 3000     # edge.factored_expr factors polynomials up to this many terms
@@ -405,10 +408,18 @@ def derivative(form: Form, x: sympy.Symbol, taken: Optional[set] = None):
                 # by forward-mode differentiation in exact rationals instead
                 return Form([], fast[0]), None
         raw = sympy.diff(form.final, x)
-        fast = _rational_derivative(form.final, x, budget=len(str(raw)))
+        raw_len = functools.lru_cache(maxsize=1)(lambda: len(str(raw)))
+        fast = _rational_derivative(form.final, x, budget=raw_len)
         if fast is TOO_LONG:        # raw is the same rational function, shorter than expanded
             return Form([], raw), raw
-        best = raw if fast is None or len(str(raw)) < len(str(fast[0])) else fast[0]
+        if fast is None:
+            best = raw
+        else:
+            # raw is printed only where its lower bound (names and separators, one walk of
+            # the tree) does not already show it no shorter than the flint form
+            fast_len = len(str(fast[0]))
+            shorter = cost.printed_length_at_least(raw) < fast_len and raw_len() < fast_len
+            best = raw if shorter else fast[0]
         if fast is None and not raw.is_Atom:
             best = tidy(raw)
         return Form([], best), raw
@@ -492,15 +503,61 @@ def analysed(ctx: Context, req) -> list:
                              "tolerances of frequency-dependent results are not available yet "
                              "(a later feature); ask for a resistive result or make the "
                              "reactive parts numeric", req.loc.line, req.loc.col)
-        out.append(_analyse(ctx, q, form, nominal))
+        form, pre = _route(ctx, q, form)
+        out.append(_analyse(ctx, q, form, nominal, pre))
     ctx.cache[key] = out
     return out
 
 
-def _analyse(ctx, q, form: Form, nominal: dict) -> Analysed:
+def _parts(ctx) -> list:
+    return [sympy.Symbol(k) for k, v in ctx.circuit.symbols.items() if v.nominal is not None]
+
+
+def _route(ctx, q, form: Form):
+    """(form, derivatives already taken): the closed form or the quantity's sequence,
+    whichever gives the shorter derivatives, where both exist.
+
+    A short closed form is differentiated as one expression (sympy's derivative and the
+    flint quotient rule, factored: the shorter of the two is shown), a sequence in forward
+    mode. Where the quantity has a sequence too, its forward-mode derivatives (cheap: one
+    short entry per intermediate) are taken first and their printed length is compared
+    with a lower bound of that of the factored quotient-rule derivatives of the closed form
+    (flint, no sympy derivative, not printed: ``forms.cost.printed_length_at_least``); the
+    sequence is used where its derivatives are surely shorter in all.
+    Then sympy's derivative of a nested closed form (the costly step: it grows with every
+    level of nesting) is taken only where the closed form is kept."""
+    if form.defs or not q.sequence:
+        return form, None
+    r, fac = _rational_cached(form.final)
+    if r is None:
+        return form, None
+    seq = Form(list(q.sequence), q.in_sequence)
+    base = seq.base_symbols()
+    if base != form.base_symbols():
+        return form, None
+    taken = set(ctx.circuit.symbols)
+    done = _RATIONAL_MEMO.setdefault("derivatives", {})
+    pre, seq_len, closed_len = {}, 0, 0
+    nseq = len(seq.defs)
+    for x in _parts(ctx):
+        if x not in base:
+            continue
+        fast = done.get(x) if x in done else _rational_derivative_of(r, fac, x, lambda: 0)
+        if fast is None or fast is TOO_LONG:
+            return form, None       # no factored form to compare with: as before
+        done[x] = fast
+        closed_len += cost.printed_length_at_least(fast[0])     # no printing
+        d, raw = derivative(seq, x, taken)
+        taken |= {str(n) for n, _ in d.defs}
+        pre[x] = (d, raw)
+        seq_len += sum(len(str(n)) + len(str(e)) for n, e in d.defs[nseq:]) + len(str(d.final))
+    return (seq, pre) if seq_len < closed_len else (form, None)
+
+
+def _analyse(ctx, q, form: Form, nominal: dict, pre: Optional[dict] = None) -> Analysed:
     q0 = form.value(nominal)
     a = Analysed(q, form, q0)
-    syms = [sympy.Symbol(k) for k, v in ctx.circuit.symbols.items() if v.nominal is not None]
+    syms = _parts(ctx)
     base = form.base_symbols()
     taken = set(ctx.circuit.symbols)
     for x in syms:
@@ -508,7 +565,7 @@ def _analyse(ctx, q, form: Form, nominal: dict) -> Analysed:
             a.sens.append(Sens(x, Form([], sympy.Integer(0)), sympy.Integer(0),
                                sympy.Integer(0), sympy.Integer(0)))
             continue
-        d, raw = derivative(form, x, taken)
+        d, raw = pre[x] if pre else derivative(form, x, taken)
         taken |= {str(n) for n, _ in d.defs}
         if not form.defs:
             fast = _rational_derivative(form.final, x)

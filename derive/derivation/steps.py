@@ -556,6 +556,22 @@ def _reduced(n, d):
     return n, d
 
 
+def _sized(n, d):
+    if n.is_zero() and not d.is_one():
+        d = d.context().constant(1)         # 0/d in lowest terms
+    if len(n) > CANCEL_TERMS or len(d) > CANCEL_TERMS:
+        raise TooLarge
+    return n, d
+
+
+def _reduced_by(n, d, g):
+    """``n/d`` in lowest terms where every common factor of ``n`` and ``d`` divides ``g``."""
+    h = n.gcd(g)
+    if not h.is_one() and not h.is_zero():
+        n, d = n / h, d / h
+    return n, d
+
+
 def _rational_function(prog: "Program", k: int, ring=None):
     """Root ``k`` of ``prog`` as an exact rational function ``(num, den)`` of python-flint
     ``fmpq_mpoly`` in the program's input symbols, cancelled after every operation;
@@ -578,34 +594,46 @@ def _rational_function(prog: "Program", k: int, ring=None):
             vals[i] = (gens[where[op[1]]], one)
         elif kind == "const":
             vals[i] = (ctx.constant(op[1]), one)
+        # every value is kept in lowest terms; the gcds below are the only ones that can
+        # be nontrivial for operands in lowest terms (n/d + n2/d2 with g = gcd(d, d2) can
+        # share a factor with g only; (n n2)/(d d2) only gcd(n, d2) and gcd(n2, d); a
+        # power of a reduced fraction is reduced), so no gcd of the whole result is taken
         elif kind == "add":
             n, d = vals[op[1][0]]
             for j in op[1][1:]:
                 n2, d2 = vals[j]
                 if d2 == d:
-                    n = n + n2
+                    n, d = _reduced(n + n2, d)
                 elif d2.is_one():
                     n = n + n2 * d
                 elif d.is_one():
                     n, d = n * d2 + n2, d2
                 else:
                     g = d.gcd(d2)
-                    a, b = d / g, d2 / g
-                    n, d = n * b + n2 * a, a * d2
-            vals[i] = _reduced(n, d)
+                    if g.is_one():
+                        n, d = n * d2 + n2 * d, d * d2
+                    else:
+                        a, b = d / g, d2 / g
+                        n, d = _reduced_by(n * b + n2 * a, a * d2, g)
+            vals[i] = _sized(n, d)
         elif kind == "mul":
             n, d = vals[op[1][0]]
             for j in op[1][1:]:
                 n2, d2 = vals[j]
+                if d.is_one() and d2.is_one():
+                    n = n * n2
+                    continue
+                n, d2 = _reduced(n, d2)
+                n2, d = _reduced(n2, d)
                 n, d = n * n2, d * d2
-            vals[i] = _reduced(n, d)
+            vals[i] = _sized(n, d)
         else:
             (n, d), k2 = vals[op[1]], op[2]
             if k2 < 0:
                 if n.is_zero():
                     raise ZeroDivisionError("power of zero with a negative exponent")
                 n, d, k2 = d, n, -k2
-            vals[i] = _reduced(n ** k2, d ** k2)
+            vals[i] = _sized(n ** k2, d ** k2)
     n, d = vals[prog.out[k]]
     if d.is_zero():
         raise ZeroDivisionError("a denominator is identically zero")
@@ -713,6 +741,10 @@ class RatioCheck:
         its terms: terms - 1 additions), without building the sympy form."""
         if self._expr is not None:
             return count_ops_capped(self._expr, limit) >= limit
+        from derive.forms import cost
+        bound = cost.factor_terms_bound(self.ratio)     # from term counts, no factoring
+        if bound is not None and bound >= limit:
+            return True
         num, den, _ctx, _syms, subs = self._symbols_form()
         if subs:                        # placeholders substituted back: sympy decides
             return count_ops_capped(self.expr(), limit) >= limit

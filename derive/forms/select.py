@@ -14,7 +14,7 @@ import sympy
 
 from derive.solver import convert as edge
 from derive.errors import SheetError
-from derive.forms import power
+from derive.forms import cost, power
 from derive.forms.results import QuantityResult
 from derive.sheet import kinds, quantities
 from derive.solver.determinant import estimate_det_terms
@@ -32,8 +32,24 @@ def _solver(ctx, req) -> Solver:
 
 
 def expandable(ctx) -> bool:
+    """Whether the circuit's determinants are expanded (exact ratios of polynomials).
+
+    Up to ``LARGEST_EXPANDED`` estimated terms the expanded form may be shown, and it is
+    expanded (up to ``Options.expand_limit``). Beyond that the expanded form is never
+    written out; it serves only the value and the checks, which the other route does by
+    exact nodal solves at points, so it is expanded only where that is estimated to cost
+    less: its cost grows with the terms (cancellation, the vth = isc·rth check and every
+    step check evaluate polynomials of that many terms), the nodal solves' with the
+    unknowns. ``EXPAND_TERMS_PER_UNKNOWN`` is where the two costs meet (measured on the
+    all-symbolic ladders of ``benchmarks/bench_verify_ladders.py``, process cpu time, the
+    collector off: 4181 terms over 11 unknowns expanded 59 ms against 71 ms, 10946 over 12
+    expanded 67 ms against 58 ms), so a larger circuit never takes longer than the smaller
+    one because of the route."""
     if "expandable" not in ctx.cache:
-        ctx.cache["expandable"] = estimate_det_terms(system_of(ctx).A) <= ctx.options.expand_limit
+        A = system_of(ctx).A
+        est = estimate_det_terms(A)
+        ctx.cache["expandable"] = est <= ctx.options.expand_limit and (
+            est <= LARGEST_EXPANDED or est <= EXPAND_TERMS_PER_UNKNOWN * max(1, A.n))
     return ctx.cache["expandable"]
 
 
@@ -52,6 +68,8 @@ def long_reducible(ctx, req, name) -> bool:
         return False
     from derive.forms import series_parallel as reduce
     return reduce.port_form(ctx, req, name) is not None
+
+EXPAND_TERMS_PER_UNKNOWN = 600  # beyond LARGEST_EXPANDED: expanded while terms <= this * unknowns
 
 
 def gain_unit(ctx, source):
@@ -249,30 +267,25 @@ def compact(ctx, req, q, readable=None):
     from derive.forms import elimination as sequence
     sp = reduce.port_form(ctx, req, q.name) if req.quantity != "current" else None
     nested = None
+    inline_size = None
     if sp is not None:
         defs, final = sp
-        nested = sequence.inline(defs, final) if len(defs) <= INLINE_DEFS and \
-            _inline_size(defs, final) <= INLINE_LIMIT else None
+        # the printed length of the nested form, read off its named pieces (the length of
+        # the text with every name replaced by its expression: printing the nested sympy
+        # expression itself costs more than all the rest of a small ladder)
+        if len(defs) <= INLINE_DEFS:
+            inline_size = _inline_size(defs, final)
+            nested = sequence.inline(defs, final) if inline_size <= INLINE_LIMIT else None
     shorter = None
-    lengths: dict = {}
-
-    def nested_len():
-        """The printed length of the nested form, read off its named pieces (the length
-        of the text with every name replaced by its expression: printing the nested sympy
-        expression itself costs more than all the rest of a small ladder); computed once,
-        and only when compared."""
-        if "n" not in lengths:
-            lengths["n"] = _inline_size(defs, final)
-        return lengths["n"]
     if readable is not None:
-        if nested is not None and nested_len() < edge.printed_length_at_least(readable):
+        if nested is not None and inline_size < expanded_length_at_least(readable):
             shorter = True              # what the comparison below would find
         else:
             q.expr = edge.to_sympy(readable)
     if req.quantity != "current":
         if sp is not None:
             if nested is not None and (shorter or q.expr is None or
-                                       nested_len() < len(str(q.expr))):
+                                       inline_size < len(str(q.expr))):
                 q.expr, q.form = nested, "series-parallel"
             elif q.expr is None:
                 q.form = "series-parallel"
@@ -287,6 +300,15 @@ def compact(ctx, req, q, readable=None):
         q.value = value
         if _inline_size(seq, final) <= 2000:
             q.expr = sequence.inline(seq, final)
+
+
+def expanded_length_at_least(ratio) -> int:
+    """A lower bound of the printed length of the expanded (factored) form of ``ratio``:
+    read off its term counts where that applies (:func:`derive.forms.cost.printed_length_bound`,
+    no factoring or printing), else from its factors
+    (:func:`derive.solver.convert.printed_length_at_least`)."""
+    bound = cost.printed_length_bound(ratio)
+    return edge.printed_length_at_least(ratio) if bound is None else bound
 
 
 INLINE_LIMIT = 20000        # characters: the JSON contract's "unreasonably large"
