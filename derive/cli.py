@@ -122,6 +122,9 @@ def _parser() -> argparse.ArgumentParser:
         sp.add_argument("--distribution", choices=("uniform", "normal"), default="uniform",
                         help="parts spread uniformly within tolerance, or normally with the "
                              "tolerance as 3 sigma")
+        sp.add_argument("--profile", action="store_true",
+                        help="print where the time went, phase by phase (startup, parse, solve, "
+                             "forms, verification, frequency, export), on standard error")
 
     r = sub.add_parser("record", help="write the design-calculation record")
     common(r)
@@ -224,6 +227,8 @@ def _run(args, stdin_data: Optional[bytes] = None) -> int:
                 data = render(rec, fmt, args)
         else:
             data = render(rec, fmt, args)
+        if getattr(args, "profile", False):
+            sys.stderr.write(rec.clock.line() + "\n")
         if args.output:
             write_atomic(args.output, data)       # every format, the PDF too: written here only
         else:

@@ -6,7 +6,9 @@ and ``check`` the statement. :func:`run` is the whole run, in order: the circuit
 transformation (``replace`` statements: model substitution), then for every request its
 handler (which gives the quantities and the derivation steps) and the post-steps applied to
 every result (frequency analysis, substitution notes). A request kind that is not in the
-table is refused, with its location, by :func:`handler_of`.
+table is refused, with its location, by :func:`handler_of`. The time of each part is charged
+to a phase of the running clock (:mod:`derive.clock`): the handlers to ``forms`` (their
+determinants to ``solve``, their checks to ``verification``), the annotation to ``frequency``.
 """
 from __future__ import annotations
 
@@ -18,6 +20,7 @@ from derive.analyses import budget, choose, drift
 from derive.analyses import noise, operating_point, stress
 from derive.analyses import sensitivity, substitution, tolerance
 from derive.circuit.build import Circuit
+from derive.clock import phase
 from derive.errors import NotAvailableYet
 # the results types live in derive.forms.results; re-exported for callers of this module
 from derive.forms.results import Context, Options, QuantityResult, RequestResult
@@ -51,14 +54,17 @@ _SHOWN = {"operating_point": "find operating point", "stress": "find stress",
 def run(circuit: Circuit, options: Options | None = None) -> list:
     """Answer every request of ``circuit``: a list of :class:`RequestResult`, in order."""
     options = options or Options()
-    circuit = substitution.substitute(circuit, options)          # ``replace`` statements
+    with phase("forms"):
+        circuit = substitution.substitute(circuit, options)      # ``replace`` statements
     substituted = bool(getattr(circuit, "model_substitutions", None))
     ctx = Context(circuit, options)
     results = []
     for req in circuit.requests:
         answer = handler_of(req)
-        result = answer(ctx, req)                                # quantities and steps
-        frequency.annotate(ctx, req, result)                     # s-dependent results
+        with phase("forms"):
+            result = answer(ctx, req)                            # quantities and steps
+        with phase("frequency"):
+            frequency.annotate(ctx, req, result)                 # s-dependent results
         if substituted:
             substitution.annotate(ctx, req, result, answer)      # computed on a model
         results.append(result)
