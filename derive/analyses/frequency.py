@@ -311,12 +311,11 @@ def analyse_quantity(q, nominal) -> tuple:
     for key, roots in (("poles", f["poles"]), ("zeros", f["zeros"])):
         d[key] = list(roots) if roots is not None else None
     coeffs = _numeric(f, nominal)
-    if coeffs is not None and "_num_factors" in f:
-        nroots = _numeric_roots(f, nominal)
-        d["poles_value"], d["zeros_value"] = nroots
+    if f["denominator"] is None:                  # a product not multiplied out
+        d["poles_value"], d["zeros_value"] = _numeric_roots(f, nominal)
     else:
         for key, cs in (("poles", f["denominator"]), ("zeros", f["numerator"])):
-            nr = numeric_roots(cs, nominal) if cs is not None else None
+            nr = numeric_roots(cs, nominal)
             d[key + "_value"] = [_cplx(z) for z in nr] if nr is not None else None
     sens = {}
     for key in ("w0", "Q", "w_corner"):
@@ -439,13 +438,14 @@ def _numeric_roots(f, nominal):
     out = []
     for side, origin in (("_den_factors", max(-f["s_power"], 0)),
                          ("_num_factors", max(f["s_power"], 0))):
-        roots = [complex(0)] * origin
+        roots = []
         for fac in f[side]:
             nr = numeric_roots(fac["coefficients"], nominal)
             if nr is None:
                 roots = None
                 break
             roots += list(nr) * fac["power"]
+        roots = roots + [complex(0)] * origin if roots is not None else None
         out.append([_cplx(z) for z in roots] if roots is not None else None)
     return tuple(out)
 
@@ -492,7 +492,7 @@ def _independent(expr) -> dict:
 def _normal_expr(f):
     """The normalised H(s) for the step: the product of its normalised factors where there
     are several (unevaluated: printed as it is), else one ratio of coefficient lists."""
-    if f.get("factors") is None and f.get("numerator") is not None:
+    if f.get("numerator") is not None and f.get("sections") is None:
         n = sum(c * S**i for i, c in enumerate(f["numerator"]))
         dd = sum(c * S**i for i, c in enumerate(f["denominator"]))
         if n == 1:                                  # not "1·1/(...)"
@@ -505,7 +505,8 @@ def _normal_expr(f):
         for fac in facs:
             poly = sympy.Add(*[c * S**i for i, c in enumerate(fac["coefficients"])],
                              evaluate=False)
-            parts.append(sympy.Pow(poly, sign * fac["power"], evaluate=False))
+            k = sign * fac["power"]
+            parts.append(poly if k == 1 else sympy.Pow(poly, k, evaluate=False))
     if not parts:
         return sympy.Integer(1)
     return parts[0] if len(parts) == 1 else sympy.Mul(*parts, evaluate=False)
