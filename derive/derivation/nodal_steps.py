@@ -169,7 +169,10 @@ class Nodal:
         sysm = self.system
         for i in range(sysm.n):
             for j in range(sysm.n):
-                if sympy.cancel(self.A[i, j] - entry_expr(sysm, sysm.A.get(i, j))) != 0:
+                a, p = self.A[i, j], sysm.A.get(i, j)
+                if a == 0 and p.is_zero():           # both empty: nothing to compare
+                    continue
+                if sympy.cancel(a - entry_expr(sysm, p)) != 0:
                     return False
         rhs = sysm.rhs()
         for i in range(sysm.n):
