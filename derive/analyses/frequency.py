@@ -343,11 +343,11 @@ def analyse_quantity(q, nominal) -> tuple:
             # independent: Taylor coefficients of this factor by differentiation
             ind = _independent(1 / sum(c * S**n for n, c in enumerate(sec["coefficients"])))
             if sec["w0"] is not None:
-                eqs.append(Equation(sympy.Symbol(f"omega0_{j}"), sec["w0"], ind.get("w0")))
+                eqs.append(Equation(sympy.Symbol(f"omega_0,{j}"), sec["w0"], ind.get("w0")))
                 if sec["Q"] is not None:
                     eqs.append(Equation(sympy.Symbol(f"Q_{j}"), sec["Q"], ind.get("Q")))
             elif sec["w_corner"] is not None:
-                eqs.append(Equation(sympy.Symbol(f"omega_c_{j}"), sec["w_corner"],
+                eqs.append(Equation(sympy.Symbol(f"omega_c,{j}"), sec["w_corner"],
                                     ind.get("w_corner")))
     text = (f"{q.name} as a rational function of s, normalised so that the lowest-order "
             "term of the denominator is 1")
