@@ -32,8 +32,9 @@ class Record:
     clock: Clock = field(default_factory=Clock, repr=False, compare=False)
 
     def to_json(self) -> str:
-        from derive.export.formats import render
-        return render(self, "json")
+        with running(self.clock), self.clock.phase("export"):
+            from derive.export.formats import render
+            return render(self, "json")
 
     def to_dict(self) -> dict:
         from derive.export.json_record import record_dict
@@ -41,19 +42,21 @@ class Record:
 
     def to_markdown(self, template_dir: Optional[str] = None) -> str:
         """The Markdown record (figures are not drawn: their captions stay)."""
-        from derive.export.markdown import record_markdown
         with running(self.clock), self.clock.phase("export"):
+            from derive.export.markdown import record_markdown
             return record_markdown(self, template_dir)
 
     def to_latex(self) -> str:
         """The LaTeX source of the record."""
-        from derive.export.formats import render
-        return render(self, "tex")
+        with running(self.clock), self.clock.phase("export"):
+            from derive.export.formats import render
+            return render(self, "tex")
 
     def to_pdf(self) -> bytes:
         """The PDF record (needs TeX Live's ``latexmk`` or ``pdflatex``)."""
-        from derive.export.formats import render
-        return render(self, "pdf")
+        with running(self.clock), self.clock.phase("export"):
+            from derive.export.formats import render
+            return render(self, "pdf")
 
     def to_code(self, language: str = "c") -> str:
         """The requested closed forms and inverted formulas as C99 (``"c"``) or Python."""

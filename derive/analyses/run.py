@@ -53,16 +53,19 @@ _SHOWN = {"operating_point": "find operating point", "stress": "find stress",
 
 def run(circuit: Circuit, options: Options | None = None) -> list:
     """Answer every request of ``circuit``: a list of :class:`RequestResult`, in order."""
+    with phase("forms"):                      # the frequency annotation nests inside
+        return _run(circuit, options)
+
+
+def _run(circuit: Circuit, options: Options | None) -> list:
     options = options or Options()
-    with phase("forms"):
-        circuit = substitution.substitute(circuit, options)      # ``replace`` statements
+    circuit = substitution.substitute(circuit, options)          # ``replace`` statements
     substituted = bool(getattr(circuit, "model_substitutions", None))
     ctx = Context(circuit, options)
     results = []
     for req in circuit.requests:
         answer = handler_of(req)
-        with phase("forms"):
-            result = answer(ctx, req)                            # quantities and steps
+        result = answer(ctx, req)                                # quantities and steps
         with phase("frequency"):
             frequency.annotate(ctx, req, result)                 # s-dependent results
         if substituted:
