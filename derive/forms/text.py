@@ -43,7 +43,10 @@ _PRINTED_MAX = 200_000
 def printed(expr) -> str:
     """``str(expr)``, remembered: the form stage measures the named intermediates of a large
     network by their printed length and the exporters print the same expressions again."""
-    got = _PRINTED.get(expr)
+    try:
+        got = _PRINTED.get(expr)
+    except TypeError:                       # unhashable (a mutable matrix): not remembered
+        return str(expr)
     if got is None:
         got = str(expr)
         if len(_PRINTED) >= _PRINTED_MAX:
