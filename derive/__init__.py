@@ -13,9 +13,10 @@ The same functions back the command line (``derive record``, ``derive code``,
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Optional
 
+from derive.clock import Clock, running
 from derive.errors import DeriveError, NotAvailableYet, SheetError, TooLarge
 
 __version__ = "0.1.0"
@@ -23,14 +24,18 @@ __version__ = "0.1.0"
 
 @dataclass
 class Record:
-    """A derived sheet: the circuit and one result per request."""
+    """A derived sheet: the circuit and one result per request. ``clock``
+    (:class:`derive.clock.Clock`) holds where the time went, phase by phase: the derivation,
+    and every export of this record since."""
     circuit: object
     results: list
     digits: int = 4          # significant figures of computed values in every rendering
+    clock: Clock = field(default_factory=Clock, repr=False, compare=False)
 
     def to_json(self) -> str:
-        from derive.export.json_record import record_json
-        return record_json(self.circuit, self.results)
+        with running(self.clock), self.clock.phase("export"):
+            from derive.export.formats import render
+            return render(self, "json")
 
     def to_dict(self) -> dict:
         from derive.export.json_record import record_dict
@@ -38,8 +43,9 @@ class Record:
 
     def to_markdown(self, template_dir: Optional[str] = None) -> str:
         """The Markdown record (figures are not drawn: their captions stay)."""
-        from derive.export.markdown import record_markdown
-        return record_markdown(self, template_dir)
+        with running(self.clock), self.clock.phase("export"):
+            from derive.export.markdown import record_markdown
+            return record_markdown(self, template_dir)
 
     def to_text(self) -> str:
         """The plain-text summary that ``derive record`` prints on a terminal."""
@@ -48,13 +54,15 @@ class Record:
 
     def to_latex(self) -> str:
         """The LaTeX source of the record."""
-        from derive.export.formats import render
-        return render(self, "tex")
+        with running(self.clock), self.clock.phase("export"):
+            from derive.export.formats import render
+            return render(self, "tex")
 
     def to_pdf(self) -> bytes:
         """The PDF record (needs TeX Live's ``latexmk`` or ``pdflatex``)."""
-        from derive.export.formats import render
-        return render(self, "pdf")
+        with running(self.clock), self.clock.phase("export"):
+            from derive.export.formats import render
+            return render(self, "pdf")
 
     def to_code(self, language: str = "c") -> str:
         """The requested closed forms and inverted formulas as C99 (``"c"``) or Python."""
@@ -116,19 +124,23 @@ def derive_text(text: str, filename: str = "<sheet>", symbolic: Optional[list] =
     >>> q["rth"].expr, q["rth"].value
     (R1*R2/(R1 + R2), 800.0)
     """
-    from derive.analyses.run import Options, run
-    from derive.sheet.units import check_digits
-    check_digits(digits)
-    c = circuit_of(text, filename)
-    if select is not None:
-        import dataclasses
-        c = dataclasses.replace(c, requests=[r for r in c.requests if select(r)])
-    try:
-        results = run(c, Options(symbolic=symbolic, max_terms=max_terms, digits=digits,
-                                 **options))
-    except SheetError as e:
-        raise e.with_context(text, filename)
-    return Record(c, results, digits)
+    clock = Clock()
+    with running(clock):
+        with clock.phase("startup"):                  # the pipeline and its libraries
+            from derive.analyses.run import Options, run
+            from derive.sheet.units import check_digits
+        check_digits(digits)
+        with clock.phase("parse"):
+            c = circuit_of(text, filename)
+            if select is not None:
+                import dataclasses
+                c = dataclasses.replace(c, requests=[r for r in c.requests if select(r)])
+        try:
+            results = run(c, Options(symbolic=symbolic, max_terms=max_terms, digits=digits,
+                                     **options))
+        except SheetError as e:
+            raise e.with_context(text, filename)
+    return Record(c, results, digits, clock)
 
 
 def derive_file(path: str, **kw) -> Record:

@@ -134,6 +134,9 @@ def _parser() -> argparse.ArgumentParser:
         sp.add_argument("--digits", type=_digits, default=4, metavar="N",
                         help="significant figures of computed values (1 to 15, default 4); "
                              "entered values stay as entered")
+        sp.add_argument("--profile", action="store_true",
+                        help="print where the time went, phase by phase (startup, parse, solve, "
+                             "forms, verification, frequency, export), on standard error")
 
     r = sub.add_parser("record", help="write the design-calculation record")
     common(r)
@@ -218,6 +221,7 @@ def _format_of(args) -> str:
 def _run(args, stdin_data: Optional[bytes] = None) -> int:
     """The work of one command; outputs go through :mod:`derive.export.files`."""
     from derive import derive_text
+    from derive.clock import phase, running
     from derive.export.files import (OutputError, check_output, figures_captured,
                                      write_atomic, write_stdout)
     text, name = _read(args.sheet, stdin_data)
@@ -238,11 +242,15 @@ def _run(args, stdin_data: Optional[bytes] = None) -> int:
     if args.command == "record":
         fmt = _format_of(args)
         from derive.export.formats import render
-        if fmt == "md" and args.output:
-            with figures_captured():      # the figures are drawn beside the record
+        figures = any(r.extra.get("figures") for r in rec.results)
+        with running(rec.clock), phase("export"):
+            if fmt == "md" and args.output and figures:
+                with figures_captured():  # the figures are drawn beside the record
+                    data = render(rec, fmt, args)
+            else:
                 data = render(rec, fmt, args)
-        else:
-            data = render(rec, fmt, args)
+        if getattr(args, "profile", False):
+            sys.stderr.write(rec.clock.line() + "\n")
         if args.output:
             write_atomic(args.output, data)       # every format, the PDF too: written here only
         else:

@@ -10,7 +10,7 @@ import networkx as nx
 PKG = Path(__file__).resolve().parent.parent / "derive"
 
 # Stages in the order the data flows; a module may import its own stage and earlier ones.
-STAGES = ["errors", "sheet", "circuit", "solver", "forms", "derivation", "analyses", "export",
+STAGES = ["errors", "clock", "sheet", "circuit", "solver", "forms", "derivation", "analyses", "export",
           "pipeline", "api"]
 
 

@@ -39,38 +39,129 @@ def _low(cs):
     return next(i for i, c in enumerate(cs) if c != 0)
 
 
+#: the normalised numerator and denominator are also multiplied out into coefficient lists
+#: when the expansion has at most this many terms (or is of order 2 or less in s); a larger
+#: product (a cascade of sections) is given by its factors only
+EXPAND_LIMIT = 300
+
+
 def rational_form(expr) -> dict:
     """The normalised rational function of ``expr`` in ``s`` (sympy values; see module doc).
 
-    Cancelled, split into powers of ``s`` and normalised in python-flint; sympy only for the
-    results. Expressions that are not rational functions (roots) take sympy's route."""
+    Factored in python-flint (:func:`derive.solver.rational.factored`: each sum of ``expr``
+    factored on its own, a product of sections never expanded), each factor in ``s``
+    normalised to 1 at s = 0; sympy only for the results. Besides the coefficient lists
+    (``None`` for a product too large to multiply out, see :data:`EXPAND_LIMIT`), the
+    result holds ``factors``: ``{"k", "s_power", "numerator", "denominator"}`` with one
+    ``{"coefficients", "power", "order"}`` per factor in ``s``, and ``sections``: ω0 and Q
+    (order 2) or ωc (order 1) of each denominator factor when there are several. Poles and
+    zeros are given in closed form when every factor is of order 2 or less. Expressions
+    that are not rational functions (roots) take sympy's route."""
     try:
-        (h,) = rational.common([expr], extra=[S])
+        F = rational.factored(expr, extra=[S])
     except (rational.NotPolynomial, ZeroDivisionError):
         return _rational_form_sympy(expr)
-    nc, dc = h.coefficients(S)
-    m = next(i for i, c in enumerate(nc) if not c.is_zero()) if not h.is_zero() else 0
-    p = next(i for i, c in enumerate(dc) if not c.is_zero())
-    lead = dc[p]
-    nr = [rational.ratio(c, lead, h) for c in nc]
-    dr = [rational.ratio(c, lead, h) for c in dc]
-    ncn, dcn = [r.to_sympy() for r in nr], [r.to_sympy() for r in dr]
-    k = m - p
-    out = {"numerator": ncn, "denominator": dcn, "s_power": k, "k": ncn[m],
-           "dc_gain": ncn[m] if k == 0 else (sympy.Integer(0) if k > 0 else None),
+    i = F.symbols.index(S)
+    ctx = F.ctx
+    one = ctx.constant(1)
+    sgen = ctx.gens()[i]
+    kn, kd = ctx.constant(F.c), one               # K, built up as a ratio
+    s_power, num_f, den_f = 0, [], []
+    for p, e in F.factors:
+        deg = int(p.degrees()[i])
+        if deg == 0:
+            kn, kd = (kn * p ** e, kd) if e > 0 else (kn, kd * p ** (-e))
+        elif p == sgen:
+            s_power += e
+        else:
+            cs = rational.split(p, S, F)         # cs[0] != 0: p is irreducible and not s
+            kn, kd = (kn * cs[0] ** e, kd) if e > 0 else (kn, kd * cs[0] ** (-e))
+            red = [rational.Rational(c, cs[0], F.symbols, ctx) for c in cs]
+            (num_f if e > 0 else den_f).append({"p": p, "power": abs(e), "order": deg,
+                                                "red": red})
+    K = rational.Rational(kn, kd, F.symbols, ctx)
+    Ks = K.to_sympy()
+    for fac in num_f + den_f:
+        fac["coefficients"] = [r.to_sympy() for r in fac["red"]]
+    out = {"s_power": s_power, "k": Ks,
+           "dc_gain": Ks if s_power == 0 else (sympy.Integer(0) if s_power > 0 else None),
+           "numerator": None, "denominator": None,
            "poles": None, "zeros": None, "w0": None, "Q": None, "w_corner": None,
-           "_reduced": dr[p:]}
-    red = dr[p:]                   # reduced denominator 1 + a1 s + ...
-    if len(red) == 2:
-        out["w_corner"] = red[1].inverse().to_sympy()
-    elif len(red) == 3 and not red[2].is_zero():
-        a2 = red[2].to_sympy()
-        out["w0"] = 1 / sympy.sqrt(a2)
-        out["Q"] = sympy.sqrt(a2) / dcn[p + 1] if not red[1].is_zero() else None
-    if len(dc) - 1 <= 2:
-        out["poles"] = _roots_exact(dr)
-    if len(nc) - 1 <= 2:
-        out["zeros"] = _roots_exact(nr)
+           "_reduced": None, "_num_factors": num_f, "_den_factors": den_f,
+           "factors": None, "sections": None}
+    order_n = sum(f["order"] * f["power"] for f in num_f)
+    order_d = sum(f["order"] * f["power"] for f in den_f)
+    terms = max(_terms(num_f), _terms(den_f))
+    if terms <= EXPAND_LIMIT or (order_n <= 2 and order_d <= 2):
+        nr = [K * r for r in _product(num_f, F)]
+        dr = _product(den_f, F)                   # the reduced denominator 1 + a1 s + ...
+        out["_reduced"] = dr
+        zn, zd = max(s_power, 0), max(-s_power, 0)
+        zero = sympy.Integer(0)
+        out["numerator"] = [zero] * zn + [r.to_sympy() for r in nr]
+        out["denominator"] = [zero] * zd + [r.to_sympy() for r in dr]
+        if len(dr) == 2:
+            out["w_corner"] = dr[1].inverse().to_sympy()
+        elif len(dr) == 3 and not dr[2].is_zero():
+            a2 = dr[2].to_sympy()
+            out["w0"] = 1 / sympy.sqrt(a2)
+            out["Q"] = sympy.sqrt(a2) / out["denominator"][zd + 1] if not dr[1].is_zero() \
+                else None
+    if len(num_f) + len(den_f) > 1 or any(f["power"] > 1 for f in num_f + den_f):
+        out["factors"] = {"k": Ks, "s_power": s_power,
+                          "numerator": [_shown(f) for f in num_f],
+                          "denominator": [_shown(f) for f in den_f]}
+    if sum(f["power"] for f in den_f) > 1:
+        out["sections"] = [_section(f) for f in den_f]
+    out["poles"] = _factor_roots(den_f, max(-s_power, 0))
+    out["zeros"] = _factor_roots(num_f, max(s_power, 0))
+    return out
+
+
+def _terms(facs) -> int:
+    n = 1
+    for f in facs:
+        n *= len(f["p"]) ** f["power"]
+    return n
+
+
+def _product(facs, like) -> list:
+    """Ascending s-coefficients (:class:`~derive.solver.rational.Rational`) of the product
+    of the normalised factors ``facs`` (1 where there is none)."""
+    ctx = like.ctx
+    p = ctx.constant(1)
+    for f in facs:
+        p = p * f["p"] ** f["power"]
+    cs = rational.split(p, S, like)
+    return [rational.Rational(c, cs[0], like.symbols, ctx) for c in cs]
+
+
+def _shown(f) -> dict:
+    return {"coefficients": list(f["coefficients"]), "power": f["power"], "order": f["order"]}
+
+
+def _section(f) -> dict:
+    """ω0 and Q (order 2) or ωc (order 1) of one normalised denominator factor."""
+    red, cs = f["red"], f["coefficients"]
+    d = {"order": f["order"], "power": f["power"], "coefficients": list(cs),
+         "w0": None, "Q": None, "w_corner": None, "_red": red}
+    if f["order"] == 1:
+        d["w_corner"] = red[1].inverse().to_sympy()
+    elif f["order"] == 2:
+        d["w0"] = 1 / sympy.sqrt(cs[2])
+        d["Q"] = sympy.sqrt(cs[2]) / cs[1] if not red[1].is_zero() else None
+    d["poles"] = _roots_exact(red) if f["order"] <= 2 else None
+    return d
+
+
+def _factor_roots(facs, at_origin: int):
+    """Closed-form roots of a product of normalised factors (each repeated as often as its
+    power) and ``at_origin`` roots at 0; None where a factor is of order 3 or more."""
+    out = [sympy.Integer(0)] * at_origin
+    for f in facs:
+        if f["order"] > 2:
+            return None
+        out += _roots_exact(f["red"]) * f["power"]
     return out
 
 
@@ -110,7 +201,7 @@ def _rational_form_sympy(expr) -> dict:
            "dc_gain": (sympy.factor(nc[m] / lead) if k == 0 else (sympy.Integer(0) if k > 0
                                                                    else None)),
            "poles": None, "zeros": None, "w0": None, "Q": None, "w_corner": None,
-           "_reduced": None}
+           "_reduced": None, "factors": None, "sections": None}
     red = dcn[p:]                  # reduced denominator 1 + a1 s + ...
     if len(red) == 2:
         out["w_corner"] = sympy.factor(1 / red[1])
@@ -215,18 +306,17 @@ def analyse_quantity(q, nominal) -> tuple:
     prints; step; numeric (num, den) coefficient lists or None) for one quantity."""
     f = rational_form(q.expr)
     d = {"s_power": f["s_power"], "k": f["k"], "dc_gain": f["dc_gain"],
-         "numerator": list(f["numerator"]), "denominator": list(f["denominator"])}
-    for key in ("w0", "Q", "w_corner"):
-        d[key] = f[key]
-        d[key + "_value"] = _fnum(f[key], nominal)
-    d["f_corner"] = f["w_corner"] / (2 * sympy.pi) if f["w_corner"] is not None else None
-    d["f_corner_value"] = (d["w_corner_value"] / (2 * math.pi)
-                           if d["w_corner_value"] is not None else None)
-    d["f0_value"] = d["w0_value"] / (2 * math.pi) if d["w0_value"] is not None else None
-    for key, cs in (("poles", f["denominator"]), ("zeros", f["numerator"])):
-        d[key] = list(f[key]) if f[key] is not None else None
-        nr = numeric_roots(cs, nominal)
-        d[key + "_value"] = [_cplx(z) for z in nr] if nr is not None else None
+         "numerator": _list(f["numerator"]), "denominator": _list(f["denominator"])}
+    _characteristics(d, f, nominal)
+    for key, roots in (("poles", f["poles"]), ("zeros", f["zeros"])):
+        d[key] = list(roots) if roots is not None else None
+    coeffs = _numeric(f, nominal)
+    if f["denominator"] is None:                  # a product not multiplied out
+        d["poles_value"], d["zeros_value"] = _numeric_roots(f, nominal)
+    else:
+        for key, cs in (("poles", f["denominator"]), ("zeros", f["numerator"])):
+            nr = numeric_roots(cs, nominal)
+            d[key + "_value"] = [_cplx(z) for z in nr] if nr is not None else None
     sens = {}
     for key in ("w0", "Q", "w_corner"):
         if f[key] is not None:
@@ -236,6 +326,8 @@ def analyse_quantity(q, nominal) -> tuple:
                          for x, v in got.items()}
     if sens:
         d["sensitivity"] = sens
+    if f["factors"] is not None:
+        d["factors"] = f["factors"]
     eqs = [Equation(sympy.Symbol(q.name), _normal_expr(f), q.expr)]
     ind = _independent(q.expr) if f["w0"] is not None or f["w_corner"] is not None else {}
     if f["w0"] is not None:
@@ -244,16 +336,116 @@ def analyse_quantity(q, nominal) -> tuple:
                 if f["Q"] is not None else Equation(sympy.Symbol("Q"), sympy.oo)]
     if f["w_corner"] is not None:
         eqs.append(Equation(sympy.Symbol("omega_c"), f["w_corner"], ind.get("w_corner")))
-    step = Step(f"{q.name} as a rational function of s, normalised so that the lowest-order "
-                "term of the denominator is 1: " + _orders(f),
-                [e for e in eqs if e.rhs is not sympy.oo], kind="frequency")
-    num = [c.xreplace(nominal) for c in f["numerator"]]
-    den = [c.xreplace(nominal) for c in f["denominator"]]
-    coeffs = None
-    if all(c.is_number and c.is_finite and c.is_extended_real for c in num + den) \
-            and any(c != 0 for c in den):
-        coeffs = ([float(c) for c in num], [float(c) for c in den])
+    if f["sections"] is not None:
+        d["sections"] = []
+        for j, sec in enumerate(f["sections"], 1):
+            d["sections"].append(_section_out(sec, nominal))
+            # independent: Taylor coefficients of this factor by differentiation
+            ind = _independent(1 / sum(c * S**n for n, c in enumerate(sec["coefficients"])))
+            if sec["w0"] is not None:
+                eqs.append(Equation(sympy.Symbol(f"omega_0,{j}"), sec["w0"], ind.get("w0")))
+                if sec["Q"] is not None:
+                    eqs.append(Equation(sympy.Symbol(f"Q_{j}"), sec["Q"], ind.get("Q")))
+            elif sec["w_corner"] is not None:
+                eqs.append(Equation(sympy.Symbol(f"omega_c,{j}"), sec["w_corner"],
+                                    ind.get("w_corner")))
+    text = (f"{q.name} as a rational function of s, normalised so that the lowest-order "
+            "term of the denominator is 1")
+    if f["sections"] is not None:
+        text += (f": the denominator factors into {len(f['sections'])} sections (exact "
+                 "factorisation of the polynomials); ω0 and Q, or the corner ωc, of each "
+                 "section read from its factor")
+    elif f["numerator"] is not None and f["denominator"] is not None:
+        text += ": " + _orders(f)
+    step = Step(text, [e for e in eqs if e.rhs is not sympy.oo], kind="frequency")
     return d, step, coeffs
+
+
+def _list(cs):
+    return list(cs) if cs is not None else None
+
+
+def _characteristics(d, f, nominal):
+    """ω0, Q, ωc and their numbers at nominal values into ``d``."""
+    for key in ("w0", "Q", "w_corner"):
+        d[key] = f[key]
+        d[key + "_value"] = _fnum(f[key], nominal)
+    d["f_corner"] = f["w_corner"] / (2 * sympy.pi) if f["w_corner"] is not None else None
+    d["f_corner_value"] = (d["w_corner_value"] / (2 * math.pi)
+                           if d["w_corner_value"] is not None else None)
+    d["f0_value"] = d["w0_value"] / (2 * math.pi) if d["w0_value"] is not None else None
+
+
+def _section_out(sec, nominal) -> dict:
+    d = {"order": sec["order"], "power": sec["power"], "denominator": list(sec["coefficients"])}
+    _characteristics(d, sec, nominal)
+    d["poles"] = list(sec["poles"]) if sec["poles"] is not None else None
+    nr = numeric_roots(sec["coefficients"], nominal)
+    d["poles_value"] = [_cplx(z) for z in nr] * sec["power"] if nr is not None else None
+    sens = {}
+    for key in ("w0", "Q", "w_corner"):
+        if sec[key] is not None:
+            sens[key] = {x: {"normalized": v["expr"], "value": v["value"]} for x, v in
+                         reduced_sensitivities(key, sec["_red"], nominal).items()}
+    if sens:
+        d["sensitivity"] = sens
+    return d
+
+
+def _numeric_list(cs, nominal):
+    vals = [c.xreplace(nominal) for c in cs]
+    if not all(v.is_number and v.is_finite and v.is_extended_real for v in vals):
+        return None
+    return [float(v) for v in vals]
+
+
+def _numeric(f, nominal):
+    """(num, den) ascending float coefficients at nominal values (num/den = H, the lowest
+    denominator term 1), multiplied out numerically from the factors; None where a symbol
+    has no value."""
+    import numpy as np
+    if "_num_factors" not in f:                   # sympy's route: the coefficient lists
+        num, den = (_numeric_list(f[x], nominal) for x in ("numerator", "denominator"))
+        if num is None or den is None or not any(c != 0 for c in den):
+            return None
+        return num, den
+    k = _numeric_list([f["k"]], nominal)
+    if k is None:
+        return None
+    polys = {}
+    for side in ("_num_factors", "_den_factors"):
+        acc = np.array([1.0])
+        for fac in f[side]:
+            cs = _numeric_list(fac["coefficients"], nominal)
+            if cs is None:
+                return None
+            for _ in range(fac["power"]):
+                acc = np.convolve(acc, cs)
+        polys[side] = acc
+    sp = f["s_power"]
+    num = [0.0] * max(sp, 0) + [k[0] * c for c in polys["_num_factors"]]
+    den = [0.0] * max(-sp, 0) + list(polys["_den_factors"])
+    if not any(c != 0 for c in den):
+        return None
+    return [float(c) for c in num], [float(c) for c in den]
+
+
+def _numeric_roots(f, nominal):
+    """(poles, zeros) at nominal values as [re, im] pairs, factor by factor (each factor's
+    roots by numpy, repeated as often as its power)."""
+    out = []
+    for side, origin in (("_den_factors", max(-f["s_power"], 0)),
+                         ("_num_factors", max(f["s_power"], 0))):
+        roots = []
+        for fac in f[side]:
+            nr = numeric_roots(fac["coefficients"], nominal)
+            if nr is None:
+                roots = None
+                break
+            roots += list(nr) * fac["power"]
+        roots = roots + [complex(0)] * origin if roots is not None else None
+        out.append([_cplx(z) for z in roots] if roots is not None else None)
+    return tuple(out)
 
 
 RESPONSE_WORDS = {"f0": ("natural frequency", "f0"), "w0": ("natural frequency", "ω0"),
@@ -288,6 +480,18 @@ def _order_words(den) -> str:
     return words
 
 
+def _section_words(f) -> str:
+    """:func:`_order_words` of a denominator kept as a product of factors in s (too large to
+    multiply out): its order and its factors' orders, read off ``f["factors"]``."""
+    facs = [fac for fac in f["factors"]["denominator"] for _ in range(fac["power"])]
+    order = sum(fac["order"] for fac in facs) + max(-f["s_power"], 0)
+    words = f"of order {order} in s"
+    if len(facs) > 1:
+        parts = [f"order {fac['order']}" for fac in facs]
+        words += "; it factors into " + ", ".join(parts[:-1]) + " and " + parts[-1]
+    return words
+
+
 def response_quantity(q, word: str, loc):
     """The quantity ``f0``, ``w0`` or ``Q`` of result ``q`` (a ``QuantityResult`` in s) as a
     ``QuantityResult`` of its own, read from the second-order denominator of ``q``'s
@@ -312,7 +516,7 @@ def response_quantity(q, word: str, loc):
     f = rational_form(q.expr)
     den = f["denominator"]
     if f["w0"] is None:
-        words = _order_words(den)
+        words = _order_words(den) if den is not None else _section_words(f)
         hint = ("a first-order denominator has a corner frequency (a plain 'find' of the "
                 "result shows it); f0, w0 and Q belong to a second-order one"
                 if len(den) - 1 == 1 else
@@ -393,11 +597,26 @@ def _independent(expr) -> dict:
 
 
 def _normal_expr(f):
-    n = sum(c * S**i for i, c in enumerate(f["numerator"]))
-    dd = sum(c * S**i for i, c in enumerate(f["denominator"]))
-    if n == 1:                                  # not "1·1/(...)"
-        return sympy.Pow(dd, -1, evaluate=False)
-    return sympy.Mul(n, sympy.Pow(dd, -1), evaluate=False)
+    """The normalised H(s) for the step: the product of its normalised factors where there
+    are several (unevaluated: printed as it is), else one ratio of coefficient lists."""
+    if f.get("numerator") is not None and f.get("sections") is None:
+        n = sum(c * S**i for i, c in enumerate(f["numerator"]))
+        dd = sum(c * S**i for i, c in enumerate(f["denominator"]))
+        if n == 1:                                  # not "1·1/(...)"
+            return sympy.Pow(dd, -1, evaluate=False)
+        return sympy.Mul(n, sympy.Pow(dd, -1), evaluate=False)
+    parts = [] if f["k"] == 1 else [f["k"]]
+    if f["s_power"]:
+        parts.append(sympy.Pow(S, f["s_power"], evaluate=False))
+    for facs, sign in ((f["_num_factors"], 1), (f["_den_factors"], -1)):
+        for fac in facs:
+            poly = sympy.Add(*[c * S**i for i, c in enumerate(fac["coefficients"])],
+                             evaluate=False)
+            k = sign * fac["power"]
+            parts.append(poly if k == 1 else sympy.Pow(poly, k, evaluate=False))
+    if not parts:
+        return sympy.Integer(1)
+    return parts[0] if len(parts) == 1 else sympy.Mul(*parts, evaluate=False)
 
 
 def bode_data(num, den, points=400, f_range=None):

@@ -8,7 +8,9 @@ sheet estimated to need more than about 1 GB (:mod:`derive.forms.footprint`), th
 every request its
 handler (which gives the quantities and the derivation steps) and the post-steps applied to
 every result (frequency analysis, substitution notes). A request kind that is not in the
-table is refused, with its location, by :func:`handler_of`.
+table is refused, with its location, by :func:`handler_of`. The time of each part is charged
+to a phase of the running clock (:mod:`derive.clock`): the handlers to ``forms`` (their
+determinants to ``solve``, their checks to ``verification``), the annotation to ``frequency``.
 """
 from __future__ import annotations
 
@@ -20,6 +22,7 @@ from derive.analyses import budget, choose, drift
 from derive.analyses import noise, operating_point, stress
 from derive.analyses import sensitivity, substitution, tolerance
 from derive.circuit.build import Circuit
+from derive.clock import phase
 from derive.errors import NotAvailableYet
 from derive.forms import footprint
 # the results types live in derive.forms.results; re-exported for callers of this module
@@ -53,6 +56,11 @@ _SHOWN = {"operating_point": "find operating point", "stress": "find stress",
 
 def run(circuit: Circuit, options: Options | None = None) -> list:
     """Answer every request of ``circuit``: a list of :class:`RequestResult`, in order."""
+    with phase("forms"):                      # the frequency annotation nests inside
+        return _run(circuit, options)
+
+
+def _run(circuit: Circuit, options: Options | None) -> list:
     options = options or Options()
     circuit = substitution.substitute(circuit, options)          # ``replace`` statements
     substituted = bool(getattr(circuit, "model_substitutions", None))
@@ -62,7 +70,8 @@ def run(circuit: Circuit, options: Options | None = None) -> list:
     for req in circuit.requests:
         answer = handler_of(req)
         result = answer(ctx, req)                                # quantities and steps
-        frequency.annotate(ctx, req, result)                     # s-dependent results
+        with phase("frequency"):
+            frequency.annotate(ctx, req, result)                 # s-dependent results
         if substituted:
             substitution.annotate(ctx, req, result, answer)      # computed on a model
         results.append(result)

@@ -51,6 +51,8 @@ from typing import Optional
 import flint
 import sympy
 
+from derive.clock import timed
+
 METHODS = ("exact", "points", "system", "definition")
 EXACT_OPS = 400         # difference cancelled exactly up to this many operations
 POINTS = 3              # random rational points of an evaluation check
@@ -798,6 +800,7 @@ class RatioCheck:
         return flint.fmpq(num) / flint.fmpq(den)
 
 
+@timed("verification")
 def compare(a, b, defs: dict | None = None, points: int = POINTS,
             seed: int = 20261202) -> tuple:
     """(method, equal, points used) for the claim that ``a`` and ``b`` are the same function.

@@ -2,14 +2,23 @@
 ``derive check``). Each format lives in its own module."""
 from __future__ import annotations
 
+from derive.clock import phase, running
 from derive.errors import DeriveError
 
 
 def render(record, fmt: str, args=None):
-    """The record in format ``fmt`` ('md', 'json', 'tex', 'pdf') as str or bytes."""
+    """The record in format ``fmt`` ('md', 'json', 'tex', 'pdf') as str or bytes; the time
+    is charged to the ``export`` phase of the record's clock (:mod:`derive.clock`)."""
+    clock = getattr(record, "clock", None)
+    with running(clock), phase("export"):
+        return _render(record, fmt, args)
+
+
+def _render(record, fmt: str, args=None):
     template = getattr(args, "template", None) if args is not None else None
     if fmt == "json":
-        return record.to_json()
+        from derive.export.json_record import record_json
+        return record_json(record.circuit, record.results)
     if fmt == "text":
         from derive.export.terminal import record_text
         sheet = getattr(args, "sheet", None) if args is not None else None

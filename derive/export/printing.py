@@ -94,7 +94,27 @@ def _esc(t: str) -> str:
     return t.replace("_", r"\_")
 
 
+_LATEX: dict = {}            # expression -> its LaTeX (the same settings every time)
+_LATEX_MAX = 100_000
+
+
 def to_latex(expr) -> str:
+    """The LaTeX of a sympy expression, symbols by :func:`latex_name`; remembered (a record
+    prints a closed form in the summary, in its steps, and its terms again when it breaks
+    a long line)."""
+    try:
+        got = _LATEX.get(expr)
+    except TypeError:                       # a mutable matrix: not remembered
+        return _latex(expr)
+    if got is None:
+        got = _latex(expr)
+        if len(_LATEX) >= _LATEX_MAX:
+            _LATEX.clear()
+        _LATEX[expr] = got
+    return got
+
+
+def _latex(expr) -> str:
     names = {s: latex_name(s.name) for s in expr.free_symbols}
     return LatexPrinter({"symbol_names": names, "mul_symbol": None}).doprint(expr)
 

@@ -345,10 +345,10 @@ def _frequency_items(record, r, q):
     if f.get("f_corner_value") is not None:
         parts.append(r"f_c = \text{%s}" % _eng(f["f_corner_value"], "Hz", d))
         plain.append(f"fc = {_eng(f['f_corner_value'], 'Hz', d)}")
-    s = sympy.Symbol("s")
     try:
-        dc = sympy.cancel(q.expr).subs(s, 0)
-        dc = dc.xreplace(record.circuit.nominal_values()) if dc.is_finite is not False else None
+        # the exact value at s = 0 from the frequency analysis (None: a pole at the origin)
+        dc = f.get("dc_gain")
+        dc = dc.xreplace(record.circuit.nominal_values()) if dc is not None else None
         if dc is not None and dc.is_number and dc.is_finite:
             ratio = q.unit in ("V/V", "A/A")
             parts.append(r"\text{DC gain} = %s" % _plain(float(dc), d) if ratio else

@@ -10,17 +10,32 @@ Each entry uses only names defined before it, so the sequence evaluates in order
 from __future__ import annotations
 
 import random
+import weakref
 
+import flint
 import sympy
 
 from derive.sheet import quantities
 from derive.solver import convert as edge
 
 
+# the sympy value of each ring variable of a system (1/R for recips), built once per system
+_ENTRY_VALS: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
+
+
+def entry_vals(system) -> list:
+    """The sympy value of each ring variable of ``system`` (``1/R`` for a reciprocal), in
+    ring order; built once per system."""
+    vals = _ENTRY_VALS.get(system)
+    if vals is None or len(vals) != len(system.vars):
+        vals = [1 / v.expr if v.kind == "recip" else v.expr for v in system.vars]
+        _ENTRY_VALS[system] = vals
+    return vals
+
+
 def entry_expr(system, p):
     """A ring polynomial entry as a sympy expression in circuit symbols (1/R for recips)."""
-    vals = [1 / v.expr if v.kind == "recip" else v.expr for v in system.vars]
-    return edge.poly_expr(p, vals)
+    return edge.poly_expr(p, entry_vals(system))
 
 
 def _probe_point(syms):
@@ -51,18 +66,27 @@ def eliminate(entries: dict, n: int, reserved: set, prefix="q"):
 
     numval_sym: dict = {}
 
-    def name(expr):
+    def name(expr, value=None):
         if expr.is_Atom or (expr.is_Mul and len(expr.args) == 2 and expr.args[0].is_Number
-                             and expr.args[1].is_Atom) or len(str(expr)) <= 12:
+                             and expr.args[1].is_Atom) or _prints_within(expr, 12):
             return expr
         names[0] += 1
         while f"{prefix}{names[0]}" in taken:
             names[0] += 1
         s = sympy.Symbol(f"{prefix}{names[0]}")
         seq.append((s, expr))
-        value = expr.xreplace(numval_sym).xreplace(point)
+        if value is None:
+            value = expr.xreplace(numval_sym).xreplace(point)
         numval_sym[s] = sympy.nsimplify(value) if value.is_number and not value.is_Rational else value
         return s
+
+    probe: dict = {}          # entry -> (its value at the probe point, its printed length)
+
+    def probed(v):
+        got = probe.get(v)
+        if got is None:
+            got = probe[v] = (v.xreplace(numval_sym).xreplace(point), len(str(v)))
+        return got
 
     remaining = set(range(n))
     rem_cols = set(range(n))
@@ -73,11 +97,11 @@ def eliminate(entries: dict, n: int, reserved: set, prefix="q"):
             for c, v in row.items():
                 if c not in rem_cols:
                     continue
-                val = v.xreplace(numval_sym).xreplace(point)
+                val, size = probed(v)
                 if val == 0:
                     continue
                 cost = (len(row) - 1) * (len(cols.get(c, ())) - 1)
-                key = (cost, len(str(v)))
+                key = (cost, size)
                 if best is None or key < best[0]:
                     best = (key, r, c)
         if best is None:
@@ -95,7 +119,11 @@ def eliminate(entries: dict, n: int, reserved: set, prefix="q"):
                     rows[i].pop(j, None)
                     cols.get(j, set()).discard(i)
                 else:
-                    rows[i][j] = name(new)
+                    # the new entry's probe value from its operands' (exact rationals)
+                    vo, vf, vx, vp = (probed(e)[0] for e in (old, f, x, p))
+                    value = vo - vf * vx / vp if all(
+                        e.is_Rational for e in (vo, vf, vx, vp)) else None
+                    rows[i][j] = name(new, value)
                     cols.setdefault(j, set()).add(i)
         for j in list(rows[r]):
             cols.get(j, set()).discard(r)
@@ -185,6 +213,18 @@ def exact_value(seq, final, point: dict):
             env[s] = e.xreplace(env)
         return final.xreplace(env)
 
+    def run_rational(env):
+        """:func:`run` at a point where every symbol has a rational value, in flint."""
+        env = {x: flint.fmpq(int(v.p), int(v.q)) for x, v in env.items()}
+        memo: dict = {}
+        try:
+            for s, e in used:
+                env[s] = _fmpq_value(e, env, memo)
+            v = _fmpq_value(final, env, memo)
+        except (ZeroDivisionError, _NotRational):
+            return None
+        return sympy.Rational(int(v.p), int(v.q))
+
     if missing:
         rnd = random.Random(11)
         probes = []
@@ -192,7 +232,8 @@ def exact_value(seq, final, point: dict):
             env = dict(point)
             env.update({x: sympy.Rational(rnd.randint(10 ** 5, 10 ** 6), rnd.randint(1, 997))
                         for x in missing})
-            probes.append(run(env))
+            fast = run_rational(env) if all(v.is_Rational for v in env.values()) else None
+            probes.append(fast if fast is not None else run(env))
         if all(p.is_Rational for p in probes) and probes[0] != probes[1]:
             return None          # proven: the result depends on a missing symbol
     v = run(dict(point))
@@ -205,6 +246,48 @@ def exact_value(seq, final, point: dict):
     if not v.is_number or _bad(v):
         return None
     return v
+
+
+class _NotRational(Exception):
+    pass
+
+
+def _fmpq_value(e, env: dict, memo: dict):
+    """The exact value (``flint.fmpq``) of the rational expression ``e`` with every symbol
+    given in ``env``; :class:`_NotRational` for anything else (a root, a float)."""
+    got = memo.get(e)
+    if got is not None:
+        return got
+    if e.is_Symbol:
+        if e not in env:
+            raise _NotRational(str(e))
+        return env[e]
+    if e.is_Rational:
+        v = flint.fmpq(int(e.p), int(e.q))
+    elif e.is_Add:
+        v = flint.fmpq(0)
+        for a in e.args:
+            v += _fmpq_value(a, env, memo)
+    elif e.is_Mul:
+        v = flint.fmpq(1)
+        for a in e.args:
+            v *= _fmpq_value(a, env, memo)
+    elif e.is_Pow and e.exp.is_Integer:
+        b, k = _fmpq_value(e.base, env, memo), int(e.exp)
+        v = b ** k if k >= 0 else 1 / b ** (-k)
+    else:
+        raise _NotRational(type(e).__name__)
+    memo[e] = v
+    return v
+
+
+def _prints_within(e, limit: int) -> bool:
+    """``len(str(e)) <= limit``, printing ``e`` only when a lower bound of its printed length
+    (its symbols' names, each printed at least once, one character between two) allows it."""
+    syms = e.free_symbols
+    if sum(len(x.name) for x in syms) + len(syms) - 1 > limit:
+        return False
+    return len(str(e)) <= limit
 
 
 def _bad(v) -> bool:

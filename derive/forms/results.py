@@ -9,6 +9,7 @@ from typing import Optional
 import sympy
 
 from derive.circuit.build import Circuit, key_of
+from derive.clock import phase
 from derive.sheet.units import format_value
 from derive.solver.cramer import Solver
 from derive.solver.stamping import System
@@ -119,7 +120,8 @@ class Context:
     def system(self) -> System:
         """The circuit's stamped system (numeric symbols substituted), made once."""
         if "system" not in self.cache:
-            self.cache["system"] = System(self.circuit, self.numeric_subs())
+            with phase("solve"):                   # stamping is the solver's work
+                self.cache["system"] = System(self.circuit, self.numeric_subs())
         return self.cache["system"]
 
     def solver(self, where=None) -> Solver:

@@ -16,6 +16,7 @@ from derive.solver import convert as edge
 from derive.errors import SheetError
 from derive.forms import cost, power
 from derive.forms.results import QuantityResult
+from derive.forms.text import printed
 from derive.sheet import kinds, quantities
 from derive.solver.determinant import estimate_det_terms
 from derive.solver.stamping import System
@@ -321,11 +322,11 @@ def _inline_size(defs, final) -> int:
     """Length of the expression with every name substituted back (without building it)."""
     size = {}
     for s, e in defs:
-        text = str(e)                       # printed once per expression
+        text = printed(e)                   # printed once per expression (kept for export)
         size[s] = len(text) + sum((size[x] - len(str(x))) * text.count(str(x))
                                   for x in e.free_symbols if x in size)
         if size[s] > 10 * INLINE_LIMIT:
             size[s] = 10 * INLINE_LIMIT
-    text = str(final)
+    text = printed(final)
     return len(text) + sum((size[x] - len(str(x))) * text.count(str(x))
                            for x in final.free_symbols if x in size)

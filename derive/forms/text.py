@@ -14,6 +14,7 @@ expression; the exporters reuse it (LaTeX stays in :mod:`derive.export.printing`
 """
 from __future__ import annotations
 
+import sympy
 from sympy.printing.str import StrPrinter
 
 
@@ -31,6 +32,31 @@ class TextPrinter(StrPrinter):
     _print_NegativeInfinity = _print_Infinity
 
 
+# the values TextPrinter prints differently from sympy's string printer
+_SPECIAL = (sympy.I, sympy.oo, -sympy.oo, sympy.zoo)
+
+
+_PRINTED: dict = {}          # expression -> str(expression), see printed()
+_PRINTED_MAX = 200_000
+
+
+def printed(expr) -> str:
+    """``str(expr)``, remembered: the form stage measures the named intermediates of a large
+    network by their printed length and the exporters print the same expressions again."""
+    try:
+        got = _PRINTED.get(expr)
+    except TypeError:                       # unhashable (a mutable matrix): not remembered
+        return str(expr)
+    if got is None:
+        got = str(expr)
+        if len(_PRINTED) >= _PRINTED_MAX:
+            _PRINTED.clear()
+        _PRINTED[expr] = got
+    return got
+
+
 def to_text(expr) -> str:
     """The record's ``expr`` string of a sympy expression."""
+    if isinstance(expr, sympy.Basic) and not expr.has(*_SPECIAL):
+        return printed(expr)        # no special value: sympy's own string printer's text
     return TextPrinter().doprint(expr)

@@ -19,6 +19,7 @@ from __future__ import annotations
 import copy
 from dataclasses import dataclass
 
+from derive.clock import phase
 from derive.errors import SheetError, TooLarge
 from derive.solver import determinant
 from derive.solver.determinant import estimate_det_terms
@@ -91,7 +92,8 @@ class Solver:
                 f"the expanded result would have about {est:.3g} terms (limit "
                 f"{self.max_terms:.3g}): keep fewer symbols symbolic ('numeric R1, R2' in the "
                 "sheet or --symbolic on the command line) or raise --max-terms", line, col)
-        d = determinant.det(m)
+        with phase("solve"):
+            d = determinant.det(m)
         if key is not None:
             self._dets[key] = d
         return d
