@@ -19,6 +19,7 @@ import sympy
 from sympy.printing.latex import LatexPrinter
 
 from derive.sheet.quantities import QUANTITIES
+from derive.forms.text import print_order
 from derive.forms.text import to_text      # the plain-text form, re-exported for exporters
 
 
@@ -116,7 +117,8 @@ def to_latex(expr) -> str:
 
 def _latex(expr) -> str:
     names = {s: latex_name(s.name) for s in expr.free_symbols}
-    return LatexPrinter({"symbol_names": names, "mul_symbol": None}).doprint(expr)
+    return LatexPrinter({"symbol_names": names, "mul_symbol": None, **print_order(expr)}
+                        ).doprint(expr)
 
 
 _ZERO_WIDTH = re.compile(r"\\(?:mathrm|mathit|mathcal|left|right|frac|displaystyle)\b|[{}^_&]")
