@@ -408,7 +408,7 @@ def _end_text(end, q, side):
     return to_text(sym) if sym is not None else f"{float(v):.6g}"
 
 
-SUBSTITUTED_CHARS = 20000   # the JSON contract's "unreasonably large" (forms.select.INLINE_LIMIT)
+SUBSTITUTED_CHARS = 20000   # the JSON contract's "unreasonably large" (SHEET.md §4)
 
 
 def _substituted_size(expr, x, root) -> int:

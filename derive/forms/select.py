@@ -312,7 +312,8 @@ def expanded_length_at_least(ratio) -> int:
     return edge.printed_length_at_least(ratio) if bound is None else bound
 
 
-INLINE_LIMIT = 20000        # characters: the JSON contract's "unreasonably large"
+INLINE_LIMIT = 8000         # characters: a longer nested form is given as its sequence (its
+                            # printing costs more than the sequence and no reviewer reads it)
 INLINE_DEFS = 400           # longer sequences stay sequences (inlining a chain is O(N^2))
 READABLE_TERMS = 400        # expanded forms up to this many terms are shown as such
 LARGEST_EXPANDED = 3000     # beyond this the expanded form is never written out

@@ -90,10 +90,15 @@ def to_symbols(ratio):
 def poly_expr(p, symbols) -> sympy.Expr:
     """A polynomial as a sympy sum (rational coefficients kept exact)."""
     terms = []
+    one = flint.fmpq(1)
     for exps, c in p.to_dict().items():
-        f = [sympy.Rational(int(c.p), int(c.q))]
-        f += [s ** e for s, e in zip(symbols, exps) if e]
-        terms.append(sympy.Mul(*f))
+        # a symbol to the first power as itself and a unit coefficient left out: the same
+        # expression with a third of the sympy calls (most terms of a circuit polynomial
+        # are products of distinct symbols with coefficient 1)
+        f = [s if e == 1 else sympy.Pow(s, e) for s, e in zip(symbols, exps) if e]
+        if c != one or not f:
+            f.insert(0, sympy.Rational(int(c.p), int(c.q)))
+        terms.append(f[0] if len(f) == 1 else sympy.Mul(*f))
     return sympy.Add(*terms)
 
 
