@@ -145,7 +145,7 @@ def _nodal_ladder(n, values, out="vth"):
     return vth, rth
 
 
-@pytest.mark.parametrize("n", [2, 3, 5, 6, 8, 11])
+@pytest.mark.parametrize("n", [2, 3, 5, 6, 8, 9, 11])
 def test_chosen_ladder_forms_equal_the_exact_answer_and_a_nodal_solve(n):
     rec = derive.derive_text(ladder(n), "t.eqv")
     q = rec.results[0].quantities
@@ -180,3 +180,17 @@ def test_the_nested_form_is_chosen_exactly_where_it_prints_shorter(n):
         nested = len(str(inline(defs, final)))
         expanded = len(str(convert.to_sympy(r)))
         assert (q[name].form == "series-parallel") == (nested < expanded)
+
+
+def test_a_nested_form_past_the_inline_limit_is_given_as_its_sequence():
+    # ladder 8's nested form prints in about 5 800 characters and is kept; ladder 9's in
+    # about 11 700 (over select.INLINE_LIMIT): it is given as its sequence of named
+    # intermediates, which the test above checks against a numpy nodal solve (n = 9)
+    q8 = derive.derive_text(ladder(8), "t.eqv").results[0].quantities
+    q9 = derive.derive_text(ladder(9), "t.eqv").results[0].quantities
+    for name in ("vth", "rth"):
+        assert q8[name].form == "series-parallel" and q8[name].expr is not None
+        assert len(str(q8[name].expr)) <= select.INLINE_LIMIT
+        assert q9[name].form == "series-parallel" and q9[name].expr is None
+        assert len(q9[name].sequence) > 1
+        assert len(str(inline(q9[name].sequence, q9[name].in_sequence))) > select.INLINE_LIMIT
