@@ -12,11 +12,11 @@ from __future__ import annotations
 import random
 import weakref
 
-import flint
 import sympy
 
 from derive.sheet import quantities
 from derive.solver import convert as edge
+from derive.solver import exact_eval
 
 
 # the sympy value of each ring variable of a system (1/R for recips), built once per system
@@ -148,6 +148,9 @@ def bordered_entries(system, col: dict, row: dict):
     return ent
 
 
+_FINAL = sympy.Dummy("final")   # the quantity's own name in an exact evaluation
+
+
 def quantity_sequence(ctx, req, name):
     """(sequence, final expression, value at nominal) for a port/branch quantity."""
     system = ctx.system()
@@ -215,14 +218,13 @@ def exact_value(seq, final, point: dict):
 
     def run_rational(env):
         """:func:`run` at a point where every symbol has a rational value, in flint."""
-        env = {x: flint.fmpq(int(v.p), int(v.q)) for x, v in env.items()}
-        memo: dict = {}
         try:
-            for s, e in used:
-                env[s] = _fmpq_value(e, env, memo)
-            v = _fmpq_value(final, env, memo)
-        except (ZeroDivisionError, _NotRational):
+            got = exact_eval.values_in_order([*used, (_FINAL, final)], env)
+        except ZeroDivisionError:
             return None
+        if got is None:
+            return None
+        v = got[_FINAL]
         return sympy.Rational(int(v.p), int(v.q))
 
     if missing:
@@ -245,39 +247,6 @@ def exact_value(seq, final, point: dict):
             return None
     if not v.is_number or _bad(v):
         return None
-    return v
-
-
-class _NotRational(Exception):
-    pass
-
-
-def _fmpq_value(e, env: dict, memo: dict):
-    """The exact value (``flint.fmpq``) of the rational expression ``e`` with every symbol
-    given in ``env``; :class:`_NotRational` for anything else (a root, a float)."""
-    got = memo.get(e)
-    if got is not None:
-        return got
-    if e.is_Symbol:
-        if e not in env:
-            raise _NotRational(str(e))
-        return env[e]
-    if e.is_Rational:
-        v = flint.fmpq(int(e.p), int(e.q))
-    elif e.is_Add:
-        v = flint.fmpq(0)
-        for a in e.args:
-            v += _fmpq_value(a, env, memo)
-    elif e.is_Mul:
-        v = flint.fmpq(1)
-        for a in e.args:
-            v *= _fmpq_value(a, env, memo)
-    elif e.is_Pow and e.exp.is_Integer:
-        b, k = _fmpq_value(e.base, env, memo), int(e.exp)
-        v = b ** k if k >= 0 else 1 / b ** (-k)
-    else:
-        raise _NotRational(type(e).__name__)
-    memo[e] = v
     return v
 
 

@@ -631,10 +631,14 @@ class _Builder:
 
     def _claim_within(self, req: Request, node: Tree) -> None:
         """``check Q equals EXPR within E% [from F1 to F2]``: the bound and band."""
-        word, number = node.children[0], node.children[1]
+        self._bound(req, node, node.children[0], node.children[1],
+                    "check gain from Vin to out equals -R2/R1 within 1%")
+
+    def _bound(self, req: Request, node: Tree, word, number, example: str) -> None:
+        """The error bound ``within E%`` (0 < E < 100 %) and the optional band of ``node``
+        into ``req`` (shared by ``approximately within`` and ``check … within``)."""
         has_percent = any(isinstance(c, Token) and c.type == "PERCENT" for c in node.children)
-        within = self._percent(number, has_percent, "the error bound",
-                               "check gain from Vin to out equals -R2/R1 within 1%")
+        within = self._percent(number, has_percent, "the error bound", example)
         if not 0 < within < 1:
             raise _err("the error bound is more than 0% and less than 100%", number)
         req.within = within
@@ -686,16 +690,7 @@ class _Builder:
             raise _err(f"'approximately' goes with a plain 'find' of a quantity, not with "
                        f"'find {req.analysis} of'", word,
                        hint="for example: find gain from Vin to out approximately within 1%")
-        has_percent = any(isinstance(c, Token) and c.type == "PERCENT" for c in node.children)
-        within = self._percent(number, has_percent, "the error bound", "approximately within 1%")
-        if not 0 < within < 1:
-            raise _err("the error bound is more than 0% and less than 100%", number)
-        req.within = within
-        req.name_locs["within"] = _loc(word)
-        band = [c for c in node.children if isinstance(c, Tree)]
-        if band:
-            req.band = self._band(band[0])
-            req.name_locs["band"] = _loc(band[0])
+        self._bound(req, node, word, number, "approximately within 1%")
 
     def _choose(self, stmt: Tree, text: str, rest) -> Request:
         req = Request("choose", "", text, _loc(stmt))

@@ -83,12 +83,19 @@ def _val(x, pt, memo):
 
 def values_in_order(defs, point: dict):
     """``point`` extended by named intermediates ``defs`` ((Symbol, expr) pairs or a dict,
-    each using only the names before it), evaluated exactly; None if one is not rational."""
+    each using only the names before it), evaluated exactly; None if one is not rational.
+    Raises ZeroDivisionError where a denominator vanishes.
+
+    >>> x, y = sympy.symbols("x y")
+    >>> values_in_order([(y, 1/(x + 1))], {x: 1})[y]
+    1/2
+    """
     env = {k: fmpq_of(v) for k, v in point.items()}
     items = defs.items() if isinstance(defs, dict) else defs
-    for k, e in items:
-        v = value(e, env)
-        if v is None:
-            return None
-        env[k] = v
+    memo: dict = {}                 # shared: the intermediates repeat subtrees
+    try:
+        for k, e in items:
+            env[k] = _val(e, env, memo)
+    except _NotRational:
+        return None
     return env
