@@ -194,3 +194,21 @@ def test_a_nested_form_past_the_inline_limit_is_given_as_its_sequence():
         assert q9[name].form == "series-parallel" and q9[name].expr is None
         assert len(q9[name].sequence) > 1
         assert len(str(inline(q9[name].sequence, q9[name].in_sequence))) > select.INLINE_LIMIT
+
+
+def test_a_closed_form_of_pages_is_named_in_the_record_and_whole_in_the_json():
+    import json
+    from derive.export import view
+    rec = derive.derive_text(ladder(8), "t.eqv")
+    md = rec.to_markdown()
+    data = json.loads(rec.to_json())
+    for name, tex in (("vth", r"v_{\mathrm{th}}"), ("rth", r"R_{\mathrm{th}}")):
+        expr = data["results"][0]["quantities"][name]["expr"]
+        assert len(expr) > view.RECORD_FORM_CHARS            # whole in the JSON
+        assert (tex + r" = \text{(the closed form, %d characters: in full in the JSON "
+                "record)}" % len(expr)) in md
+        assert expr not in md                                # not typeset in the record
+    assert md.count("as named intermediates below") == 2
+    # a short closed form is still typeset in full, in the steps and the closed forms
+    short = derive.derive_text(ladder(3), "t.eqv")
+    assert "characters: in full in the JSON" not in short.to_markdown()

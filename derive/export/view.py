@@ -184,6 +184,11 @@ def matrix_lines(lhs, rhs) -> list:
 def equation_view(eq) -> dict:
     if isinstance(eq.lhs, sympy.MatMul) or isinstance(eq.rhs, sympy.MatrixBase):
         lines = matrix_lines(eq.lhs, eq.rhs)
+    elif _long_form(eq.rhs):
+        # a closed form of pages: named, not typeset (the closed-form section of the
+        # record, or its JSON, has it whole; the check is the same)
+        lines = [to_latex(eq.lhs) + r" = \text{(the closed form, %d characters: in full in "
+                 r"the JSON record)}" % len(to_text(eq.rhs))]
     else:
         lines = equation_lines(eq.lhs, eq.rhs)
     return {"lines": lines, "verified": bool(eq.verified),
@@ -240,7 +245,7 @@ def verification_sentence(steps) -> str:
 def quantity_view(q, digits=DEFAULT_DIGITS) -> dict:
     d = {"name": q.name, "latex_name": to_latex(sympy.Symbol(q.name)),
          "value": _value_text(q.value, q.unit, digits), "unit": q.unit}
-    if q.expr is not None:
+    if q.expr is not None and not _as_sequence(q):
         d["lines"] = equation_lines(sympy.Symbol(q.name), q.expr)
         d["latex"] = to_latex(q.expr)
         d["long"] = visual_len(d["latex"]) > SHORT_FORM     # not whole in the summary
@@ -248,8 +253,27 @@ def quantity_view(q, digits=DEFAULT_DIGITS) -> dict:
         d["long"] = False
         d["lines"] = []
         d["latex"] = None
-    d["sequence"] = [equation_lines(s, e) for s, e in q.sequence] if q.expr is None else []
+    d["sequence"] = [equation_lines(s, e) for s, e in q.sequence] \
+        if q.expr is None or _as_sequence(q) else []
     return d
+
+
+RECORD_FORM_CHARS = 4000  # a longer closed form with a sequence is shown as the sequence
+
+
+def _long_form(e) -> bool:
+    """Whether ``e`` prints in more than ``RECORD_FORM_CHARS`` characters."""
+    return isinstance(e, sympy.Basic) and not isinstance(e, sympy.MatrixBase) and \
+        len(to_text(e)) > RECORD_FORM_CHARS
+
+
+def _as_sequence(q) -> bool:
+    """Whether the Markdown/LaTeX record shows ``q`` as its sequence of named intermediates
+    although it has a closed form: where the closed form prints in more than
+    ``RECORD_FORM_CHARS`` characters (a page of symbols that no reviewer reads, and that
+    costs more to typeset than the rest of the record) and the sequence exists. The JSON
+    record keeps both."""
+    return bool(q.sequence) and q.expr is not None and _long_form(q.expr)
 
 
 SHORT_FORM = 45          # closed forms up to this printed width are shown in the summary
@@ -455,7 +479,8 @@ def request_summary(record, r) -> list:
     d = digits_of(record)
     for q in r.quantities.values():
         name = to_latex(sympy.Symbol(q.name))
-        form = to_latex(q.expr) if q.expr is not None else None
+        long = q.expr is not None and _long_form(q.expr)      # not typeset to be measured
+        form = to_latex(q.expr) if q.expr is not None and not long else None
         math = name + (" = " + form if form and visual_len(form) <= SHORT_FORM else "")
         value = _value_text(q.value, q.unit, d) if q.value is not None else ""
         short = form and visual_len(form) <= SHORT_FORM
@@ -466,7 +491,8 @@ def request_summary(record, r) -> list:
                       (f"no value: {q.undefined}" if getattr(q, "undefined", None) else
                        "no value (symbolic)") +
                       (", closed form below" if form and visual_len(form) > SHORT_FORM
-                       else "")})
+                       else ", as named intermediates below" if long and _as_sequence(q)
+                       else ", closed form below" if long else "")})
         items += _frequency_items(record, r, q)
         if getattr(q, "approximation", None):
             items.append(_approximation_item(q, d))
