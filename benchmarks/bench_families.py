@@ -163,17 +163,9 @@ def naive(fam: str, n: int) -> dict:
 
 
 def spawn_naive(fam, n, timeout):
-    cmd = [sys.executable, os.path.abspath(__file__), "--naive-worker", fam, str(n)]
-    try:
-        p = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout)
-    except subprocess.TimeoutExpired:
-        return {"status": f"timeout>{timeout:g}s"}
-    for line in p.stdout.splitlines():
-        if line.startswith("RESULT "):
-            r = json.loads(line[7:])
-            r["status"] = "ok"
-            return r
-    return {"status": "error", "stderr": p.stderr[-400:]}
+    from bench_solver import worker_result
+    return worker_result([sys.executable, os.path.abspath(__file__), "--naive-worker", fam,
+                          str(n)], timeout, stderr_chars=400)
 
 
 # ----------------------------------------------------------------------------- derive runs

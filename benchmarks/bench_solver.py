@@ -220,18 +220,27 @@ def worker(method, case):
     print("RESULT " + json.dumps(r))
 
 
-def spawn(method, case, timeout):
-    cmd = [sys.executable, os.path.abspath(__file__), "--worker", method, case]
+def worker_result(cmd, timeout, cwd=None, stderr_chars=500) -> dict:
+    """Run a benchmark worker (``cmd``) and return the JSON of its ``RESULT`` line with
+    ``status`` "ok" (and ``process``: the wall-clock seconds of the whole subprocess), or a
+    status saying it timed out or failed (with the end of its standard error)."""
+    t = time.perf_counter()
     try:
-        p = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout)
+        p = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, cwd=cwd)
     except subprocess.TimeoutExpired:
         return {"status": f"timeout>{timeout:g}s"}
     for line in p.stdout.splitlines():
         if line.startswith("RESULT "):
             r = json.loads(line[7:])
             r["status"] = "ok"
+            r["process"] = time.perf_counter() - t
             return r
-    return {"status": "error", "stderr": p.stderr[-500:]}
+    return {"status": "error", "stderr": p.stderr[-stderr_chars:]}
+
+
+def spawn(method, case, timeout):
+    return worker_result([sys.executable, os.path.abspath(__file__), "--worker", method, case],
+                         timeout)
 
 
 def fmt_t(r, key="t"):

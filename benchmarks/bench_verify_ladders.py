@@ -35,7 +35,6 @@ from __future__ import annotations
 import argparse
 import json
 import os
-import subprocess
 import sys
 import time
 
@@ -44,7 +43,7 @@ ROOT = os.path.dirname(HERE)
 sys.path.insert(0, ROOT)
 sys.path.insert(0, HERE)
 
-from bench_solver import circuit, run_naive, sheet_text   # noqa: E402
+from bench_solver import circuit, run_naive, sheet_text, worker_result   # noqa: E402
 
 LADDERS = list(range(2, 33))
 GRIDS = [3, 4, 5, 6]
@@ -177,20 +176,12 @@ def naive_worker(case: str):
 
 
 def spawn(mode, case, timeout):
-    cmd = [sys.executable, os.path.abspath(__file__), mode, case]
-    t = time.perf_counter()
-    try:
-        p = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, cwd=ROOT)
-    except subprocess.TimeoutExpired:
-        return {"status": f"timeout>{timeout:g}s"}
-    for line in p.stdout.splitlines():
-        if line.startswith("RESULT "):
-            r = json.loads(line[7:])
-            r["status"] = "ok"
-            r["process"] = time.perf_counter() - t
-            return r
-    tail = (p.stderr.strip().splitlines() or ["?"])[-1]
-    return {"status": "error", "error": tail[-200:]}
+    r = worker_result([sys.executable, os.path.abspath(__file__), mode, case], timeout,
+                      cwd=ROOT)
+    if r["status"] == "error":
+        tail = (r.pop("stderr").strip().splitlines() or ["?"])[-1]
+        r["error"] = tail[-200:]
+    return r
 
 
 NOISE_SHARE, NOISE_SECONDS = 0.05, 0.002   # a step down within both is run-to-run noise
